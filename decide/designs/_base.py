@@ -1,0 +1,172 @@
+"""The interface every study design implements.
+
+A study design turns the trade's inputs (baseline, effect, size, allocation,
+follow-up years) into two things the shared engines understand:
+
+* :class:`NormalMoments`, the mean and spread of a normal test statistic
+  per exposed subject, for the closed-form approximations; and
+* :class:`CountModel`, the distributions of the counts an exact test sees
+  and the conditional test it runs on them.
+
+The engines in :mod:`decide.designs._normal` and :mod:`decide.designs._exact`
+do the rest, so a new design is one new module with one class.
+"""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from dataclasses import dataclass
+from typing import ClassVar, Literal
+
+import numpy as np
+from numpy.typing import NDArray
+
+FloatArray = NDArray[np.float64]
+
+#: The smallest expected count, in any cell, at which ``test="auto"`` still
+#: trusts the normal approximation.
+AUTO_EXACT_BELOW = 10.0
+
+
+@dataclass(frozen=True)
+class NormalMoments:
+    """Moments of a normal test statistic, scaled to one exposed subject.
+
+    With ``n`` exposed subjects the statistic is distributed as
+    ``N(0, sd_null**2 / n)`` when the exposure is harmless and as
+    ``N(shift, sd_alt**2 / n)`` under the stated effect; the continuity
+    correction subtracted from the shift is ``correction / n``.
+    """
+
+    shift: FloatArray
+    sd_null: FloatArray
+    sd_alt: FloatArray
+    correction: FloatArray
+
+
+@dataclass(frozen=True)
+class Marginal:
+    """A binomial or Poisson count, batched over the leading axis."""
+
+    family: Literal["binomial", "poisson"]
+    #: number of trials (binomial) or ``nan`` (Poisson)
+    trials: FloatArray
+    #: success probability (binomial) or mean (Poisson)
+    parameter: FloatArray
+
+
+@dataclass(frozen=True)
+class CountModel:
+    """What an exact test sees, for a batch of studies.
+
+    ``exposed_null`` and ``exposed_alt`` describe the exposed count under no
+    effect and under the stated effect (the latter may carry an extra
+    trailing axis of effects); ``other`` is the comparison count, distributed
+    alike under both hypotheses, or ``None`` for a one-group design.
+    ``conditional`` names the exact test run on the counts:
+
+    ``"fisher"``
+        hypergeometric, given the total (Fisher's exact test), needs
+        ``n_exposed`` and ``n_other``;
+    ``"binomial"``
+        binomial given the total, success probability ``share_exposed``
+        (the exact conditional test of two Poisson rates);
+    ``"poisson"``
+        the exposed count against a Poisson mean ``reference_mean``.
+    """
+
+    exposed_null: Marginal
+    exposed_alt: Marginal
+    other: Marginal | None
+    conditional: Literal["fisher", "binomial", "poisson"]
+    n_exposed: FloatArray | None = None
+    n_other: FloatArray | None = None
+    share_exposed: FloatArray | None = None
+    reference_mean: FloatArray | None = None
+
+
+class StudyDesign(ABC):
+    """A study design: its vocabulary, its normal moments and its counts."""
+
+    name: ClassVar[str]
+    title: ClassVar[str]
+    effect_name: ClassVar[str]
+    baseline_name: ClassVar[str]
+    size_name: ClassVar[str]
+    allocation_name: ClassVar[str | None]
+    uses_years: ClassVar[bool]
+    binomial_groups: ClassVar[bool]
+    normal_method: ClassVar[str]
+    exact_method: ClassVar[str]
+
+    @abstractmethod
+    def check_baseline(self, baseline: FloatArray) -> None:
+        """Raise :class:`~decide.errors.DecideError` if the baseline is impossible."""
+
+    @abstractmethod
+    def effect_limit(self, baseline: FloatArray) -> FloatArray:
+        """The effect (exclusive) above which the design's model breaks; ``inf`` if none."""
+
+    def comparison_size(self, n: FloatArray, allocation: FloatArray) -> FloatArray:
+        """Subjects in the comparison group (0 for a one-group design).
+
+        Groups are whole subjects: ``allocation * n`` rounded half up.  The
+        exact tests use this count; the normal formulas use the ratio itself,
+        as the published formulas do (they differ by under half a subject).
+        """
+        if self.allocation_name is None:
+            return np.zeros_like(n * allocation)
+        return np.asarray(np.floor(allocation * n + 0.5), dtype=np.float64)
+
+    @abstractmethod
+    def normal_moments(
+        self,
+        baseline: FloatArray,
+        effect: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> NormalMoments:
+        """Moments of the normal test statistic per exposed subject."""
+
+    @abstractmethod
+    def cell_counts(
+        self,
+        n: FloatArray,
+        baseline: FloatArray,
+        effect: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+    ) -> dict[str, FloatArray]:
+        """Expected counts in the cells a test relies on, under the effect.
+
+        Keys name the cell in the design's words.  The first entry is the
+        exposed group's count under the stated effect.
+        """
+
+    def smallest_expected_count(
+        self,
+        n: FloatArray,
+        baseline: FloatArray,
+        effect: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+    ) -> FloatArray:
+        """The smallest expected cell count under either hypothesis."""
+        alt = self.cell_counts(n, baseline, effect, allocation, years)
+        null = self.cell_counts(n, baseline, np.ones_like(effect), allocation, years)
+        return np.minimum(
+            np.minimum.reduce(list(np.broadcast_arrays(*alt.values()))),
+            np.minimum.reduce(list(np.broadcast_arrays(*null.values()))),
+        )
+
+    @abstractmethod
+    def count_model(
+        self,
+        n: FloatArray,
+        baseline: FloatArray,
+        effect: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+    ) -> CountModel:
+        """The counts an exact test sees; ``effect`` may have a trailing axis."""
