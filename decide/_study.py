@@ -59,7 +59,8 @@ def check_setting(
     t = _checks.choice("test", test, TESTS)
     if continuity and not d.binomial_groups:
         raise DecideError(
-            f"continuity correction applies to the two-proportion designs, not to {d.name}"
+            f"continuity correction applies to the two-proportion designs, not to {d.name}",
+            ("continuity",),
         )
     return Setting(d, b, alloc, yrs, s, t, bool(continuity))
 
@@ -74,7 +75,8 @@ def check_effect(setting: Setting, effect: ArrayLike) -> FloatArray:
         i = np.flatnonzero(bad)[0]
         raise DecideError(
             f"effect must be below {lb.flat[i]:g} for baseline {bb.flat[i]:g} "
-            f"(the exposed risk must stay below 1), but got {eb.flat[i]:g}"
+            f"(the exposed risk must stay below 1), but got {eb.flat[i]:g}",
+            ("effect", "baseline"),
         )
     return e
 
@@ -89,5 +91,6 @@ def check_alpha_power(alpha: ArrayLike | None, power: ArrayLike | None) -> None:
             pa, aa = np.broadcast_arrays(p, a)
             i = np.flatnonzero(bad)[0]
             raise DecideError(
-                f"power must be above alpha, but got power {pa.flat[i]:g} with alpha {aa.flat[i]:g}"
+                f"power must be above alpha, but got power {pa.flat[i]:g} with alpha {aa.flat[i]:g}",
+                ("power", "alpha"),
             )

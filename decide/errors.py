@@ -9,7 +9,18 @@ from __future__ import annotations
 
 
 class DecideError(ValueError):
-    """Invalid input: the message names the parameter and the reason."""
+    """Invalid input: the message names the parameter and the reason.
+
+    ``params`` lists the parameter names the message mentions, so that a
+    front end can show them in its own spelling (``n_per_group`` becomes
+    ``--n-per-group`` on the command line).  By default it is the message's
+    first word.
+    """
+
+    def __init__(self, message: str, params: tuple[str, ...] | None = None) -> None:
+        super().__init__(message)
+        first = message.split(" ", 1)[0].rstrip(":")
+        self.params: tuple[str, ...] = params if params is not None else (first,)
 
 
 class InfeasibleError(DecideError):

@@ -229,11 +229,12 @@ def _exact_size_scan(
 ) -> tuple[int, int, int]:
     """Smallest and stable sizes by a batched scan of exact power."""
     curve = _exact_curve(setting, alpha, effect)
-    hi = int(max(16, np.ceil(2 * guess)))
+    hi = int(min(cap, max(16, np.ceil(2 * guess))))
     while curve(np.array([float(hi)]))[0] < target:
         if hi >= cap:
             raise InfeasibleError(
-                f"n_per_group: no size up to the cap of {cap:g} reaches power {target:g}"
+                f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g} "
+                f"with the exact test"
             )
         hi = min(cap, hi * 2)
     checked = min(cap, 2 * hi)
@@ -290,7 +291,7 @@ def _reference_rate_sizes(
                 break
         elif start[-1] > cap:
             raise InfeasibleError(
-                f"n_per_group: no size up to the cap of {cap:g} reaches power {target:g}"
+                f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}"
             )
         c_max *= 2
     n_first = int(reach[first_ok])
@@ -320,7 +321,8 @@ def _only_unknown(values: dict[str, Any]) -> str:
         given = "none" if not missing else " and ".join(missing)
         raise DecideError(
             f"leave out exactly one of alpha, power, n_per_group, effect to solve for it, "
-            f"but {'all four were given' if not missing else given + ' were left out'}"
+            f"but {'all four were given' if not missing else given + ' were left out'}",
+            UNKNOWNS,
         )
     return missing[0]
 
@@ -386,7 +388,7 @@ def solve(
     )
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
     if setting.baseline.ndim or setting.allocation.ndim or setting.years.ndim:
-        raise DecideError("solve takes single values; use the array functions for sweeps")
+        raise DecideError("solve takes single values; use the array functions for sweeps", ())
     check_alpha_power(alpha, power)
     if n_per_group is not None:
         _checks.whole_at_least_one("n_per_group", n_per_group)
@@ -399,6 +401,10 @@ def solve(
             )
         if unknown in ("n_per_group", "alpha") and effect == 1:
             raise DecideError("effect must differ from 1 to be detectable, but got 1")
+        if unknown == "n_per_group" and effect < 1:
+            raise DecideError(
+                f"effect must be above 1: size solves look for harm, but got {effect:g}"
+            )
     solver = {"power": _solve_power, "n_per_group": _solve_size, "alpha": _solve_alpha, "effect": _solve_effect}
     return solver[unknown](setting, alpha, power, n_per_group, effect, cap)
 
@@ -480,7 +486,7 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
     if not _wants_exact(setting, n_normal, effect):
         if n_normal > cap:
             raise InfeasibleError(
-                f"n_per_group: the normal test needs {n_normal:,} per group, more than the cap of {cap:g}"
+                f"n_per_group: the normal test needs {n_normal:,} per group, more than the cap of {cap:,}"
             )
         return _finish(setting, "n_per_group", alpha, n_normal, effect, False, target)
     if setting.design.name == "reference-rate" and setting.sides == 1:
@@ -489,7 +495,7 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
         first, stable, checked = _exact_size_scan(setting, alpha, target, effect, guess, cap)
     if first > cap:
         raise InfeasibleError(
-            f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:g}"
+            f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:,}"
         )
     notes = ()
     if stable > first:

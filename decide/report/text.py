@@ -1,0 +1,44 @@
+"""Shared wording and number formatting for every renderer."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+CAUTION = (
+    "Decision support, not a decision: the value judgments (prior, costs, acceptable risks) "
+    "belong to the responsible body. Defer to applicable regulations, the competent authority "
+    "and licensed professional judgment."
+)
+
+
+def fmt(value: Any, digits: int = 4) -> str:
+    """Format a number for people: significant digits, thousands separators for counts."""
+    if value is None:
+        return "-"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, int):
+        return f"{value:,}"
+    if isinstance(value, float):
+        if math.isnan(value):
+            return "-"
+        if math.isinf(value):
+            return "inf" if value > 0 else "-inf"
+        if value != 0 and (abs(value) < 1e-3 or abs(value) >= 1e7):
+            return f"{value:.{digits - 1}e}"
+        if float(value).is_integer() and abs(value) >= 1000:
+            return f"{value:,.0f}"
+        return f"{value:.{digits}g}"
+    return str(value)
+
+
+def json_safe(value: Any) -> Any:
+    """Replace non-finite floats by ``None`` so the JSON is standard."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [json_safe(v) for v in value]
+    return value
