@@ -1,0 +1,519 @@
+"""Pydantic models of the scenario file.
+
+A scenario file is TOML with one table per part of the decision problem::
+
+    title = "..."
+    description = "..."   # optional
+    [study]               # the design and how it is analysed
+    [effect]              # what "harmful" means: a ratio or a lognormal prior
+    [prior]               # how likely harm is before the study
+    [consequences]        # what each outcome costs
+    [constraints]         # limits every policy must respect (optional)
+
+The models check the shape of the file, the type and range of every value
+and the rules that tie keys together (which keys apply to which design, the
+two ways of giving the effect and the missed-hazard cost, a budget that
+allows at least the smallest study).  :meth:`ScenarioModel.to_problem` then
+builds the core :class:`~decide.problem.Problem`, whose constructors check
+what depends on the numbers together (for example that the effect keeps the
+exposed risk below 1).
+
+Field descriptions are user documentation: they appear in the JSON Schema
+(:func:`decide.scenario.scenario_json_schema`).
+
+A rule broken across keys is raised as a :class:`PydanticCustomError` of type
+``decide_rule`` whose context names the key (relative to the table that
+raised it), the reason and the value received; :mod:`decide.scenario._messages`
+turns it into the one-line message.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic_core import PydanticCustomError
+
+from decide.designs import DESIGNS, get_design
+from decide.prior import EffectPrior
+from decide.problem import Consequences, Constraints, Problem, Study
+
+DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
+TestName = Literal["normal", "exact", "auto"]
+
+#: Marks "no value to show" in a rule error.
+NO_VALUE = "\x00no value"
+RULE_ERROR = "decide_rule"
+
+
+def rule_error(key: str, reason: str, got: Any = NO_VALUE) -> PydanticCustomError:
+    """A broken rule about ``key`` (dotted, relative to the raising table)."""
+    return PydanticCustomError(RULE_ERROR, "{reason}", {"key": key, "reason": reason, "got": got})
+
+
+def _config(title: str) -> ConfigDict:
+    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False, title=title)
+
+
+def _designs_where(test: Any) -> str:
+    return ", ".join(name for name, d in DESIGNS.items() if test(d))
+
+
+class StudyModel(BaseModel):
+    """The [study] table: the design and how it is analysed."""
+
+    model_config = _config("[study]")
+
+    design: DesignName = Field(
+        description=(
+            "The study design. cohort-risk: exposed and unexposed cohorts compared by the "
+            "risk of disease over follow-up (risk ratio). cohort-rate: exposed and unexposed "
+            "cohorts compared by incidence per person-year (rate ratio). reference-rate: one "
+            "exposed cohort against a known reference rate (standardised incidence ratio). "
+            "case-control: cases and controls compared by exposure (odds ratio)."
+        )
+    )
+    baseline: Annotated[
+        float,
+        Field(
+            gt=0,
+            description=(
+                "The baseline, by design. cohort-risk: risk of disease over the whole follow-up "
+                "among the unexposed (a probability). cohort-rate: incidence rate per "
+                "person-year among the unexposed. reference-rate: reference incidence rate per "
+                "person-year. case-control: proportion exposed among controls (a probability)."
+            ),
+        ),
+    ]
+    allocation: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "Unexposed subjects per exposed subject (cohort designs) or controls per case "
+                "(case-control). Default 1. Not for reference-rate, which has one group."
+            ),
+        ),
+    ] = None
+    years: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "Follow-up years per subject (person-time designs cohort-rate and "
+                "reference-rate only). Default 1."
+            ),
+        ),
+    ] = None
+    sides: Literal[1, 2] = Field(
+        default=1,
+        description="1: test for harm only (one-sided); 2: test for any difference (two-sided).",
+    )
+    test: TestName = Field(
+        default="auto",
+        description=(
+            "The analysis: normal (normal approximation), exact (the design's exact test) or "
+            "auto (exact when the smallest expected cell count is below 10)."
+        ),
+    )
+    continuity: bool | None = Field(
+        default=None,
+        description=(
+            "Continuity correction of the normal approximation (two-proportion designs "
+            "cohort-risk and case-control only). Default false."
+        ),
+    )
+
+    @field_validator("sides", mode="before")
+    @classmethod
+    def _sides_not_bool(cls, value: Any) -> Any:
+        if isinstance(value, bool):
+            raise rule_error("", "must be 1 or 2", value)
+        return value
+
+    @model_validator(mode="after")
+    def _keys_fit_design(self) -> StudyModel:
+        d = get_design(self.design)
+        if self.allocation is not None and d.allocation_name is None:
+            raise rule_error(
+                "allocation",
+                f"does not apply to the {d.name} design (one group only); it applies to "
+                + _designs_where(lambda x: x.allocation_name is not None),
+                self.allocation,
+            )
+        if self.years is not None and not d.uses_years:
+            raise rule_error(
+                "years",
+                f"does not apply to the {d.name} design (it counts cases, not person-time); "
+                "it applies to " + _designs_where(lambda x: x.uses_years),
+                self.years,
+            )
+        if self.continuity is not None and not d.binomial_groups:
+            raise rule_error(
+                "continuity",
+                f"does not apply to the {d.name} design; it applies to "
+                + _designs_where(lambda x: x.binomial_groups),
+                self.continuity,
+            )
+        return self
+
+    def to_study(self) -> Study:
+        return Study(
+            design=self.design,
+            baseline=self.baseline,
+            allocation=1.0 if self.allocation is None else self.allocation,
+            years=1.0 if self.years is None else self.years,
+            sides=self.sides,
+            test=self.test,
+            continuity=bool(self.continuity),
+        )
+
+    def smallest_study(self, n_per_group: int) -> int:
+        """Subjects in a study with ``n_per_group`` exposed subjects (or cases)."""
+        d = get_design(self.design)
+        alloc = 1.0 if self.allocation is None else self.allocation
+        other = d.comparison_size(np.asarray(float(n_per_group)), np.asarray(alloc))
+        return n_per_group + int(other)
+
+
+class EffectModel(BaseModel):
+    """The [effect] table: the effect if the exposure is harmful."""
+
+    model_config = _config("[effect]")
+
+    ratio: Annotated[
+        float | None,
+        Field(
+            gt=1,
+            description=(
+                "The effect if harmful, as the design's ratio (risk ratio, rate ratio, "
+                "standardised incidence ratio or odds ratio). Give this, or low, high and "
+                "level for a lognormal prior, not both."
+            ),
+        ),
+    ] = None
+    low: Annotated[
+        float | None,
+        Field(
+            gt=0, description="Lower end of a central interval of a lognormal prior on the effect."
+        ),
+    ] = None
+    high: Annotated[
+        float | None,
+        Field(gt=0, description="Upper end of that interval (above low)."),
+    ] = None
+    level: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            lt=1,
+            description="Prior probability that the effect lies between low and high, e.g. 0.9.",
+        ),
+    ] = None
+    median: Annotated[
+        float | None,
+        Field(
+            gt=1,
+            description=(
+                "Median of the lognormal prior, between low and high (optional; default the "
+                "geometric mean of low and high). Power targets refer to it."
+            ),
+        ),
+    ] = None
+
+    @model_validator(mode="after")
+    def _one_form(self) -> EffectModel:
+        interval = {"low": self.low, "high": self.high, "level": self.level}
+        given = [k for k, v in interval.items() if v is not None]
+        if self.ratio is not None:
+            if given or self.median is not None:
+                extra = (given or ["median"])[0]
+                raise rule_error(
+                    extra,
+                    "give either ratio (a single effect) or low, high and level (a lognormal "
+                    "prior), not both",
+                    getattr(self, extra),
+                )
+            return self
+        if not given:
+            raise rule_error(
+                "",
+                "give ratio (a single effect), or low, high and level (a lognormal prior)",
+            )
+        missing = [k for k, v in interval.items() if v is None]
+        if missing:
+            raise rule_error(
+                missing[0],
+                f"is required with effect.{given[0]}: a lognormal prior needs low, high and level",
+            )
+        return self
+
+    def to_prior(self) -> EffectPrior:
+        if self.ratio is not None:
+            return EffectPrior.point(self.ratio)
+        assert self.low is not None and self.high is not None and self.level is not None
+        return EffectPrior.from_interval(self.low, self.high, self.level, self.median)
+
+
+class PriorModel(BaseModel):
+    """The [prior] table: how likely harm is before the study."""
+
+    model_config = _config("[prior]")
+
+    p_harm: Annotated[
+        float,
+        Field(
+            gt=0,
+            lt=1,
+            description=(
+                "Prior probability that the exposure is harmful (has the effect in [effect]), "
+                "strictly between 0 and 1. A value judgment of the responsible body."
+            ),
+        ),
+    ]
+
+
+_DERIVATION = ("exposed_population", "background_rate", "cost_per_case", "horizon_years")
+
+
+class ConsequencesModel(BaseModel):
+    """The [consequences] table: what each outcome costs, in one unit."""
+
+    model_config = _config("[consequences]")
+
+    missed_hazard: Annotated[
+        float | None,
+        Field(
+            ge=0,
+            description=(
+                "Cost of missing a real hazard (no finding when the exposure is harmful). Give "
+                "it, or derive it from exposed_population, background_rate, cost_per_case and "
+                "horizon_years, not both."
+            ),
+        ),
+    ] = None
+    exposed_population: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "People who stay exposed if a hazard is missed (to derive missed_hazard)."
+            ),
+        ),
+    ] = None
+    background_rate: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "Cases per person-year among the unexposed (to derive missed_hazard); excess "
+                "cases are exposed_population * background_rate * (effect - 1) per year."
+            ),
+        ),
+    ] = None
+    cost_per_case: Annotated[
+        float | None,
+        Field(gt=0, description="Cost of one excess case (to derive missed_hazard)."),
+    ] = None
+    horizon_years: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "Years the exposure goes on if a hazard is missed (to derive missed_hazard)."
+            ),
+        ),
+    ] = None
+    false_alarm: Annotated[
+        float,
+        Field(
+            ge=0,
+            description=(
+                "Cost of a false alarm: flagging a harmless exposure (needless restrictions, "
+                "substitution, lost trust)."
+            ),
+        ),
+    ]
+    per_subject: Annotated[
+        float,
+        Field(
+            ge=0,
+            description=(
+                "Cost of enrolling one subject, in every group alike (exposed and unexposed, "
+                "cases and controls)."
+            ),
+        ),
+    ]
+    fixed: Annotated[
+        float,
+        Field(ge=0, description="Fixed cost of running the study at all. Default 0."),
+    ] = 0.0
+    currency: Annotated[
+        str,
+        Field(
+            description=(
+                "Label of the unit all costs are in (e.g. EUR, or QALY); a label only, "
+                "nothing is converted."
+            ),
+        ),
+    ] = ""
+
+    @model_validator(mode="after")
+    def _one_form(self) -> ConsequencesModel:
+        given = [k for k in _DERIVATION if getattr(self, k) is not None]
+        if self.missed_hazard is not None:
+            if given:
+                raise rule_error(
+                    given[0],
+                    "give missed_hazard, or derive it from exposed_population, background_rate, "
+                    "cost_per_case and horizon_years, not both",
+                    getattr(self, given[0]),
+                )
+            return self
+        if not given:
+            raise rule_error(
+                "missed_hazard",
+                "is required, unless exposed_population, background_rate, cost_per_case and "
+                "horizon_years are all given to derive it",
+            )
+        missing = [k for k in _DERIVATION if getattr(self, k) is None]
+        if missing:
+            raise rule_error(
+                missing[0],
+                f"is required with consequences.{given[0]}: deriving missed_hazard needs "
+                "exposed_population, background_rate, cost_per_case and horizon_years",
+            )
+        return self
+
+    def to_consequences(self) -> Consequences:
+        return Consequences(
+            false_alarm=self.false_alarm,
+            per_subject=self.per_subject,
+            fixed=self.fixed,
+            missed_hazard=self.missed_hazard,
+            exposed_population=self.exposed_population,
+            background_rate=self.background_rate,
+            cost_per_case=self.cost_per_case,
+            horizon_years=self.horizon_years,
+        )
+
+
+class ConstraintsModel(BaseModel):
+    """The [constraints] table: limits every policy must respect."""
+
+    model_config = _config("[constraints]")
+
+    max_n_per_group: Annotated[
+        int | None,
+        Field(
+            ge=1,
+            description=(
+                "Most exposed subjects (or cases) that can be enrolled; the comparison group "
+                "follows from the allocation. Default: no cap."
+            ),
+        ),
+    ] = None
+    min_n_per_group: Annotated[
+        int,
+        Field(ge=1, description="Fewest exposed subjects (or cases) worth enrolling. Default 1."),
+    ] = 1
+    max_alpha: Annotated[
+        float,
+        Field(
+            gt=0,
+            le=1,
+            description="Largest false-alarm probability any policy may accept. Default 1 (none).",
+        ),
+    ] = 1.0
+    min_power: Annotated[
+        float,
+        Field(
+            ge=0,
+            lt=1,
+            description=(
+                "Smallest power at the design effect any policy must reach. Default 0 (none)."
+            ),
+        ),
+    ] = 0.0
+    budget: Annotated[
+        float | None,
+        Field(
+            gt=0,
+            description=(
+                "Most that may be spent on the study (fixed plus per-subject costs), in the "
+                "unit of [consequences]. Default: no budget limit."
+            ),
+        ),
+    ] = None
+
+    @model_validator(mode="after")
+    def _sizes_ordered(self) -> ConstraintsModel:
+        if self.max_n_per_group is not None and self.max_n_per_group < self.min_n_per_group:
+            raise rule_error(
+                "max_n_per_group",
+                f"must be >= constraints.min_n_per_group ({self.min_n_per_group})",
+                self.max_n_per_group,
+            )
+        return self
+
+    def to_constraints(self) -> Constraints:
+        return Constraints(
+            max_n_per_group=self.max_n_per_group,
+            min_n_per_group=self.min_n_per_group,
+            max_alpha=self.max_alpha,
+            min_power=self.min_power,
+            budget=self.budget,
+        )
+
+
+class ScenarioModel(BaseModel):
+    """A scenario file: one decision problem about one exposure."""
+
+    model_config = _config("decide scenario")
+
+    title: Annotated[
+        str, Field(min_length=1, description="A short name for the scenario, shown in reports.")
+    ]
+    description: Annotated[
+        str, Field(description="Free text: the setting, the sources of the numbers, caveats.")
+    ] = ""
+    study: StudyModel = Field(description="The study design and how it is analysed.")
+    effect: EffectModel = Field(description='What "harmful" means: the effect if harmful.')
+    prior: PriorModel = Field(description="How likely harm is before the study.")
+    consequences: ConsequencesModel = Field(
+        description="What each outcome costs, all in one currency or unit of the user's choice."
+    )
+    constraints: ConstraintsModel = Field(
+        default_factory=ConstraintsModel,
+        description="Limits every policy must respect (all optional).",
+    )
+
+    @model_validator(mode="after")
+    def _budget_allows_a_study(self) -> ScenarioModel:
+        budget = self.constraints.budget
+        if budget is None:
+            return self
+        m = self.constraints.min_n_per_group
+        subjects = self.study.smallest_study(m)
+        c = self.consequences
+        least = c.fixed + c.per_subject * subjects
+        if budget < least:
+            raise rule_error(
+                "constraints.budget",
+                f"must at least cover the fixed cost plus the smallest allowed study "
+                f"({c.fixed:g} + {subjects} subjects x {c.per_subject:g} = {least:g})",
+                budget,
+            )
+        return self
+
+    def to_problem(self) -> Problem:
+        """The core decision problem (its constructors may raise DecideError)."""
+        return Problem(
+            study=self.study.to_study(),
+            effect=self.effect.to_prior(),
+            p_harm=self.prior.p_harm,
+            consequences=self.consequences.to_consequences(),
+            constraints=self.constraints.to_constraints(),
+            title=self.title,
+        )
