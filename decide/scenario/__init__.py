@@ -18,14 +18,28 @@ from .files import (
     write_text_atomic,
 )
 from .models import ScenarioModel
+from .policy_files import (
+    BUILTIN_ORDER,
+    PolicyFileModel,
+    builtin_policy_dir,
+    load_policies,
+    load_policy_file,
+    policy_json_schema,
+)
 
 __all__ = [
+    "BUILTIN_ORDER",
     "LoadedScenario",
     "PolicyFileError",
+    "PolicyFileModel",
     "ScenarioError",
     "ScenarioModel",
+    "builtin_policy_dir",
+    "load_policies",
+    "load_policy_file",
     "load_scenario",
     "parse_scenario",
+    "policy_json_schema",
     "scenario_json_schema",
     "scenario_template",
     "write_text_atomic",

@@ -1,0 +1,272 @@
+"""Policy files: one TOML file per policy.
+
+A policy file states how alpha and the study size are chosen::
+
+    title = "Conventional science"
+    summary = "..."
+    [alpha]
+    rule = "fixed"          # fixed | loss-optimal | equal-to-beta | posterior | for-power
+    value = 0.05            # with rule = "fixed" only
+    # posterior_threshold = 0.5   # with rule = "posterior" only
+    [power]                 # optional
+    target = 0.80           # required power at the design effect
+    beta_at_most_alpha = false
+    [size]
+    rule = "smallest-for-power"   # smallest-for-power | largest-allowed | loss-optimal
+
+The rules are described in :mod:`decide.policies`.  The policy's name is the
+file's stem (``conventional-science.toml`` is ``conventional-science``).
+
+The bundled policies live in the top-level ``policies/`` folder of a source
+checkout and are installed as ``decide/_policies`` in a wheel;
+:func:`builtin_policy_dir` finds either.  :func:`load_policies` reads them in
+:data:`BUILTIN_ORDER`, then any further folders, whose policies override
+bundled ones of the same name.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+from collections.abc import Iterable
+from importlib import resources
+from importlib.resources.abc import Traversable
+from pathlib import Path
+from typing import Annotated, Any
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from decide.errors import DecideError
+from decide.policies import AlphaRule, Policy, SizeRule
+
+from ._messages import PolicyFileError, from_core_error
+from .files import read_toml, toml_json_schema, validate_model
+from .models import rule_error
+
+#: Display order of the bundled policies: conventional standards first, then
+#: standards that let alpha move, then the engine's own choice.  Bundled
+#: policies not listed here follow in alphabetical order.
+BUILTIN_ORDER: tuple[str, ...] = (
+    "conventional-science",
+    "strict-science",
+    "conventional-fixed-size",
+    "precautionary",
+    "equal-errors",
+    "more-likely-than-not",
+    "optimal-alpha-fixed-size",
+    "loss-optimal",
+)
+
+_NAME = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
+
+
+def _config(title: str) -> ConfigDict:
+    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False, title=title)
+
+
+_Probability = Annotated[float, Field(gt=0, lt=1)]
+
+
+class AlphaTable(BaseModel):
+    """The [alpha] table: how alpha is chosen."""
+
+    model_config = _config("[alpha]")
+
+    rule: AlphaRule = Field(
+        description=(
+            "fixed: alpha is value. loss-optimal: alpha minimises expected loss. equal-to-beta: "
+            "alpha equals beta. posterior: flag when the posterior probability of harm exceeds "
+            "posterior_threshold. for-power: the smallest alpha that reaches power.target."
+        )
+    )
+    value: Annotated[
+        _Probability | None, Field(description='The alpha, with rule = "fixed" only.')
+    ] = None
+    posterior_threshold: Annotated[
+        _Probability | None,
+        Field(
+            description='Posterior probability of harm that flags, with rule = "posterior" only.'
+        ),
+    ] = None
+
+    @model_validator(mode="after")
+    def _keys_fit_rule(self) -> AlphaTable:
+        if self.rule == "fixed" and self.value is None:
+            raise rule_error("value", 'is required with rule = "fixed"')
+        if self.rule != "fixed" and self.value is not None:
+            raise rule_error(
+                "value", f'applies to rule = "fixed" only, not {self.rule!r}', self.value
+            )
+        if self.rule == "posterior" and self.posterior_threshold is None:
+            raise rule_error("posterior_threshold", 'is required with rule = "posterior"')
+        if self.rule != "posterior" and self.posterior_threshold is not None:
+            raise rule_error(
+                "posterior_threshold",
+                f'applies to rule = "posterior" only, not {self.rule!r}',
+                self.posterior_threshold,
+            )
+        return self
+
+
+class PowerTable(BaseModel):
+    """The [power] table: what power the policy requires."""
+
+    model_config = _config("[power]")
+
+    target: Annotated[
+        _Probability | None,
+        Field(
+            description=(
+                "Required power at the design effect (the ratio, or the prior's median). Needed "
+                "by size rule smallest-for-power and alpha rule for-power."
+            )
+        ),
+    ] = None
+    beta_at_most_alpha: bool = Field(
+        default=False,
+        description="Also require beta (averaged over the effect prior) not to exceed alpha.",
+    )
+
+
+class SizeTable(BaseModel):
+    """The [size] table: how the study size is chosen."""
+
+    model_config = _config("[size]")
+
+    rule: SizeRule = Field(
+        description=(
+            "smallest-for-power: the smallest size reaching power.target. largest-allowed: the "
+            "largest size the constraints allow. loss-optimal: the size minimising expected loss."
+        )
+    )
+
+
+class PolicyFileModel(BaseModel):
+    """A policy file: a standard for choosing alpha and the study size."""
+
+    model_config = _config("decide policy")
+
+    title: Annotated[str, Field(min_length=1, description="A short plain-words name.")]
+    summary: Annotated[
+        str, Field(min_length=1, description="One or two sentences on what the policy stands for.")
+    ]
+    alpha: AlphaTable = Field(description="How alpha is chosen.")
+    power: PowerTable = Field(default_factory=PowerTable, description="Required power (optional).")
+    size: SizeTable = Field(description="How the study size is chosen.")
+
+    @model_validator(mode="after")
+    def _power_where_needed(self) -> PolicyFileModel:
+        target = self.power.target
+        if target is None:
+            needs = [
+                f"{table}.rule = {rule!r}"
+                for table, rule in (("size", self.size.rule), ("alpha", self.alpha.rule))
+                if rule in ("smallest-for-power", "for-power")
+            ]
+            if needs:
+                raise rule_error("power.target", f"is required with {needs[0]}")
+        elif self.alpha.value is not None and target <= self.alpha.value:
+            raise rule_error(
+                "power.target", f"must be above alpha.value ({self.alpha.value:g})", target
+            )
+        return self
+
+    def to_policy(self, name: str) -> Policy:
+        return Policy(
+            name=name,
+            title=self.title,
+            summary=self.summary,
+            alpha_rule=self.alpha.rule,
+            size_rule=self.size.rule,
+            alpha=self.alpha.value,
+            power=self.power.target,
+            posterior_threshold=self.alpha.posterior_threshold,
+            beta_at_most_alpha=self.power.beta_at_most_alpha,
+        )
+
+
+def load_policy_file(path: str | os.PathLike[str]) -> Policy:
+    """Read one policy file; its name is the file's stem.
+
+    Raises
+    ------
+    PolicyFileError
+        With the one-line message ``<file>: <key.path>: <reason> (got <value>)``.
+    """
+    file = os.fspath(path)
+    name = Path(file).stem
+    if not _NAME.fullmatch(name):
+        raise PolicyFileError(
+            file,
+            "",
+            "a policy file's name must be lower-case letters and digits joined by "
+            f"hyphens, e.g. my-policy.toml (got {name!r})",
+        )
+    data = read_toml(file, PolicyFileError)
+    model: PolicyFileModel = validate_model(file, data, PolicyFileModel, PolicyFileError)
+    try:
+        return model.to_policy(name)
+    except DecideError as e:
+        raise from_core_error(file, e, PolicyFileError, prefix=f"policy {name}: ") from None
+
+
+def _first_policy_dir(packaged: Traversable, checkout: Path) -> Path:
+    """The installed copy if there is one, else the source checkout's folder."""
+    if isinstance(packaged, Path) and packaged.is_dir():
+        return packaged
+    if checkout.is_dir():
+        return checkout
+    raise DecideError(
+        f"the bundled policies are missing: looked in {packaged} and {checkout}", ("policies",)
+    )
+
+
+def builtin_policy_dir() -> Path:
+    """The folder of the bundled policy files.
+
+    A wheel installs them as ``decide/_policies``; a source checkout or an
+    editable install keeps them in ``policies/`` beside the ``decide`` package.
+    """
+    return _first_policy_dir(
+        resources.files("decide") / "_policies",
+        Path(__file__).resolve().parents[2] / "policies",
+    )
+
+
+def _policy_files(folder: Path) -> list[Path]:
+    if not folder.is_dir():
+        raise PolicyFileError(os.fspath(folder), "", "no such policy folder")
+    return sorted(
+        (p for p in folder.iterdir() if p.suffix == ".toml" and not p.name.startswith(".")),
+        key=lambda p: p.name,
+    )
+
+
+def _display_order(name: str) -> tuple[int, str]:
+    return (BUILTIN_ORDER.index(name) if name in BUILTIN_ORDER else len(BUILTIN_ORDER), name)
+
+
+def load_policies(extra_dirs: Iterable[str | os.PathLike[str]] = ()) -> dict[str, Policy]:
+    """All policies by name: the bundled ones, then those in ``extra_dirs``.
+
+    Bundled policies come in :data:`BUILTIN_ORDER` (others after them,
+    alphabetically); each further folder's ``*.toml`` files follow in
+    alphabetical order.  A policy whose name is already taken replaces the
+    earlier one in its place, so a folder can override a bundled policy.
+
+    Raises
+    ------
+    PolicyFileError
+        For a missing folder or the first file that cannot be used.
+    """
+    policies: dict[str, Policy] = {}
+    bundled = sorted(_policy_files(builtin_policy_dir()), key=lambda p: _display_order(p.stem))
+    for path in bundled + [p for d in extra_dirs for p in _policy_files(Path(d))]:
+        policy = load_policy_file(path)
+        policies[policy.name] = policy
+    return policies
+
+
+def policy_json_schema() -> dict[str, Any]:
+    """The JSON Schema of a policy file."""
+    return toml_json_schema(PolicyFileModel)
