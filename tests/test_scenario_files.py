@@ -399,7 +399,8 @@ MALFORMED = [
         "unknown design",
         edit(BASE, 'design = "cohort-risk"', 'design = "cohort"'),
         "study.design",
-        r"must be one of 'cohort-risk', .* \(got \"cohort\"\)",
+        r"must be 'cohort-risk', 'cohort-rate', 'reference-rate' or 'case-control' "
+        r"\(got \"cohort\"\)",
     ),
     (
         "sides true",
@@ -411,7 +412,7 @@ MALFORMED = [
         "sides 3",
         edit(BASE, "allocation = 1.0", "sides = 3"),
         "study.sides",
-        r"must be one of 1 or 2 \(got 3\)",
+        r"must be 1 or 2 \(got 3\)",
     ),
     ("missing key", edit(BASE, "p_harm = 0.2", ""), "prior.p_harm", r"is required but missing$"),
     ("empty title", edit(BASE, '"Invented test case"', '""'), "title", r"must not be empty"),

@@ -44,7 +44,7 @@ class ScenarioError(DecideError):
         self.key = key
         self.reason = reason
         where = f"{file}: {key}: " if key else f"{file}: "
-        super().__init__(" ".join((where + reason).split()), (key,) if key else (file,))
+        super().__init__(where + " ".join(reason.split()), (key,) if key else (file,))
 
 
 class PolicyFileError(ScenarioError):
@@ -118,7 +118,7 @@ def _explain(error: Any, model: type[BaseModel]) -> tuple[str, str]:
         "bool_type": "must be true or false",
         "string_type": "must be text in quotes",
         "string_too_short": "must not be empty",
-        "literal_error": f"must be one of {ctx.get('expected')}",
+        "literal_error": f"must be {ctx.get('expected')}",
         "model_type": "must be a table",
         "dict_type": "must be a table",
     }
