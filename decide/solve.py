@@ -378,7 +378,7 @@ def solve(
 
     Examples
     --------
-    >>> from decide import solve
+    >>> from decide.solve import solve
     >>> s = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
     >>> s.n_per_group, s.n_total
     (188, 376)
@@ -536,11 +536,16 @@ def _solve_effect(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any
     probe = found if np.isfinite(found) else top
     use_exact = _wants_exact(setting, n, probe)
     if use_exact:
+        # bracket upwards from the normal answer, so that no grid is built for
+        # absurd effects (the grid grows with the expected counts)
         curve = _exact_effect_curve(setting, alpha, n)
-        if curve(np.array([[np.log(top)]]))[0, 0] < target:
+        hi = min(top, 2.0 * found if np.isfinite(found) else 2.0)
+        while curve(np.array([[np.log(hi)]]))[0, 0] < target and hi < top:
+            hi = min(top, hi * 2.0)
+        if curve(np.array([[np.log(hi)]]))[0, 0] < target:
             found = np.nan
         else:
-            found = float(np.exp(_bracket_increasing(curve, np.zeros(1), np.log([top]), p[None], 15, 6)[0]))
+            found = float(np.exp(_bracket_increasing(curve, np.zeros(1), np.log([hi]), p[None], 15, 6)[0]))
     if not np.isfinite(found):
         raise InfeasibleError(
             f"effect: no {setting.design.effect_name} up to {top:g} reaches power {target:g} "

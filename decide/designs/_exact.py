@@ -107,18 +107,21 @@ def _row_tails(
 ) -> FloatArray:
     """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
 
-    Each row holds the null distribution of ``x1`` given ``t``, built from the
-    exact ratio of successive probabilities and normalised over a span that
-    holds all but a negligible part of its mass (12 standard deviations and
-    12 counts beyond the mean on each side, and every grid point).  Working
-    with ratios avoids the cancellation of log-factorials of large groups.
+    Each row holds the null distribution of ``x1`` given ``t`` over the span
+    of its mass: 14 standard deviations and 14 counts either side of the mean,
+    where the tails beyond hold less than about 1e-25.  The row is built from
+    the exact ratio of successive probabilities and normalised over that
+    span, which avoids the cancellation of log-factorials of large groups.
+    Grid points below the span get upper p-value 1 (lower 0), points above it
+    upper p-value 0 (lower 1): p-values under about 1e-25 are reported as 0.
     """
+    reach = 14.0
     lo1 = x1[:, 0]
     tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
     t, tvalid = _axis(tmin, tmax)  # (B, T)
     rows = law(t)
-    lo = np.maximum(rows.support_lo, np.minimum(lo1[:, None], np.floor(rows.mean - 12 * rows.sd - 12)))
-    hi = np.minimum(rows.support_hi, np.maximum(hi1[:, None], np.ceil(rows.mean + 12 * rows.sd + 12)))
+    lo = np.maximum(rows.support_lo, np.floor(rows.mean - reach * rows.sd - reach))
+    hi = np.minimum(rows.support_hi, np.ceil(rows.mean + reach * rows.sd + reach))
     hi = np.where(tvalid, hi, lo)
     width = int(np.max(hi - lo)) + 1
     x = lo[:, :, None] + np.arange(width, dtype=np.float64)  # (B, T, W)
@@ -131,11 +134,16 @@ def _row_tails(
     f /= f.sum(axis=2, keepdims=True)
     b = np.arange(x1.shape[0])[:, None, None]
     row = np.clip((x1[:, :, None] + x0[:, None, :] - tmin[:, None, None]).astype(np.int64), 0, t.shape[1] - 1)
-    col = np.clip((x1[:, :, None] - lo[b, row]).astype(np.int64), 0, width - 1)
+    offset = x1[:, :, None] - lo[b, row]
+    below = offset < 0
+    above = x1[:, :, None] > hi[b, row]
+    col = np.clip(offset.astype(np.int64), 0, width - 1)
     upper = np.cumsum(f[:, :, ::-1], axis=2)[:, :, ::-1][b, row, col]
+    upper = np.where(below, 1.0, np.where(above, 0.0, upper))
     if sides == 1:
         return np.asarray(upper)
     lower = np.cumsum(f, axis=2)[b, row, col]
+    lower = np.where(below, 0.0, np.where(above, 1.0, lower))
     return np.asarray(np.minimum(1.0, 2 * np.minimum(upper, lower)))
 
 

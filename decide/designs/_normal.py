@@ -32,8 +32,12 @@ def critical_z(alpha: FloatArray, sides: int) -> FloatArray:
 
 def power(m: NormalMoments, n: FloatArray, alpha: FloatArray, sides: int) -> FloatArray:
     """Power of the normal test; two-sided power includes the far tail."""
+    return power_at_z(m, n, critical_z(alpha, sides), sides)
+
+
+def power_at_z(m: NormalMoments, n: FloatArray, z: FloatArray, sides: int) -> FloatArray:
+    """Power of the normal test with critical value ``z`` (in null standard errors)."""
     root = np.sqrt(n)
-    z = critical_z(alpha, sides)
     step = m.correction / root
     out = special.ndtr((m.shift * root - step - z * m.sd_null) / m.sd_alt)
     if sides == 2:

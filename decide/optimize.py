@@ -1,0 +1,560 @@
+"""Choose alpha and the study size under a policy, and explain the choice.
+
+:func:`decide_policy` applies one :class:`~decide.policies.Policy` to a
+:class:`~decide.problem.Problem`; :func:`optimize` is the loss-optimal
+policy; :func:`compare` applies several side by side with their regret
+against the loss-optimal choice.
+
+For each candidate size the policy's alpha rule picks a test (a normal
+critical value, or an attainable critical region of an exact test); the size
+rule then picks the size.  Loss-optimal sizes are found on a geometric grid
+refined to the whole subject; the refinement is checked against brute force
+in the tests.
+
+References
+----------
+.. [1] Berger, J. O. (1985). *Statistical Decision Theory and Bayesian
+   Analysis*, 2nd ed., Springer, sec. 4.4.3: the Bayes test rejects when the
+   likelihood ratio exceeds ``k = (1 - p) F / (p M)``.
+.. [2] DeGroot, M. H. and Schervish, M. J. (2012). *Probability and
+   Statistics*, 4th ed., Pearson, thm 9.2.1 (from memory).
+.. [3] Mudge, J. F., Baker, L. F., Edge, C. B. and Houlahan, J. E. (2012).
+   *PLoS ONE* 7, e32734 (alpha chosen to minimise weighted errors).
+.. [4] Willan, A. R. and Pinto, E. M. (2005). *Stat. Med.* 24, 1791-1806
+   (expected net benefit of sampling).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import asdict, dataclass, field, replace
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .designs import _exact, _normal
+from .designs._base import FloatArray
+from .errors import DecideError
+from .loss import (
+    Z_RANGE,
+    Characteristics,
+    LossModel,
+    bisect_decreasing,
+    build_model,
+    exact_batches,
+    minimise_on,
+    normal_at,
+)
+from .policies import LOSS_OPTIMAL, Policy
+from .problem import Problem
+
+#: Size searched up to when nothing else bounds it (smallest-for-power).
+SIZE_CEILING = 10**9
+_TOL = 1e-9
+
+# reasons a test or size fails a policy
+OK, ALPHA_CAP, POWER_FLOOR, BETA_ABOVE_ALPHA, NO_TEST = 0, 1, 2, 3, 4
+
+
+@dataclass(frozen=True)
+class Choice:
+    """The test a policy picks at each candidate size (arrays of one length)."""
+
+    n: FloatArray
+    exact: NDArray[np.bool_]
+    chars: Characteristics
+    z: FloatArray
+    code: NDArray[np.int64]
+    error_loss: FloatArray
+
+    @property
+    def meets_rules(self) -> NDArray[np.bool_]:
+        return np.asarray(self.code == OK)
+
+
+def _floor(model: LossModel, policy: Policy) -> float:
+    return max(model.problem.constraints.min_power, policy.power or 0.0)
+
+
+def _codes(model: LossModel, policy: Policy, c: Characteristics) -> NDArray[np.int64]:
+    cons = model.problem.constraints
+    floor = _floor(model, policy)
+    code = np.zeros(np.shape(c.nominal), dtype=np.int64)
+    bma = policy.beta_at_most_alpha & (1 - c.power > c.attained + 1e-9)
+    code = np.where(bma, BETA_ABOVE_ALPHA, code)
+    code = np.where(c.design_power < floor - 1e-9, POWER_FLOOR, code)
+    code = np.where(c.nominal > cons.max_alpha * (1 + _TOL), ALPHA_CAP, code)
+    return code
+
+
+def _choose_normal(model: LossModel, policy: Policy, n: FloatArray) -> tuple[Characteristics, FloatArray]:
+    s = model.setting
+    p = model.problem
+    cons = p.constraints
+    zlo, zhi = (np.full(n.shape, v) for v in Z_RANGE)
+
+    def at(z: FloatArray) -> Characteristics:
+        return normal_at(model, n[:, None] if z.ndim == 2 else n, z)
+
+    def loss(z: FloatArray) -> FloatArray:
+        c = at(z)
+        return model.error_loss(c.attained, c.caught)
+
+    def power_root(target: float) -> FloatArray:
+        return bisect_decreasing(lambda z: at(z).design_power - target, zlo, zhi)
+
+    def equal_root() -> FloatArray:
+        return bisect_decreasing(lambda z: at(z).attained - (1 - at(z).power), zlo, zhi)
+
+    lo = zlo if cons.max_alpha >= 1 else np.maximum(zlo, _normal.critical_z(np.asarray(cons.max_alpha), s.sides))
+    hi = zhi
+    floor = _floor(model, policy)
+    if floor > 0:
+        hi = np.minimum(hi, power_root(floor))
+    z_eq = equal_root() if policy.beta_at_most_alpha or policy.alpha_rule == "equal-to-beta" else zhi
+    if policy.beta_at_most_alpha:
+        hi = np.minimum(hi, z_eq)
+    rule = policy.alpha_rule
+    if rule == "fixed":
+        assert policy.alpha is not None
+        z = np.full(n.shape, float(_normal.critical_z(np.asarray(policy.alpha), s.sides)))
+    elif rule == "loss-optimal":
+        z = minimise_on(loss, lo, np.maximum(lo, hi))
+    elif rule == "posterior":
+        t = policy.posterior_threshold
+        assert t is not None
+
+        def score(z: FloatArray) -> FloatArray:
+            c = at(z)
+            return (1 - t) * p.p_harm * (1 - c.power) + t * (1 - p.p_harm) * c.attained
+
+        z = minimise_on(score, zlo, zhi)
+    elif rule == "equal-to-beta":
+        z = z_eq
+    else:  # for-power
+        assert policy.power is not None
+        z = power_root(policy.power)
+        if policy.beta_at_most_alpha:
+            z = np.minimum(z, z_eq)
+    return at(z), z
+
+
+def _choose_exact_batch(model: LossModel, policy: Policy, opts: Any) -> tuple[NDArray[np.int64], NDArray[np.bool_]]:
+    c: Characteristics = opts.chars
+    valid = opts.valid
+    cons = model.problem.constraints
+    p = model.problem
+    cols = np.arange(valid.shape[1])
+    ok = valid & (_codes(model, policy, c) == OK)
+    rule = policy.alpha_rule
+    found = np.ones(valid.shape[0], dtype=bool)
+    if rule == "fixed":
+        assert policy.alpha is not None
+        k = np.where(valid & (c.nominal <= policy.alpha * (1 + _exact.REL_TOL)), cols, 0).max(axis=1)
+    elif rule == "loss-optimal":
+        score = np.where(ok, model.error_loss(c.attained, c.caught), np.inf)
+        k = np.argmin(score, axis=1)
+        found = np.isfinite(score[np.arange(k.size), k])
+    elif rule == "posterior":
+        t = policy.posterior_threshold
+        assert t is not None
+        score = (1 - t) * p.p_harm * (1 - c.power) + t * (1 - p.p_harm) * c.attained
+        k = np.argmin(np.where(valid, score, np.inf), axis=1)
+    elif rule == "equal-to-beta":
+        k = np.argmin(np.where(valid, np.maximum(c.attained, 1 - c.power), np.inf), axis=1)
+    else:  # for-power
+        assert policy.power is not None
+        cand = valid & (c.design_power >= policy.power - 1e-12)
+        if policy.beta_at_most_alpha:
+            cand &= 1 - c.power <= c.attained + 1e-12
+        k = np.argmax(cand, axis=1)
+        found = cand.any(axis=1)
+    del cons
+    return k, found
+
+
+def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
+    """The test the policy's alpha rule picks at each size in ``n``."""
+    n = np.asarray(n, dtype=np.float64)
+    exact = model.uses_exact(n)
+    fields = {k: np.zeros(n.shape) for k in ("nominal", "attained", "power", "design_power", "caught")}
+    z = np.full(n.shape, np.nan)
+    found = np.ones(n.shape, dtype=bool)
+    if (~exact).any():
+        c, zz = _choose_normal(model, policy, n[~exact])
+        for k in fields:
+            fields[k][~exact] = getattr(c, k)
+        z[~exact] = zz
+    if exact.any():
+        where = np.flatnonzero(exact)
+        for idx, opts in exact_batches(model, n[where]):
+            k, f = _choose_exact_batch(model, policy, opts)
+            rows = np.arange(k.size)
+            for name in fields:
+                fields[name][where[idx]] = getattr(opts.chars, name)[rows, k]
+            found[where[idx]] = f
+    chars = Characteristics(**fields)
+    code = np.where(found, _codes(model, policy, chars), NO_TEST)
+    return Choice(n, exact, chars, z, code, model.error_loss(chars.attained, chars.caught))
+
+
+# --------------------------------------------------------------------------
+# sizes
+
+
+def _largest_affordable(model: LossModel) -> int | None:
+    """The largest size the size cap and the budget allow (None if unbounded)."""
+    cons = model.problem.constraints
+    c = model.problem.consequences
+    top = cons.max_n_per_group
+    if cons.budget is not None and c.per_subject > 0:
+        per = c.per_subject * (1 + float(model.setting.allocation) if model.setting.design.allocation_name else 1)
+        guess = np.floor((cons.budget - c.fixed) / per) + 2
+        cand = np.arange(max(1.0, guess - 4), guess + 1)
+        fits = cand[model.study_cost(cand) <= cons.budget * (1 + 1e-12)]
+        n_budget = int(fits.max()) if fits.size else 0
+        top = n_budget if top is None else min(top, n_budget)
+    return None if top is None else int(top)
+
+
+def _geometric(lo: float, hi: float, k: int) -> FloatArray:
+    return np.unique(np.round(np.geomspace(lo, hi, k)))
+
+
+def _refine_min(model: LossModel, policy: Policy, grid: FloatArray, loss: FloatArray) -> float:
+    k = int(np.argmin(loss))
+    a, b = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
+    best, best_loss = grid[k], loss[k]
+    while b - a > 2:
+        cand = np.unique(np.round(np.linspace(a, b, 41)))
+        ch = choose_tests(model, policy, cand)
+        lc = _total_loss(model, ch)
+        j = int(np.argmin(lc))
+        if lc[j] < best_loss:
+            best, best_loss = cand[j], lc[j]
+        a, b = cand[max(j - 1, 0)], cand[min(j + 1, cand.size - 1)]
+    window = np.arange(max(grid[0], best - 32), min(grid[-1], best + 32) + 1)
+    ch = choose_tests(model, policy, window)
+    lw = _total_loss(model, ch)
+    j = int(np.argmin(lw))
+    return float(window[j]) if lw[j] < best_loss else float(best)
+
+
+def _total_loss(model: LossModel, ch: Choice) -> FloatArray:
+    return np.where(ch.meets_rules, ch.error_loss + model.study_cost(ch.n), np.inf)
+
+
+def _first_meeting(model: LossModel, policy: Policy, lo: float, hi: float) -> float | None:
+    grid = np.unique(np.append(_geometric(lo, hi, 81), hi))
+    ok = choose_tests(model, policy, grid).meets_rules
+    if not ok.any():
+        return None
+    k = int(np.argmax(ok))
+    if k == 0:
+        return float(grid[0])
+    a, b = grid[k - 1], grid[k]
+    while b - a > 1:
+        cand = np.unique(np.round(np.linspace(a, b, 42)))[1:-1]
+        cand = cand[(cand > a) & (cand < b)]
+        if cand.size == 0:
+            break
+        hit = choose_tests(model, policy, cand).meets_rules
+        if hit.any():
+            j = int(np.argmax(hit))
+            b = cand[j]
+            a = cand[j - 1] if j > 0 else a
+        else:
+            a = cand[-1]
+    below = np.arange(max(lo, b - 64), b)
+    if below.size:
+        early = choose_tests(model, policy, below).meets_rules
+        if early.any():
+            b = below[int(np.argmax(early))]
+    return float(b)
+
+
+@dataclass(frozen=True)
+class _Pick:
+    n: float | None
+    reason: str | None
+
+
+def _pick_size(model: LossModel, policy: Policy) -> _Pick:
+    cons = model.problem.constraints
+    c = model.problem.consequences
+    lo = float(cons.min_n_per_group)
+    top = _largest_affordable(model)
+    if top is not None and top < lo:
+        return _Pick(None, "the budget does not cover the smallest allowed study")
+    if policy.size_rule == "largest-allowed":
+        if top is None:
+            return _Pick(None, "takes the largest allowed size, but no size cap or budget is set")
+        return _Pick(float(top), None)
+    if policy.size_rule == "smallest-for-power":
+        n = _first_meeting(model, policy, lo, float(SIZE_CEILING))
+        if n is None:
+            return _Pick(None, f"no size up to {SIZE_CEILING:,} meets the policy")
+        if top is not None and n > top:
+            return _Pick(n, f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
+        return _Pick(n, None)
+    # loss-optimal size
+    if c.per_subject == 0 and top is None:
+        return _Pick(None, "with no per-subject cost and no size cap or budget, loss keeps falling with size")
+    hi = float(top) if top is not None else np.inf
+    if c.per_subject > 0:
+        per = c.per_subject * (1 + float(model.setting.allocation))
+        bound = (model.flag_now + model.clear_now + float(model.study_cost(np.asarray(lo)))) / per + 2
+        hi = min(hi, float(np.ceil(bound)))
+    hi = max(hi, lo)
+    grid = np.unique(np.append(_geometric(lo, hi, 97), hi))
+    loss = _total_loss(model, choose_tests(model, policy, grid))
+    if not np.isfinite(loss).any():
+        return _Pick(None, "no size within the constraints meets the policy")
+    return _Pick(_refine_min(model, policy, grid, loss), None)
+
+
+# --------------------------------------------------------------------------
+# the decision and its explanation
+
+
+@dataclass(frozen=True)
+class Decision:
+    """What a policy chooses for a problem, and what that choice implies.
+
+    Costs are in the scenario's unit.  ``beta`` and ``power`` are averaged
+    over the effect prior; ``power_at_design_effect`` is at the design effect
+    (the point effect or the prior median).  ``implied_cost_ratio`` is the
+    ratio of expected missed-hazard cost to false-alarm cost at which the
+    chosen alpha would be loss-optimal for the chosen size (for exact tests,
+    the geometric middle of ``implied_cost_ratio_range``).
+    """
+
+    policy: str
+    title: str
+    summary: str
+    feasible: bool
+    reason: str | None
+    design: str
+    test: str | None
+    method: str | None
+    alpha: float | None
+    attained_alpha: float | None
+    beta: float | None
+    power: float | None
+    power_at_design_effect: float | None
+    design_effect: float
+    n_per_group: int | None
+    n_total: int | None
+    expected_loss: float | None
+    loss_parts: dict[str, float] | None
+    no_study: dict[str, float]
+    net_benefit: float | None
+    recommendation: str
+    p_harm_given_negative: float | None
+    p_harm_given_positive: float | None
+    detectable_effect: float | None
+    implied_cost_ratio: float | None
+    implied_cost_ratio_range: tuple[float, float] | None
+    stated_cost_ratio: float
+    regret: float | None = None
+    warnings: tuple[str, ...] = field(default=())
+
+    def to_dict(self) -> dict[str, Any]:
+        out = asdict(self)
+        out["warnings"] = list(self.warnings)
+        if self.implied_cost_ratio_range is not None:
+            out["implied_cost_ratio_range"] = list(self.implied_cost_ratio_range)
+        return out
+
+
+def _implied_ratio_normal(model: LossModel, n: float, z: float) -> float | None:
+    p = model.problem
+    if model.expected_missed <= 0:
+        return None
+    h = 1e-5
+    c = normal_at(model, np.full(2, n), np.array([z - h, z + h]))
+    d_att = c.attained[0] - c.attained[1]
+    d_caught = (c.caught[0] - c.caught[1]) / model.expected_missed
+    if d_caught <= 0:
+        return None
+    return float((1 - p.p_harm) * d_att / (p.p_harm * d_caught))
+
+
+def _implied_ratio_exact(model: LossModel, n: float, chosen: Characteristics) -> tuple[float, float] | None:
+    p = model.problem
+    if model.expected_missed <= 0:
+        return None
+    _, opts = next(exact_batches(model, np.array([n])))
+    c, valid = opts.chars, opts.valid[0]
+    att, caught = c.attained[0][valid], c.caught[0][valid] / model.expected_missed
+    me_a, me_c = float(chosen.attained), float(chosen.caught) / model.expected_missed
+    odds = (1 - p.p_harm) / p.p_harm
+    with np.errstate(divide="ignore", invalid="ignore"):
+        below = (att < me_a - 1e-15)
+        above = (att > me_a + 1e-15)
+        lo_r = (me_a - att[below]) / (me_c - caught[below])
+        hi_r = (att[above] - me_a) / (caught[above] - me_c)
+    lo_r = np.where((me_c - caught[below]) <= 0, np.inf, lo_r)
+    hi_r = np.where((caught[above] - me_c) <= 0, np.inf, hi_r)
+    lo = odds * float(lo_r.max()) if lo_r.size else 0.0
+    hi = odds * float(hi_r.min()) if hi_r.size else np.inf
+    return (lo, hi)
+
+
+def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float | None:
+    from .solve import solve
+
+    s = model.setting
+    study = model.problem.study
+    if not 0 < alpha < 0.8:
+        return None
+    try:
+        sol = solve(
+            s.design,
+            baseline=study.baseline,
+            alpha=alpha,
+            power=0.8,
+            n_per_group=int(n),
+            allocation=None if s.design.allocation_name is None else study.allocation,
+            years=study.years if s.design.uses_years else None,
+            sides=s.sides,
+            test="exact" if exact else "normal",
+            continuity=s.continuity,
+        )
+    except DecideError:
+        return None
+    return sol.effect
+
+
+_REASONS = {
+    ALPHA_CAP: "alpha would exceed the cap constraints.max_alpha",
+    POWER_FLOOR: "power at the design effect stays below the required level",
+    BETA_ABOVE_ALPHA: "beta would exceed alpha",
+    NO_TEST: "no attainable test meets the policy's power requirement",
+}
+
+
+def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
+    """Apply one policy to a problem.
+
+    Parameters
+    ----------
+    problem : Problem or LossModel
+    policy : Policy
+
+    Returns
+    -------
+    Decision
+        ``feasible`` is False, with a ``reason``, when no size within the
+        constraints meets the policy; where a size beyond them would, its
+        numbers are still shown.
+    """
+    model = problem if isinstance(problem, LossModel) else build_model(problem)
+    p = model.problem
+    pick = _pick_size(model, policy)
+    no_study = {"flag_now": model.flag_now, "clear_now": model.clear_now}
+    better = "flag now" if model.flag_now < model.clear_now else "clear now"
+    best_none = min(model.flag_now, model.clear_now)
+    stated = model.expected_missed / p.consequences.false_alarm if p.consequences.false_alarm > 0 else np.inf
+    d = model.setting.design
+    empty = Decision(
+        policy.name, policy.title, policy.summary, False, pick.reason, d.name, None, None, None, None,
+        None, None, None, p.effect.median, None, None, None, None, no_study, None,
+        f"{policy.title} cannot be met: {pick.reason}. Without a study, the better action is to "
+        f"{better} (expected loss {best_none:.4g}).",
+        None, None, None, None, None, float(stated),
+    )
+    if pick.n is None:
+        return empty
+    n = pick.n
+    ch = choose_tests(model, policy, np.array([n]))
+    c = Characteristics(*(float(getattr(ch.chars, f)[0]) for f in ("nominal", "attained", "power", "design_power", "caught")))
+    exact = bool(ch.exact[0])
+    code = int(ch.code[0])
+    reason = pick.reason or (None if code == OK else _REASONS[code])
+    feasible = reason is None
+    n_total = float(model.n_total(np.asarray(n)))
+    study = float(model.study_cost(np.asarray(n)))
+    missed = p.p_harm * max(model.expected_missed - c.caught, 0.0)
+    false_alarm = (1 - p.p_harm) * p.consequences.false_alarm * c.attained
+    loss = missed + false_alarm + study
+    beta = 1 - c.power
+    neg = p.p_harm * beta + (1 - p.p_harm) * (1 - c.attained)
+    pos = p.p_harm * c.power + (1 - p.p_harm) * c.attained
+    if exact:
+        rng = _implied_ratio_exact(model, n, c)
+        point = float(np.sqrt(rng[0] * rng[1])) if rng and 0 < rng[0] <= rng[1] < np.inf else None
+        test, method = "exact", d.exact_method
+    else:
+        rng = None
+        point = _implied_ratio_normal(model, n, float(ch.z[0]))
+        test = "normal-cc" if model.setting.continuity else "normal"
+        method = d.normal_method + (", continuity-corrected" if model.setting.continuity else "")
+    net = best_none - loss
+    warns: list[str] = []
+    if exact and rng is not None and rng[0] > rng[1]:
+        warns.append("the chosen exact test is not loss-optimal for any cost ratio at this size")
+    if feasible and net <= 0:
+        rec = (f"No study is worth its cost under {policy.title.lower()}: {better} now "
+               f"(expected loss {best_none:.4g}, against {loss:.4g} with the study).")
+    elif feasible:
+        rec = (f"Study {int(n):,} {d.size_name} ({int(n_total):,} subjects in all); flag the exposure "
+               f"if the one-{'sided' if model.setting.sides == 1 else 'two-sided'} {test} test is "
+               f"significant at alpha = {c.nominal:.4g}. Expected net benefit over deciding now ({better}): {net:.4g}.")
+    else:
+        rec = f"{policy.title} cannot be met: {reason}."
+    return replace(
+        empty,
+        feasible=feasible,
+        reason=reason,
+        test=test,
+        method=method,
+        alpha=c.nominal,
+        attained_alpha=c.attained,
+        beta=beta,
+        power=c.power,
+        power_at_design_effect=c.design_power,
+        n_per_group=int(n),
+        n_total=int(n_total),
+        expected_loss=loss,
+        loss_parts={"missed": missed, "false_alarm": false_alarm, "study": study},
+        net_benefit=net,
+        recommendation=rec,
+        p_harm_given_negative=p.p_harm * beta / neg if neg > 0 else None,
+        p_harm_given_positive=p.p_harm * c.power / pos if pos > 0 else None,
+        detectable_effect=_detectable(model, c.nominal, n, exact),
+        implied_cost_ratio=point,
+        implied_cost_ratio_range=rng,
+        warnings=tuple(warns),
+    )
+
+
+def optimize(problem: Problem) -> Decision:
+    """The loss-optimal alpha and size (see :func:`decide_policy`).
+
+    Examples
+    --------
+    >>> from decide.problem import Problem, Study, Consequences
+    >>> from decide.prior import EffectPrior
+    >>> prob = Problem(Study("reference-rate", 2e-4, years=5.0), EffectPrior.point(2.0), 0.3,
+    ...                Consequences(false_alarm=1e6, per_subject=20.0, missed_hazard=1e8))
+    >>> d = optimize(prob)
+    >>> d.test, d.n_per_group > 0, d.net_benefit > 0
+    ('exact', True, True)
+    """
+    return decide_policy(problem, LOSS_OPTIMAL)
+
+
+def compare(problem: Problem, policies: Sequence[Policy]) -> list[Decision]:
+    """Apply each policy; regret is each one's extra loss over the loss-optimal choice."""
+    model = build_model(problem)
+    best = decide_policy(model, LOSS_OPTIMAL)
+    out = []
+    for pol in policies:
+        dec = best if pol == LOSS_OPTIMAL else decide_policy(model, pol)
+        regret = None
+        if dec.expected_loss is not None and best.expected_loss is not None:
+            regret = dec.expected_loss - best.expected_loss
+        out.append(replace(dec, regret=regret))
+    return out
