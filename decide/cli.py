@@ -9,7 +9,8 @@ from __future__ import annotations
 import json
 import re
 import sys
-from enum import Enum
+from enum import StrEnum
+from pathlib import Path
 from typing import Annotated, Any, NoReturn
 
 import typer
@@ -17,9 +18,21 @@ from rich.console import Console
 from typer.core import TyperGroup
 
 from . import solve as _solve
+from .audit import audit as _audit
 from .errors import DecideError, InfeasibleError
+from .optimize import compare as _compare
+from .optimize import optimize as _optimize
 from .report import console as render
+from .report import tables
 from .report.text import json_safe
+from .scenario import (
+    load_policies,
+    load_scenario,
+    policy_json_schema,
+    scenario_json_schema,
+    scenario_template,
+    write_text_atomic,
+)
 
 _OPTIONS = {
     "alpha": "--alpha",
@@ -110,14 +123,14 @@ def emit_json(data: Any) -> None:
     sys.stdout.write(json.dumps(json_safe(data), indent=2) + "\n")
 
 
-class Design(str, Enum):
+class Design(StrEnum):
     cohort_risk = "cohort-risk"
     cohort_rate = "cohort-rate"
     reference_rate = "reference-rate"
     case_control = "case-control"
 
 
-class Test(str, Enum):
+class Test(StrEnum):
     auto = "auto"
     normal = "normal"
     exact = "exact"
@@ -179,6 +192,149 @@ def solve_command(
         emit_json(solution.to_dict())
     else:
         Console().print(render.solution_table(solution))
+
+
+ScenarioPath = Annotated[Path, typer.Argument(help="Scenario file (TOML).", show_default=False)]
+JsonFlag = Annotated[bool, typer.Option("--json", help="Print JSON instead of a table.")]
+PolicyDirs = Annotated[
+    list[Path] | None, typer.Option("--policy-dir", help="Extra folder of policy files (repeatable).")
+]
+
+
+def _emit_text(text: str, output: Path | None, force: bool) -> None:
+    if output is None:
+        sys.stdout.write(text)
+    else:
+        write_text_atomic(output, text, overwrite=force)
+        sys.stderr.write(f"wrote {output}\n")
+
+
+@app.command("optimize")
+def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
+    """Find the alpha, beta and size that minimise expected loss for a scenario."""
+    loaded = run_api("optimize", lambda: load_scenario(scenario))
+    decision = run_api("optimize", lambda: _optimize(loaded.problem))
+    if as_json:
+        emit_json({"scenario": loaded.title, **decision.to_dict()})
+    else:
+        Console().print(render.decision_table(decision, loaded.title, loaded.currency or ""))
+    if not decision.feasible:
+        raise typer.Exit(1)
+
+
+@app.command("compare")
+def compare_command(
+    scenario: ScenarioPath,
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Policy to include (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    as_json: JsonFlag = False,
+    as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
+    as_markdown: Annotated[bool, typer.Option("--markdown", help="Print a Markdown table.")] = False,
+    output: Annotated[Path | None, typer.Option(help="Write to this file (not overwritten unless --force).")] = None,
+    force: Annotated[bool, typer.Option("--force", help="Overwrite --output.")] = False,
+) -> None:
+    """Set policies side by side for a scenario: alpha, beta, size, loss, regret, implied cost ratio."""
+    loaded = run_api("compare", lambda: load_scenario(scenario))
+    known = run_api("compare", lambda: load_policies(policy_dir or ()))
+    if policy:
+        unknown = [p for p in policy if p not in known]
+        if unknown:
+            _fail(f"decide compare: --policy must be one of {', '.join(known)}, but got {unknown[0]!r}", 2)
+        chosen = [known[p] for p in dict.fromkeys(policy)]
+    else:
+        chosen = list(known.values())
+    decisions = run_api("compare", lambda: _compare(loaded.problem, chosen))
+    if sum((as_json, as_csv, as_markdown)) > 1:
+        _fail("decide compare: choose one of --json, --csv and --markdown", 2)
+    if as_json:
+        text = json.dumps(json_safe([{"scenario": loaded.title, **d.to_dict()} for d in decisions]), indent=2) + "\n"
+    elif as_csv:
+        text = tables.to_csv(decisions)
+    elif as_markdown:
+        text = tables.to_markdown(decisions, loaded.title)
+    else:
+        if output is not None:
+            _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
+        con = Console()
+        con.print(render.compare_table(decisions, loaded.title, loaded.currency or "", con.width))
+        return
+    run_api("compare", lambda: _emit_text(text, output, force))
+
+
+@app.command("audit")
+def audit_command(
+    design: Annotated[Design, typer.Option(help="Study design.")],
+    baseline: Annotated[float, typer.Option(help="Baseline, as in 'decide solve'.")],
+    alpha: Annotated[float, typer.Option(help="The protocol's significance level.")],
+    effect: Annotated[float, typer.Option(help="The effect the protocol was sized for.")],
+    p_harm: Annotated[float, typer.Option(help="Prior probability that the exposure is harmful.")],
+    per_subject: Annotated[float, typer.Option(help="Study cost per enrolled subject.")],
+    power: Annotated[float | None, typer.Option(help="The power the protocol was sized for.")] = None,
+    n_per_group: Annotated[int | None, typer.Option(help="The protocol's size (instead of --power).")] = None,
+    allocation: Annotated[float | None, typer.Option(help="Unexposed per exposed, or controls per case.")] = None,
+    years: Annotated[float | None, typer.Option(help="Follow-up years per subject.")] = None,
+    sides: Annotated[int, typer.Option(help="1 = one-sided test of harm, 2 = two-sided.")] = 1,
+    test: Annotated[Test, typer.Option(help="normal, exact, or auto.")] = Test.auto,
+    unit: Annotated[str, typer.Option(help="Label for costs in the output.")] = "",
+    as_json: JsonFlag = False,
+) -> None:
+    """Reveal the value judgments a protocol's alpha and size imply."""
+    result = run_api(
+        "audit",
+        lambda: _audit(
+            design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
+            per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
+            years=years, sides=sides, test=test.value,
+        ),
+    )
+    if as_json:
+        emit_json(result.to_dict())
+    else:
+        Console().print(render.audit_table(result, unit))
+
+
+@app.command("policies")
+def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -> None:
+    """List the policies available to 'decide compare'."""
+    known = run_api("policies", lambda: load_policies(policy_dir or ()))
+    if as_json:
+        from dataclasses import asdict
+
+        emit_json([asdict(p) for p in known.values()])
+        return
+    from rich.table import Table
+
+    t = Table(title="Policies")
+    for col in ("name", "title", "alpha rule", "power", "size rule", "summary"):
+        t.add_column(col)
+    for p in known.values():
+        power = "-" if p.power is None else f"{p.power:g}" + (" (beta <= alpha)" if p.beta_at_most_alpha else "")
+        rule = p.alpha_rule + (f" {p.alpha:g}" if p.alpha is not None else "")
+        rule += f" {p.posterior_threshold:g}" if p.posterior_threshold is not None else ""
+        t.add_row(p.name, p.title, rule, power, p.size_rule, " ".join(p.summary.split()))
+    Console().print(t)
+
+
+@app.command("schema")
+def schema_command(
+    kind: Annotated[str, typer.Argument(help="scenario or policy.")] = "scenario",
+) -> None:
+    """Print the JSON Schema of scenario (or policy) files."""
+    if kind not in ("scenario", "policy"):
+        _fail(f"decide schema: KIND must be scenario or policy, but got {kind!r}", 2)
+    emit_json(scenario_json_schema() if kind == "scenario" else policy_json_schema())
+
+
+@app.command("new")
+def new_command(
+    path: Annotated[Path, typer.Argument(help="Where to write the scenario template.")],
+    force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
+) -> None:
+    """Write a commented scenario template to start from."""
+    run_api("new", lambda: write_text_atomic(path, scenario_template(), overwrite=force))
+    sys.stderr.write(f"wrote {path}; edit it, then run: decide compare {path}\n")
 
 
 def main() -> None:

@@ -38,8 +38,7 @@ from numpy.typing import NDArray
 from scipy import special
 
 from ._study import Setting
-from .designs import AUTO_EXACT_BELOW
-from .designs import _exact, _normal
+from .designs import AUTO_EXACT_BELOW, _exact, _normal
 from .designs._base import FloatArray
 from .power import grid_cells
 from .problem import Problem
@@ -134,6 +133,13 @@ class Characteristics:
     power: FloatArray
     design_power: FloatArray
     caught: FloatArray
+
+    def at(self, i: int) -> Characteristics:
+        """The characteristics of the ``i``-th test, as scalars."""
+        return Characteristics(*(float(np.ravel(getattr(self, f))[i]) for f in _FIELDS))  # type: ignore[arg-type]
+
+
+_FIELDS = ("nominal", "attained", "power", "design_power", "caught")
 
 
 # --------------------------------------------------------------------------

@@ -193,6 +193,9 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
             rows = np.arange(k.size)
             for name in fields:
                 fields[name][where[idx]] = getattr(opts.chars, name)[rows, k]
+            if policy.alpha_rule == "fixed":
+                # the test at level alpha is that of the largest breakpoint below it
+                fields["nominal"][where[idx]] = policy.alpha
             found[where[idx]] = f
     chars = Characteristics(**fields)
     code = np.where(found, _codes(model, policy, chars), NO_TEST)
@@ -381,25 +384,54 @@ def _implied_ratio_normal(model: LossModel, n: float, z: float) -> float | None:
     return float((1 - p.p_harm) * d_att / (p.p_harm * d_caught))
 
 
-def _implied_ratio_exact(model: LossModel, n: float, chosen: Characteristics) -> tuple[float, float] | None:
+def _implied_ratio_exact(
+    model: LossModel, n: float, chosen: Characteristics
+) -> tuple[tuple[float, float], bool] | None:
+    """Cost ratios at which a loss-minimiser would pick a test of this attained size.
+
+    The attainable tests at size ``n`` are points (attained alpha ``A``,
+    caught hazard ``C``); for a cost ratio ``R`` the loss-optimal one
+    maximises ``p R C - (1 - p) A``, so the optimal tests trace the upper
+    concave hull of the points and ``R = (1 - p) / (p s)`` with ``s`` the
+    hull's slope at ``A``.  At a hull vertex ``R`` spans an interval.  The
+    hull value at ``A`` is found by its dual, ``min_s max_j (C_j - s A_j) + s A``.
+    A test below the hull (beaten by a randomised mix of its neighbours) gets
+    the slope of the hull segment above it.  Returns the interval and whether
+    the chosen test lies below the hull.
+    """
     p = model.problem
     if model.expected_missed <= 0:
         return None
     _, opts = next(exact_batches(model, np.array([n])))
     c, valid = opts.chars, opts.valid[0]
     att, caught = c.attained[0][valid], c.caught[0][valid] / model.expected_missed
-    me_a, me_c = float(chosen.attained), float(chosen.caught) / model.expected_missed
-    odds = (1 - p.p_harm) / p.p_harm
+    a_star = float(chosen.attained)
+    c_star = float(chosen.caught) / model.expected_missed
+
+    def dual(u: FloatArray) -> FloatArray:
+        slope = np.exp(u)[..., None]
+        return np.asarray(np.max(caught - slope * att, axis=-1) + slope[..., 0] * a_star)
+
+    lo_u, hi_u = np.array([-40.0]), np.array([40.0])
+    u = minimise_on(lambda x: dual(x), lo_u, hi_u, points=801)
+    hull = float(dual(u)[0])
+    tol = 1e-12
+    left, right = att < a_star - tol, att > a_star + tol
     with np.errstate(divide="ignore", invalid="ignore"):
-        below = (att < me_a - 1e-15)
-        above = (att > me_a + 1e-15)
-        lo_r = (me_a - att[below]) / (me_c - caught[below])
-        hi_r = (att[above] - me_a) / (caught[above] - me_c)
-    lo_r = np.where((me_c - caught[below]) <= 0, np.inf, lo_r)
-    hi_r = np.where((caught[above] - me_c) <= 0, np.inf, hi_r)
-    lo = odds * float(lo_r.max()) if lo_r.size else 0.0
-    hi = odds * float(hi_r.min()) if hi_r.size else np.inf
-    return (lo, hi)
+        s_left = float(np.min((hull - caught[left]) / (a_star - att[left]))) if left.any() else np.inf
+        s_right = float(np.max((caught[right] - hull) / (att[right] - a_star))) if right.any() else 0.0
+    odds = (1 - p.p_harm) / p.p_harm
+    lo = odds / s_left if s_left > 0 else np.inf
+    hi = odds / s_right if s_right > 0 else np.inf
+    return (float(min(lo, hi)), float(max(lo, hi))), c_star < hull - 1e-9
+
+
+def ratio_point(rng: tuple[float, float]) -> float | None:
+    """One number for a range of implied ratios: its geometric middle, or its finite end."""
+    lo, hi = rng
+    if 0 < lo and np.isfinite(hi):
+        return float(np.sqrt(lo * hi))
+    return lo if lo > 0 else None
 
 
 def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float | None:
@@ -469,7 +501,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         return empty
     n = pick.n
     ch = choose_tests(model, policy, np.array([n]))
-    c = Characteristics(*(float(getattr(ch.chars, f)[0]) for f in ("nominal", "attained", "power", "design_power", "caught")))
+    c = ch.chars.at(0)
     exact = bool(ch.exact[0])
     code = int(ch.code[0])
     reason = pick.reason or (None if code == OK else _REASONS[code])
@@ -482,9 +514,13 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     beta = 1 - c.power
     neg = p.p_harm * beta + (1 - p.p_harm) * (1 - c.attained)
     pos = p.p_harm * c.power + (1 - p.p_harm) * c.attained
+    warns: list[str] = []
     if exact:
-        rng = _implied_ratio_exact(model, n, c)
-        point = float(np.sqrt(rng[0] * rng[1])) if rng and 0 < rng[0] <= rng[1] < np.inf else None
+        found = _implied_ratio_exact(model, n, c)
+        rng = None if found is None else found[0]
+        point = None
+        if rng is not None:
+            point = ratio_point(rng)
         test, method = "exact", d.exact_method
     else:
         rng = None
@@ -492,9 +528,6 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         test = "normal-cc" if model.setting.continuity else "normal"
         method = d.normal_method + (", continuity-corrected" if model.setting.continuity else "")
     net = best_none - loss
-    warns: list[str] = []
-    if exact and rng is not None and rng[0] > rng[1]:
-        warns.append("the chosen exact test is not loss-optimal for any cost ratio at this size")
     if feasible and net <= 0:
         rec = (f"No study is worth its cost under {policy.title.lower()}: {better} now "
                f"(expected loss {best_none:.4g}, against {loss:.4g} with the study).")
@@ -554,7 +587,7 @@ def compare(problem: Problem, policies: Sequence[Policy]) -> list[Decision]:
     for pol in policies:
         dec = best if pol == LOSS_OPTIMAL else decide_policy(model, pol)
         regret = None
-        if dec.expected_loss is not None and best.expected_loss is not None:
+        if dec.feasible and dec.expected_loss is not None and best.expected_loss is not None:
             regret = dec.expected_loss - best.expected_loss
         out.append(replace(dec, regret=regret))
     return out

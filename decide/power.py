@@ -16,8 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _checks
 from ._study import Setting, check_alpha_power, check_effect, check_setting
-from .designs import AUTO_EXACT_BELOW, StudyDesign
-from .designs import _exact, _normal
+from .designs import AUTO_EXACT_BELOW, StudyDesign, _exact, _normal
 from .designs._base import FloatArray
 from .errors import ApproximationWarning
 

@@ -76,7 +76,7 @@ class EffectPrior:
                 f"effect.median must lie between effect.low and effect.high, but got {med:g}",
                 ("effect.median", "effect.low", "effect.high"),
             )
-        return cls(med, (np.log(hi) - np.log(lo)) / (2 * z))
+        return cls(med, float((np.log(hi) - np.log(lo)) / (2 * z)))
 
     @property
     def is_point(self) -> bool:

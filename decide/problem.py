@@ -139,6 +139,12 @@ class Problem:
     ----------
     title : str
     study : Study
+
+    Notes
+    -----
+    The prior is checked up to its 1 - 1e-6 quantile against the design's
+    effect limit (an exposed risk below 1); quadrature nodes beyond the limit,
+    which carry less than 1e-6 of the mass, are clipped just below it.
     effect : EffectPrior
         The effect if the exposure is harmful.
     p_harm : float
@@ -165,6 +171,17 @@ class Problem:
                 f"(the exposed risk must stay below 1), but the effect reaches {top:g}",
                 ("effect",),
             )
+        cons, cost = self.constraints, self.consequences
+        if cons.budget is not None:
+            smallest = float(cons.min_n_per_group)
+            n_total = smallest + float(setting.design.comparison_size(np.asarray(smallest), setting.allocation))
+            need = cost.fixed + cost.per_subject * n_total
+            if need > cons.budget:
+                raise DecideError(
+                    f"constraints.budget must cover the fixed cost and the smallest study ({need:g}), "
+                    f"but got {cons.budget:g}",
+                    ("constraints.budget",),
+                )
         if self.effect.median <= 1:
             raise DecideError(
                 f"effect: the effect under harm must be above 1, but its median is {self.effect.median:g}",

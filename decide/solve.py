@@ -26,13 +26,11 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
-from numpy.typing import ArrayLike
 from scipy import special
 
 from . import _checks
 from ._study import Setting, check_alpha_power, check_effect, check_setting
-from .designs import AUTO_EXACT_BELOW, StudyDesign
-from .designs import _exact, _normal
+from .designs import AUTO_EXACT_BELOW, StudyDesign, _exact, _normal
 from .designs._base import FloatArray
 from .errors import DecideError, InfeasibleError
 from .power import choose_exact, evaluate, exact_power

@@ -42,3 +42,14 @@ def json_safe(value: Any) -> Any:
     if isinstance(value, list | tuple):
         return [json_safe(v) for v in value]
     return value
+
+
+def fmt_compact(value: Any, digits: int = 3) -> str:
+    """Short form for narrow columns: 3 significant digits, k/M/G for large values."""
+    if not isinstance(value, float) or math.isnan(value) or math.isinf(value):
+        return fmt(value)
+    size = abs(value)
+    for scale, suffix in ((1e9, "G"), (1e6, "M"), (1e4, "k")):
+        if size >= scale:
+            return f"{value / scale:.{digits}g}{suffix}"
+    return fmt(value, digits)
