@@ -3,23 +3,49 @@
 Decision support, not a decision: the value judgments belong to the
 responsible body; defer to applicable regulations, the competent authority
 and licensed professional judgment.
+
+The main entry points are re-exported here: :func:`power`, :func:`solve`,
+:func:`optimize`, :func:`compare`, :func:`decide_policy` and :func:`audit`.
+(The modules of the same names stay importable as ``decide.solve`` and so
+on with ``from decide.solve import ...``.)
 """
 
 from __future__ import annotations
 
+from .audit import Audit, audit
 from .designs import DESIGNS, StudyDesign, get_design
 from .errors import ApproximationWarning, DecideError, InfeasibleError
+from .optimize import Decision, compare, decide_policy, optimize
+from .policies import LOSS_OPTIMAL, Policy
 from .power import PowerResult, power
+from .prior import EffectPrior
+from .problem import Consequences, Constraints, Problem, Study
+from .solve import Solution, solve
 
 __version__ = "0.1.0"
 
 __all__ = [
     "DESIGNS",
+    "LOSS_OPTIMAL",
     "ApproximationWarning",
+    "Audit",
+    "Consequences",
+    "Constraints",
     "DecideError",
+    "Decision",
+    "EffectPrior",
     "InfeasibleError",
+    "Policy",
     "PowerResult",
+    "Problem",
+    "Solution",
     "StudyDesign",
+    "Study",
+    "audit",
+    "compare",
+    "decide_policy",
     "get_design",
+    "optimize",
     "power",
+    "solve",
 ]

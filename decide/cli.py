@@ -17,7 +17,8 @@ import typer
 from rich.console import Console
 from typer.core import TyperGroup
 
-from . import solve as _solve
+from .solve import MAX_N_PER_GROUP
+from .solve import solve as _solve
 from .audit import audit as _audit
 from .errors import DecideError, InfeasibleError
 from .optimize import compare as _compare
@@ -167,13 +168,13 @@ def solve_command(
     continuity: Annotated[
         bool, typer.Option("--continuity", help="Continuity-correct the normal two-proportion test.")
     ] = False,
-    max_n_per_group: Annotated[int, typer.Option(help="Cap on a solved size.")] = _solve.MAX_N_PER_GROUP,
+    max_n_per_group: Annotated[int, typer.Option(help="Cap on a solved size.")] = MAX_N_PER_GROUP,
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
 ) -> None:
     """Solve for whichever of alpha, power, size or effect is left out."""
     solution = run_api(
         "solve",
-        lambda: _solve.solve(
+        lambda: _solve(
             design.value,
             baseline=baseline,
             alpha=alpha,
