@@ -17,8 +17,6 @@ import typer
 from rich.console import Console
 from typer.core import TyperGroup
 
-from .solve import MAX_N_PER_GROUP
-from .solve import solve as _solve
 from .audit import audit as _audit
 from .errors import DecideError, InfeasibleError
 from .optimize import compare as _compare
@@ -34,6 +32,8 @@ from .scenario import (
     scenario_template,
     write_text_atomic,
 )
+from .solve import MAX_N_PER_GROUP
+from .solve import solve as _solve
 
 _OPTIONS = {
     "alpha": "--alpha",

@@ -40,7 +40,6 @@ from scipy import special
 from ._study import Setting
 from .designs import AUTO_EXACT_BELOW, _exact, _normal
 from .designs._base import FloatArray
-from .power import grid_cells
 from .problem import Problem
 
 #: Rows of the weight matrix: cost-weighted, prior-averaged, at the design effect.
@@ -227,21 +226,11 @@ def exact_batches(model: LossModel, n: FloatArray) -> Iterator[tuple[NDArray[np.
     d = s.design
     n = np.asarray(n, dtype=np.float64)
     ones = np.ones_like(n)
-    counts = d.cell_counts(n, s.baseline * ones, model.effects.max() * ones, s.allocation * ones, s.years * ones)
-    largest = np.maximum.reduce(list(np.broadcast_arrays(*counts.values())))
-    cells = grid_cells(largest, d.allocation_name is not None) * (model.effects.size + 4)
-    order = np.argsort(cells, kind="stable")
-    start = 0
-    while start < order.size:
-        span = np.arange(1, order.size - start + 1) * cells[order[start:]]
-        stop = start + max(1, int(np.searchsorted(span, _exact.CELL_BUDGET, side="right")))
-        idx = order[start:stop]
-        k = idx.size
-        effects = np.broadcast_to(model.effects, (k, model.effects.size))
-        cm = d.count_model(n[idx], s.baseline * ones[idx], effects, s.allocation * ones[idx], s.years * ones[idx])
-        path = _exact.rejection_path(_exact.build_grid(cm, s.sides), model.weights)
+    effects = np.broadcast_to(model.effects, (n.size, model.effects.size))
+    full = d.count_model(n, s.baseline * ones, effects, s.allocation * ones, s.years * ones)
+    for idx in _exact.batches(full):
+        path = _exact.rejection_path(_exact.build_grid(_exact.take_rows(full, idx), s.sides), model.weights)
         yield idx, _options(path)
-        start = stop
 
 
 def _options(path: _exact.RejectionPath) -> ExactOptions:

@@ -230,14 +230,14 @@ def _refine_min(model: LossModel, policy: Policy, grid: FloatArray, loss: FloatA
     a, b = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
     best, best_loss = grid[k], loss[k]
     while b - a > 2:
-        cand = np.unique(np.round(np.linspace(a, b, 41)))
+        cand = np.unique(np.round(np.linspace(a, b, 25)))
         ch = choose_tests(model, policy, cand)
         lc = _total_loss(model, ch)
         j = int(np.argmin(lc))
         if lc[j] < best_loss:
             best, best_loss = cand[j], lc[j]
         a, b = cand[max(j - 1, 0)], cand[min(j + 1, cand.size - 1)]
-    window = np.arange(max(grid[0], best - 32), min(grid[-1], best + 32) + 1)
+    window = np.arange(max(grid[0], best - 16), min(grid[-1], best + 16) + 1)
     ch = choose_tests(model, policy, window)
     lw = _total_loss(model, ch)
     j = int(np.argmin(lw))
@@ -246,6 +246,27 @@ def _refine_min(model: LossModel, policy: Policy, grid: FloatArray, loss: FloatA
 
 def _total_loss(model: LossModel, ch: Choice) -> FloatArray:
     return np.where(ch.meets_rules, ch.error_loss + model.study_cost(ch.n), np.inf)
+
+
+def _coarse_losses(model: LossModel, policy: Policy, grid: FloatArray) -> tuple[FloatArray, FloatArray]:
+    """Losses on an increasing grid of sizes, skipping sizes that cannot win.
+
+    The loss is at least the study cost, so once a size's study cost exceeds
+    the best loss found so far, it and every larger size are left out.
+    """
+    losses: list[FloatArray] = []
+    best = np.inf
+    start = 0
+    while start < grid.size:
+        part = grid[start : start + 16]
+        part = part[model.study_cost(part) < best]
+        if part.size == 0:
+            break
+        losses.append(_total_loss(model, choose_tests(model, policy, part)))
+        best = min(best, float(losses[-1].min()))
+        start += 16
+    kept = np.concatenate(losses) if losses else np.zeros(0)
+    return grid[: kept.size], kept
 
 
 def _first_meeting(model: LossModel, policy: Policy, lo: float, hi: float) -> float | None:
@@ -310,8 +331,7 @@ def _pick_size(model: LossModel, policy: Policy) -> _Pick:
         bound = (model.flag_now + model.clear_now + float(model.study_cost(np.asarray(lo)))) / per + 2
         hi = min(hi, float(np.ceil(bound)))
     hi = max(hi, lo)
-    grid = np.unique(np.append(_geometric(lo, hi, 97), hi))
-    loss = _total_loss(model, choose_tests(model, policy, grid))
+    grid, loss = _coarse_losses(model, policy, np.unique(np.append(_geometric(lo, hi, 65), hi)))
     if not np.isfinite(loss).any():
         return _Pick(None, "no size within the constraints meets the policy")
     return _Pick(_refine_min(model, policy, grid, loss), None)
@@ -413,7 +433,7 @@ def _implied_ratio_exact(
         return np.asarray(np.max(caught - slope * att, axis=-1) + slope[..., 0] * a_star)
 
     lo_u, hi_u = np.array([-40.0]), np.array([40.0])
-    u = minimise_on(lambda x: dual(x), lo_u, hi_u, points=801)
+    u = minimise_on(dual, lo_u, hi_u, points=33)  # the dual is convex in the slope
     hull = float(dual(u)[0])
     tol = 1e-12
     left, right = att < a_star - tol, att > a_star + tol

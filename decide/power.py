@@ -101,11 +101,6 @@ def normal_power(
     return _normal.power(m, n, alpha, sides), _normal.power(m0, n, alpha, sides)
 
 
-def grid_cells(largest_mean: FloatArray, two_counts: bool) -> NDArray[np.int64]:
-    width = 2 * (9 * np.sqrt(largest_mean) + 20)
-    return np.asarray(np.ceil(width * width * 3 if two_counts else width), dtype=np.int64)
-
-
 def exact_power(
     design: StudyDesign,
     alpha: FloatArray,
@@ -126,22 +121,14 @@ def exact_power(
     uniq, back = np.unique(keys, axis=1, return_inverse=True)
     back = back.ravel()
     nn, e, b, r, y = uniq
-    counts = design.cell_counts(nn, b, e, r, y)
-    largest = np.maximum.reduce(list(np.broadcast_arrays(*counts.values())))
-    cells = grid_cells(largest, design.allocation_name is not None)
-    order = np.argsort(cells, kind="stable")
+    full = design.count_model(nn, b, e[:, None], r, y)
     by_key = np.argsort(back, kind="stable")
     first = np.searchsorted(back[by_key], np.arange(nn.size + 1))
     alpha = np.broadcast_to(alpha, back.shape)
     out_power = np.empty(back.shape)
     out_size = np.empty(back.shape)
-    start = 0
-    while start < order.size:
-        span = np.arange(1, order.size - start + 1) * cells[order[start:]]
-        stop = start + max(1, int(np.searchsorted(span, _exact.CELL_BUDGET, side="right")))
-        idx = order[start:stop]
-        model = design.count_model(nn[idx], b[idx], e[idx][:, None], r[idx], y[idx])
-        path = _exact.rejection_path(_exact.build_grid(model, sides), np.ones((1, 1)))
+    for idx in _exact.batches(full):
+        path = _exact.rejection_path(_exact.build_grid(_exact.take_rows(full, idx), sides), np.ones((1, 1)))
         lengths = first[idx + 1] - first[idx]
         local = np.repeat(np.arange(idx.size), lengths)
         offset = np.arange(local.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
@@ -154,7 +141,6 @@ def exact_power(
             at = np.maximum(k - 1, 0)
             out_power[els] = np.where(hit, path.weighted[rows, 0, at], 0.0)
             out_size[els] = np.where(hit, path.null[rows, at], 0.0)
-        start = stop
     return out_power, out_size
 
 

@@ -108,14 +108,14 @@ def _row_tails(
     """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
 
     Each row holds the null distribution of ``x1`` given ``t`` over the span
-    of its mass: 14 standard deviations and 14 counts either side of the mean,
-    where the tails beyond hold less than about 1e-25.  The row is built from
+    of its mass: 11 standard deviations and 11 counts either side of the mean,
+    where the tails beyond hold less than about 1e-20.  The row is built from
     the exact ratio of successive probabilities and normalised over that
     span, which avoids the cancellation of log-factorials of large groups.
     Grid points below the span get upper p-value 1 (lower 0), points above it
-    upper p-value 0 (lower 1): p-values under about 1e-25 are reported as 0.
+    upper p-value 0 (lower 1): p-values under about 1e-20 are reported as 0.
     """
-    reach = 14.0
+    reach = 11.0
     lo1 = x1[:, 0]
     tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
     t, tvalid = _axis(tmin, tmax)  # (B, T)
@@ -277,6 +277,61 @@ def rejection_path(grid: CountGrid, weights: FloatArray) -> RejectionPath:
     nxt = np.concatenate([p_sorted[:, 1:], np.full((nb, 1), np.inf)], axis=1)
     last = (nxt > p_sorted * (1 + REL_TOL)) & np.isfinite(p_sorted)
     return RejectionPath(p_sorted, np.minimum(null_c, 1.0), alt_c, last)
+
+
+def _take(x: FloatArray | None, idx: NDArray[np.int64]) -> FloatArray | None:
+    return None if x is None else x[idx]
+
+
+def _take_marginal(m: Marginal, idx: NDArray[np.int64]) -> Marginal:
+    return Marginal(m.family, m.trials[idx], m.parameter[idx])
+
+
+def take_rows(model: CountModel, idx: NDArray[np.int64]) -> CountModel:
+    """The studies ``idx`` of a batched model."""
+    return CountModel(
+        _take_marginal(model.exposed_null, idx),
+        _take_marginal(model.exposed_alt, idx),
+        None if model.other is None else _take_marginal(model.other, idx),
+        model.conditional,
+        _take(model.n_exposed, idx),
+        _take(model.n_other, idx),
+        _take(model.share_exposed, idx),
+        _take(model.reference_mean, idx),
+    )
+
+
+def grid_cells(model: CountModel) -> NDArray[np.int64]:
+    """Cells each study's grid will hold, from its count windows (cheap to compute).
+
+    Counts the ``(x1, x0)`` grid once per effect plus the conditional rows
+    (about as many again) and the working copies made along the way.
+    """
+    lo_null, hi_null = _window(model.exposed_null)
+    lo_alt, hi_alt = _window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    if model.other is None:
+        w0 = np.ones_like(w1)
+    else:
+        lo0, hi0 = _window(model.other)
+        w0 = hi0 - lo0 + 1
+    effects = model.exposed_alt.parameter.shape[-1] if model.exposed_alt.parameter.ndim == 2 else 1
+    return np.asarray(w1 * w0 * (8 + effects) + 64, dtype=np.int64)
+
+
+def batches(model: CountModel) -> Iterator[NDArray[np.int64]]:
+    """Index sets of studies, grouped by grid size, whose grids fit :data:`CELL_BUDGET` together."""
+    cells = grid_cells(model)
+    order = np.argsort(cells, kind="stable")
+    start = 0
+    while start < order.size:
+        rest = cells[order[start:]]
+        span = np.arange(1, rest.size + 1) * rest
+        fits = int(np.searchsorted(span, CELL_BUDGET, side="right"))
+        alike = int(np.searchsorted(rest, 1.5 * rest[0], side="right"))  # little padding
+        stop = start + max(1, min(fits, alike))
+        yield order[start:stop]
+        start = stop
 
 
 def chunks(rows: int, cells_per_row: int) -> Iterator[slice]:
