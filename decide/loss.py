@@ -238,7 +238,7 @@ def _options(path: _exact.RejectionPath) -> ExactOptions:
         return np.concatenate([np.zeros_like(x[..., :1]), x], axis=-1)
 
     nominal = lead(path.p_value)
-    valid = lead(path.last.astype(np.float64)).astype(bool) & (nominal > 0) & (nominal < 1)
+    valid = lead(path.last.astype(np.float64)).astype(bool) & (nominal >= _exact.ALPHA_FLOOR) & (nominal < 1)
     valid[:, 0] = True
     w = lead(path.weighted)
     chars = Characteristics(

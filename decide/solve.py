@@ -524,7 +524,14 @@ def _solve_alpha(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any,
             f"under the exact test"
         )
     a = float(path.p_value[0, int(reach.argmax())])
-    return _finish(setting, "alpha", a, n, effect, True, target)
+    notes: tuple[str, ...] = ()
+    if a < _exact.ALPHA_FLOOR:
+        a = _exact.ALPHA_FLOOR
+        notes = (
+            f"power {target:g} is reached even at alpha {a:g}, the smallest level the exact tests "
+            "resolve; that level is reported",
+        )
+    return _finish(setting, "alpha", a, n, effect, True, target, extra=notes)
 
 
 def _solve_effect(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, cap: int) -> Solution:

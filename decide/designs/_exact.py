@@ -42,6 +42,10 @@ from ._base import CountModel, FloatArray, Marginal
 TAIL = 1e-13
 #: Relative tolerance of the comparison ``p <= alpha`` (guards float ties).
 REL_TOL = 1e-10
+#: The smallest significance level exact tests resolve: conditional p-values
+#: are exact above about 1e-20 and only known to be tiny below, so levels
+#: below this floor are not offered.
+ALPHA_FLOOR = 1e-15
 #: Rough cap on grid cells held in memory at once.
 CELL_BUDGET = 4_000_000
 
