@@ -133,12 +133,23 @@ class Characteristics:
     design_power: FloatArray
     caught: FloatArray
 
-    def at(self, i: int) -> Characteristics:
-        """The characteristics of the ``i``-th test, as scalars."""
-        return Characteristics(*(float(np.ravel(getattr(self, f))[i]) for f in _FIELDS))  # type: ignore[arg-type]
+    def at(self, i: int) -> OperatingPoint:
+        """The characteristics of the ``i``-th test, as numbers."""
+        return OperatingPoint(*(float(np.ravel(getattr(self, f))[i]) for f in _FIELDS))
 
 
 _FIELDS = ("nominal", "attained", "power", "design_power", "caught")
+
+
+@dataclass(frozen=True)
+class OperatingPoint:
+    """The characteristics of one test (see :class:`Characteristics`)."""
+
+    nominal: float
+    attained: float
+    power: float
+    design_power: float
+    caught: float
 
 
 # --------------------------------------------------------------------------
@@ -200,7 +211,7 @@ def minimise_on(
     best = (a + b) / 2
     # keep the grid point if polishing did not beat it (flat or kinked losses)
     cand = np.stack([best, x[rows, k]], axis=1)
-    return cand[rows, np.argmin(f(cand), axis=1)]
+    return np.asarray(cand[rows, np.argmin(f(cand), axis=1)], dtype=np.float64)
 
 
 # --------------------------------------------------------------------------

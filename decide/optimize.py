@@ -40,6 +40,7 @@ from .loss import (
     Z_RANGE,
     Characteristics,
     LossModel,
+    OperatingPoint,
     bisect_decreasing,
     build_model,
     exact_batches,
@@ -189,10 +190,10 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
     if exact.any():
         where = np.flatnonzero(exact)
         for idx, opts in exact_batches(model, n[where]):
-            k, f = _choose_exact_batch(model, policy, opts)
-            rows = np.arange(k.size)
+            col, f = _choose_exact_batch(model, policy, opts)
+            rows = np.arange(col.size)
             for name in fields:
-                fields[name][where[idx]] = getattr(opts.chars, name)[rows, k]
+                fields[name][where[idx]] = getattr(opts.chars, name)[rows, col]
             if policy.alpha_rule == "fixed":
                 # the test at level alpha is that of the largest breakpoint below it
                 fields["nominal"][where[idx]] = policy.alpha
@@ -227,16 +228,16 @@ def _geometric(lo: float, hi: float, k: int) -> FloatArray:
 
 def _refine_min(model: LossModel, policy: Policy, grid: FloatArray, loss: FloatArray) -> float:
     k = int(np.argmin(loss))
-    a, b = grid[max(k - 1, 0)], grid[min(k + 1, grid.size - 1)]
-    best, best_loss = grid[k], loss[k]
+    a, b = float(grid[max(k - 1, 0)]), float(grid[min(k + 1, grid.size - 1)])
+    best, best_loss = float(grid[k]), float(loss[k])
     while b - a > 2:
         cand = np.unique(np.round(np.linspace(a, b, 25)))
         ch = choose_tests(model, policy, cand)
         lc = _total_loss(model, ch)
         j = int(np.argmin(lc))
         if lc[j] < best_loss:
-            best, best_loss = cand[j], lc[j]
-        a, b = cand[max(j - 1, 0)], cand[min(j + 1, cand.size - 1)]
+            best, best_loss = float(cand[j]), float(lc[j])
+        a, b = float(cand[max(j - 1, 0)]), float(cand[min(j + 1, cand.size - 1)])
     window = np.arange(max(grid[0], best - 16), min(grid[-1], best + 16) + 1)
     ch = choose_tests(model, policy, window)
     lw = _total_loss(model, ch)
@@ -405,7 +406,7 @@ def _implied_ratio_normal(model: LossModel, n: float, z: float) -> float | None:
 
 
 def _implied_ratio_exact(
-    model: LossModel, n: float, chosen: Characteristics
+    model: LossModel, n: float, chosen: OperatingPoint
 ) -> tuple[tuple[float, float], bool] | None:
     """Cost ratios at which a loss-minimiser would pick a test of this attained size.
 

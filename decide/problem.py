@@ -87,7 +87,7 @@ class Consequences:
                 derived,
                 strict=True,
             ):
-                positive(f"consequences.{name}", v)
+                positive(f"consequences.{name}", float(v))  # type: ignore[arg-type]
 
     @property
     def is_derived(self) -> bool:

@@ -495,7 +495,7 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
         raise InfeasibleError(
             f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:,}"
         )
-    notes = ()
+    notes: tuple[str, ...] = ()
     if stable > first:
         notes = (
             f"exact power saw-tooths in size: {first:,} is the smallest size reaching power "

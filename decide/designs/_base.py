@@ -155,10 +155,10 @@ class StudyDesign(ABC):
         """The smallest expected cell count under either hypothesis."""
         alt = self.cell_counts(n, baseline, effect, allocation, years)
         null = self.cell_counts(n, baseline, np.ones_like(effect), allocation, years)
-        return np.minimum(
+        return np.asarray(np.minimum(
             np.minimum.reduce(list(np.broadcast_arrays(*alt.values()))),
             np.minimum.reduce(list(np.broadcast_arrays(*null.values()))),
-        )
+        ), dtype=np.float64)
 
     @abstractmethod
     def count_model(
