@@ -218,7 +218,9 @@ def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
     if as_json:
         emit_json({"scenario": loaded.title, **decision.to_dict()})
     else:
-        Console().print(render.decision_table(decision, loaded.title, loaded.currency or ""))
+        con = Console()
+        con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
+        con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
         raise typer.Exit(1)
 
@@ -254,11 +256,12 @@ def compare_command(
     elif as_csv:
         text = tables.to_csv(decisions)
     elif as_markdown:
-        text = tables.to_markdown(decisions, loaded.title)
+        text = tables.to_markdown(decisions, loaded.title, loaded.problem.describe())
     else:
         if output is not None:
             _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
         con = Console()
+        con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.compare_table(decisions, loaded.title, loaded.currency or "", con.width))
         return
     run_api("compare", lambda: _emit_text(text, output, force))

@@ -187,3 +187,48 @@ class Problem:
                 f"effect: the effect under harm must be above 1, but its median is {self.effect.median:g}",
                 ("effect",),
             )
+
+    def describe(self) -> list[tuple[str, str]]:
+        """The inputs in words, for showing a scenario back to its readers."""
+        setting = self.study.setting()
+        d = setting.design
+        e = self.effect
+        if e.is_point:
+            effect = f"{e.median:g}"
+        else:
+            effect = (f"lognormal, median {e.median:.3g}, 90% between {e.quantile(0.05):.3g} "
+                      f"and {e.quantile(0.95):.3g}")
+        c = self.consequences
+        if c.missed_hazard is not None:
+            missed = f"{c.missed_hazard:g}"
+        else:
+            missed = (f"{c.exposed_population:g} exposed x {c.background_rate:g} cases per person-year x "
+                      f"(effect - 1) x {c.cost_per_case:g} per case x {c.horizon_years:g} years")
+        rows = [
+            ("design", d.title),
+            (d.baseline_name, f"{self.study.baseline:g}"),
+            (f"{d.effect_name} if harmful", effect),
+            ("prior probability of harm", f"{self.p_harm:g}"),
+            ("cost of a missed hazard", missed),
+            ("cost of a false alarm", f"{c.false_alarm:g}"),
+            ("study cost", f"{c.per_subject:g} per subject + {c.fixed:g} fixed"),
+        ]
+        if d.allocation_name is not None:
+            rows.insert(2, (d.allocation_name, f"{self.study.allocation:g}"))
+        if d.uses_years:
+            rows.insert(2, ("follow-up years per subject", f"{self.study.years:g}"))
+        k = self.constraints
+        limits = []
+        if k.max_n_per_group is not None:
+            limits.append(f"at most {k.max_n_per_group:,} {d.size_name}")
+        if k.min_n_per_group > 1:
+            limits.append(f"at least {k.min_n_per_group:,} {d.size_name}")
+        if k.budget is not None:
+            limits.append(f"budget {k.budget:g}")
+        if k.max_alpha < 1:
+            limits.append(f"alpha at most {k.max_alpha:g}")
+        if k.min_power > 0:
+            limits.append(f"power at least {k.min_power:g}")
+        rows.append(("constraints", "; ".join(limits) or "none"))
+        return rows
+

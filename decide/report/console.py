@@ -60,6 +60,16 @@ def _money(value: float | None, unit: str) -> str:
     return "-" if value is None else f"{fmt(value)} {unit}".strip()
 
 
+def inputs_table(rows: list[tuple[str, str]], unit: str) -> Table:
+    """The scenario's inputs, as stated."""
+    t = Table(title="Inputs" + (f" (costs in {unit})" if unit else ""), show_header=False, box=None)
+    t.add_column("input", style="dim")
+    t.add_column("value")
+    for label, value in rows:
+        t.add_row(label, value)
+    return t
+
+
 def decision_table(d: Decision, title: str, unit: str) -> Group:
     """One policy's decision, its loss and what it implies."""
     design = get_design(d.design)

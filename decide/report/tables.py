@@ -32,12 +32,15 @@ def to_csv(decisions: list[Decision]) -> str:
     return buf.getvalue()
 
 
-def to_markdown(decisions: list[Decision], title: str) -> str:
-    """The comparison as a Markdown table a board can read, with the caution."""
+def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, str]] | None = None) -> str:
+    """The comparison as a Markdown table a board can read, with the inputs and the caution."""
     head = ["policy", "feasible", "alpha", "attained alpha", "beta", "power (design)",
-            "per group", "in all", "expected loss", "regret", "P(harm | negative)",
+            "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
             "detects (80%)", "implied cost ratio"]
-    lines = [f"# {title}", "", "| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
+    lines = [f"# {title}", ""]
+    if inputs:
+        lines += ["## Inputs", ""] + [f"- {label}: {value}" for label, value in inputs] + ["", "## Policies", ""]
+    lines += ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
     for d in decisions:
         cells = [d.title, "yes" if d.feasible else "no", fmt(d.alpha, 3), fmt(d.attained_alpha, 3),
                  fmt(d.beta, 3), fmt(d.power_at_design_effect, 3), fmt(d.n_per_group), fmt(d.n_total),
