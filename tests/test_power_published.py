@@ -30,7 +30,9 @@ def _p1_from_or(odds_ratio: float, p0: float) -> float:
     ("p0", "p1", "table_n"),
     [
         # Fleiss, Statistical Methods for Rates and Proportions, 2nd ed. (1981),
-        # Table A.3 / Fleiss, Levin & Paik 3rd ed. (2003), Table A.4: from memory.
+        # and Fleiss, Levin & Paik, 3rd ed. (2003): the appendix table of sizes
+        # per group for two proportions, continuity-corrected; from memory
+        # (REFERENCES.md), table number not re-read.
         (0.05, 0.10, 474),
         (0.10, 0.20, 219),
     ],
