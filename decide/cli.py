@@ -57,6 +57,7 @@ class _OneLineErrors(TyperGroup):
 
     def main(self, *args: Any, **kwargs: Any) -> Any:
         kwargs["standalone_mode"] = False
+        kwargs["prog_name"] = "decide"
         try:
             code = super().main(*args, **kwargs)
         except typer.Abort:

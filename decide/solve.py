@@ -225,7 +225,15 @@ def _last_failure(curve: Callable[[FloatArray], FloatArray], below: int, above: 
 def _exact_size_scan(
     setting: Setting, alpha: float, target: float, effect: float, guess: float, cap: int
 ) -> tuple[int, int, int]:
-    """Smallest and stable sizes by a batched scan of exact power."""
+    """Smallest and stable sizes by a batched scan of exact power.
+
+    Where the range to check is small (see :data:`EVERY_SIZE`) every whole
+    size is evaluated; otherwise a geometric grid is refined to the whole
+    subject around the first crossing and the last dip it finds, and the 256
+    sizes either side are checked one by one.  A dip narrower than the grid
+    spacing far from both can then go unseen; two-group designs saw-tooth
+    far less than one-group ones, which the larger limit covers.
+    """
     curve = _exact_curve(setting, alpha, effect)
     hi = int(min(cap, max(16, np.ceil(2 * guess))))
     while curve(np.array([float(hi)]))[0] < target:
@@ -236,6 +244,8 @@ def _exact_size_scan(
             )
         hi = min(cap, hi * 2)
     checked = min(cap, 2 * hi)
+    if checked <= _every_size_limit(setting):
+        return _every_size(curve, target, checked)
     grid = np.unique(np.concatenate([np.geomspace(1, hi, 97).round(), np.linspace(hi, checked, 33).round()]))
     pw = curve(grid)
     first = int(np.argmax(pw >= target))
@@ -257,6 +267,24 @@ def _exact_size_scan(
         k = int(misses[-1])
         n_stable = _last_failure(curve, int(grid[k]), int(grid[k + 1]), target)
     return n_first, max(n_stable, n_first), checked
+
+
+#: Up to this many whole sizes, an exact size solve evaluates every one of them.
+EVERY_SIZE = {"one-group": 200_000, "two-group": 3_000}
+
+
+def _every_size_limit(setting: Setting) -> int:
+    return EVERY_SIZE["one-group" if setting.design.allocation_name is None else "two-group"]
+
+
+def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checked: int) -> tuple[int, int, int]:
+    """First and stable sizes from the exact power at every whole size up to ``checked``."""
+    sizes = np.arange(1, checked + 1, dtype=np.float64)
+    ok = np.concatenate([curve(part) for part in np.array_split(sizes, max(1, sizes.size // 20_000))]) >= target
+    n_first = int(sizes[int(np.argmax(ok))])
+    misses = np.flatnonzero(~ok)
+    n_stable = int(sizes[misses[-1]]) + 1 if misses.size else n_first
+    return n_first, max(n_first, n_stable), checked
 
 
 def _reference_rate_sizes(
