@@ -312,14 +312,17 @@ def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -
     from rich.table import Table
 
     t = Table(title="Policies")
-    for col in ("name", "title", "alpha rule", "power", "size rule", "summary"):
+    for col in ("name", "alpha rule", "power at the design effect", "size rule"):
         t.add_column(col)
     for p in known.values():
-        power = "-" if p.power is None else f"{p.power:g}" + (" (beta <= alpha)" if p.beta_at_most_alpha else "")
+        power = "-" if p.power is None else f"{p.power:g}" + (", beta <= alpha" if p.beta_at_most_alpha else "")
         rule = p.alpha_rule + (f" {p.alpha:g}" if p.alpha is not None else "")
         rule += f" {p.posterior_threshold:g}" if p.posterior_threshold is not None else ""
-        t.add_row(p.name, p.title, rule, power, p.size_rule, " ".join(p.summary.split()))
-    Console().print(t)
+        t.add_row(p.name, rule, power, p.size_rule)
+    con = Console()
+    con.print(t)
+    for p in known.values():
+        con.print(f"[bold]{p.title}[/bold] ({p.name}): {' '.join(p.summary.split())}", highlight=False)
 
 
 @app.command("schema")
