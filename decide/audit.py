@@ -25,12 +25,13 @@ References
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 
 from . import _checks
+from ._results import PlainData
 from .errors import DecideError
 from .loss import build_model, normal_at
 from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
@@ -44,7 +45,7 @@ DETECTION_LEVELS = (0.5, 0.8, 0.95)
 
 
 @dataclass(frozen=True)
-class Audit:
+class Audit(PlainData):
     """The value judgments a protocol's alpha and size imply.
 
     ``implied_missed_hazard`` and ``implied_false_alarm`` are in the unit of
@@ -76,12 +77,6 @@ class Audit:
     rules_out: str
     warnings: tuple[str, ...] = field(default=())
 
-    def to_dict(self) -> dict[str, Any]:
-        out = asdict(self)
-        out["warnings"] = list(self.warnings)
-        if self.implied_cost_ratio_range is not None:
-            out["implied_cost_ratio_range"] = list(self.implied_cost_ratio_range)
-        return out
 
 
 def audit(

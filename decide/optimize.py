@@ -27,12 +27,13 @@ References
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
+from ._results import PlainData
 from .designs import _exact, _normal
 from .designs._base import FloatArray
 from .errors import DecideError
@@ -343,7 +344,7 @@ def _pick_size(model: LossModel, policy: Policy) -> _Pick:
 
 
 @dataclass(frozen=True)
-class Decision:
+class Decision(PlainData):
     """What a policy chooses for a problem, and what that choice implies.
 
     Costs are in the scenario's unit.  ``beta`` and ``power`` are averaged
@@ -384,12 +385,6 @@ class Decision:
     regret: float | None = None
     warnings: tuple[str, ...] = field(default=())
 
-    def to_dict(self) -> dict[str, Any]:
-        out = asdict(self)
-        out["warnings"] = list(self.warnings)
-        if self.implied_cost_ratio_range is not None:
-            out["implied_cost_ratio_range"] = list(self.implied_cost_ratio_range)
-        return out
 
 
 def _implied_ratio_normal(model: LossModel, n: float, z: float) -> float | None:

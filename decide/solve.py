@@ -22,13 +22,14 @@ References
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from scipy import special
 
 from . import _checks
+from ._results import PlainData
 from ._study import Setting, check_alpha_power, check_effect, check_setting
 from .designs import AUTO_EXACT_BELOW, StudyDesign, _exact, _normal
 from .designs._base import FloatArray
@@ -43,7 +44,7 @@ MAX_EFFECT = 1e4
 
 
 @dataclass(frozen=True)
-class Solution:
+class Solution(PlainData):
     """One solved study: the four quantities, the test and how it was chosen.
 
     ``alpha`` is the nominal level; ``attained_alpha`` the probability of a
@@ -77,11 +78,6 @@ class Solution:
     n_checked: int | None = None
     warnings: tuple[str, ...] = field(default=())
 
-    def to_dict(self) -> dict[str, Any]:
-        """Plain data for JSON output."""
-        out = asdict(self)
-        out["warnings"] = list(self.warnings)
-        return out
 
 
 # --------------------------------------------------------------------------
