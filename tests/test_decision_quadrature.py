@@ -1,0 +1,295 @@
+"""The effect prior and the expected loss over it, against scipy.
+
+* ``EffectPrior.from_interval``: ``log_sd = (ln high - ln low) / (2 z)``,
+  ``z = Phi^-1((1 + level) / 2)`` (identity: the central interval of a
+  lognormal), and its quantiles and masses against ``scipy.stats.lognorm``
+  (scipy 1.17; shape ``s = log_sd``, ``scale = median``).
+* The Gauss-Hermite nodes against lognormal moments,
+  ``E[theta^j] = median^j exp(j^2 s^2 / 2)`` (identity).
+* The expected loss of a decision against ``scipy.integrate.quad`` over the
+  lognormal density of ``(1 - P(theta)) M(theta)``, the power ``P`` taken
+  from ``decide.power.power`` (normal tests) or ``scipy.stats.poisson``
+  (the exact SIR test), the loss assembled in the test from its definition:
+  ``p E[(1 - P) M] + (1 - p) alpha_attained F + fixed + per_subject n_total``.
+* With the missed cost derived from excess cases, ``M = c (theta - 1)^+``,
+  and ``E[(theta - 1)^+] = m e^{s^2/2} Phi((ln m + s^2)/s) - Phi(ln m / s)``
+  for a lognormal with median ``m`` (identity; the partial expectation of a
+  lognormal, as in the Black-Scholes call price).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import integrate, stats
+
+from decide.designs import get_design
+from decide.errors import DecideError
+from decide.optimize import Decision, optimize
+from decide.power import power
+from decide.prior import EffectPrior
+from decide.problem import Consequences, Constraints, Problem, Study
+from decide.scenario import load_scenario
+
+REPO = Path(__file__).resolve().parents[1]
+DERIVED = {"exposed_population": 1e4, "background_rate": 1e-3, "cost_per_case": 1e5, "horizon_years": 10.0}
+CONSTANT = {"missed_hazard": 1e7}
+
+
+# --------------------------------------------------------------------------
+# the prior itself
+
+
+@pytest.mark.parametrize(
+    ("low", "high", "level"), [(1.5, 6.0, 0.9), (1.1, 3.0, 0.5), (2.0, 2.5, 0.99), (0.8, 4.0, 0.8)]
+)
+def test_from_interval_matches_scipy_lognormal(low: float, high: float, level: float) -> None:
+    prior = EffectPrior.from_interval(low, high, level)
+    z = stats.norm.ppf((1 + level) / 2)
+    assert prior.log_sd == pytest.approx((np.log(high) - np.log(low)) / (2 * z), rel=1e-12)
+    assert prior.median == pytest.approx(np.sqrt(low * high), rel=1e-12)
+    ref = stats.lognorm(s=prior.log_sd, scale=prior.median)
+    # the stated interval is the central `level` interval
+    assert ref.ppf((1 - level) / 2) == pytest.approx(low, rel=1e-10)
+    assert ref.ppf((1 + level) / 2) == pytest.approx(high, rel=1e-10)
+    for q in (1e-6, 0.01, 0.3, 0.5, 0.77, 0.999):
+        assert prior.quantile(q) == pytest.approx(ref.ppf(q), rel=1e-10)
+    for x in (0.5, 1.0, low, prior.median, high, 10.0):
+        assert prior.mass_below(x) == pytest.approx(ref.cdf(x), rel=1e-10, abs=1e-300)
+
+
+def test_from_interval_with_a_median_off_centre() -> None:
+    # A median away from the geometric mean: log_sd still spans the interval by 2 z.
+    prior = EffectPrior.from_interval(1.2, 5.0, 0.9, median=3.0)
+    z = stats.norm.ppf(0.95)
+    assert prior.median == 3.0
+    assert prior.log_sd == pytest.approx(np.log(5.0 / 1.2) / (2 * z), rel=1e-12)
+    assert prior.quantile(0.5) == pytest.approx(3.0, rel=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("low", "high", "level", "median", "key"),
+    [
+        (3.0, 2.0, 0.9, None, "effect.high"),
+        (1.5, 4.0, 1.0, None, "effect.level"),
+        (1.5, 4.0, 0.9, 5.0, "effect.median"),
+        (0.0, 4.0, 0.9, None, "effect.low"),
+    ],
+)
+def test_from_interval_rejects_bad_intervals(
+    low: float, high: float, level: float, median: float | None, key: str
+) -> None:
+    with pytest.raises(DecideError, match=key.replace(".", r"\.")):
+        EffectPrior.from_interval(low, high, level, median)
+
+
+@pytest.mark.parametrize("log_sd", [0.05, 0.3, 0.7])
+def test_nodes_reproduce_lognormal_moments(log_sd: float) -> None:
+    prior = EffectPrior(2.5, log_sd)
+    x, w = prior.nodes()
+    assert w.sum() == pytest.approx(1.0, rel=1e-14)
+    # nodes of weight below 1e-14 are dropped (decide.prior.NODE_WEIGHT_FLOOR), which
+    # costs the third moment of the widest prior about 6e-9
+    for j in (1, 2, 3):
+        exact = 2.5**j * np.exp(j * j * log_sd**2 / 2)
+        assert float(np.sum(w * x**j)) == pytest.approx(exact, rel=1e-8)
+
+
+def test_point_prior_is_one_node() -> None:
+    x, w = EffectPrior.point(2.0).nodes()
+    assert x.tolist() == [2.0] and w.tolist() == [1.0]
+
+
+# --------------------------------------------------------------------------
+# expected loss against quad
+
+
+def fixed_size_problem(
+    design: str,
+    baseline: float,
+    allocation: float,
+    years: float,
+    prior: EffectPrior,
+    missed: dict[str, float],
+    test: str,
+    n: int,
+) -> Problem:
+    d = get_design(design)
+    study = Study(
+        design,
+        baseline,
+        allocation=allocation if d.allocation_name else 1.0,
+        years=years if d.uses_years else 1.0,
+        test=test,
+    )
+    return Problem(
+        study,
+        prior,
+        0.2,
+        Consequences(false_alarm=2e6, per_subject=10.0, fixed=5e3, **missed),
+        Constraints(min_n_per_group=n, max_n_per_group=n),
+    )
+
+
+def quad_loss(problem: Problem, dec: Decision) -> tuple[float, float]:
+    """The missed-hazard part and the whole expected loss, integrated by scipy.integrate.quad."""
+    s = problem.study
+    d = get_design(s.design)
+    prior = problem.effect
+    n = dec.n_per_group
+    kw = {
+        "allocation": s.allocation if d.allocation_name else None,
+        "years": s.years if d.uses_years else None,
+        "sides": s.sides,
+        "test": dec.test,
+    }
+    if dec.test == "exact" and s.design == "reference-rate":
+        # the exact SIR test rejects O >= c with P(Pois(E) >= c) = attained alpha
+        expected = n * s.baseline * s.years
+        counts = np.arange(0, 400)
+        c = counts[np.argmin(np.abs(stats.poisson.sf(counts - 1, expected) - dec.attained_alpha))]
+        attained = float(stats.poisson.sf(c - 1, expected))
+
+        def pw(t: float) -> float:
+            return float(stats.poisson.sf(c - 1, t * expected))
+    else:
+        attained = float(power(s.design, dec.alpha, n, prior.median, s.baseline, **kw).attained_alpha)
+
+        def pw(t: float) -> float:
+            return float(power(s.design, dec.alpha, n, t, s.baseline, **kw).power)
+
+    density = stats.lognorm(s=prior.log_sd, scale=prior.median).pdf
+    cost = problem.consequences
+
+    def integrand(t: float) -> float:
+        return (1 - pw(t)) * float(cost.missed_cost(np.array(t))) * density(t)
+
+    lo, hi = prior.quantile(1e-13), prior.quantile(1 - 1e-13)
+    kink = [1.0] if lo < 1 < hi else None
+    value, err = integrate.quad(integrand, lo, hi, points=kink, limit=400, epsabs=0, epsrel=1e-11)
+    assert err <= 1e-9 * value
+    missed = problem.p_harm * value
+    n_total = n + (int(np.floor(s.allocation * n + 0.5)) if d.allocation_name else 0)
+    loss = missed + (1 - problem.p_harm) * attained * cost.false_alarm + cost.fixed + cost.per_subject * n_total
+    return missed, loss
+
+
+# design, baseline, allocation, years, prior, missed cost, test, n
+AGREE = [
+    ("cohort-risk", 0.01, 2.0, 1.0, EffectPrior.from_interval(1.5, 4.0, 0.9), CONSTANT, "normal", 2000),
+    ("case-control", 0.1, 4.0, 1.0, EffectPrior.from_interval(1.5, 4.0, 0.9), CONSTANT, "normal", 200),
+    ("reference-rate", 1e-3, 1.0, 5.0, EffectPrior.from_interval(1.3, 3.0, 0.8), CONSTANT, "exact", 2000),
+    ("cohort-rate", 2e-3, 2.0, 5.0, EffectPrior.from_interval(1.5, 4.0, 0.9), CONSTANT, "exact", 200),
+    # derived cost, the prior's mass far above the kink at effect 1
+    ("case-control", 0.1, 4.0, 1.0, EffectPrior.from_interval(3.0, 6.0, 0.9), DERIVED, "normal", 200),
+    ("cohort-rate", 2e-3, 2.0, 5.0, EffectPrior.from_interval(3.0, 6.0, 0.9), DERIVED, "normal", 300),
+    ("reference-rate", 1e-3, 1.0, 5.0, EffectPrior.from_interval(2.5, 5.0, 0.9), DERIVED, "exact", 1000),
+    ("cohort-risk", 0.01, 1.0, 1.0, EffectPrior.from_interval(2.5, 5.0, 0.9), DERIVED, "exact", 150),
+]
+
+KINK = (
+    "64-node Gauss-Hermite quadrature of a derived missed cost M = c (effect - 1)^+ "
+    "ignores its kink at effect 1, which lies inside the prior: the missed-hazard loss is off by {}"
+)
+STEEP = (
+    "64-node Gauss-Hermite quadrature cannot follow a power curve that rises from 0 to 1 "
+    "within a small part of a wide prior: the missed-hazard loss is off by {}"
+)
+DISAGREE = [
+    pytest.param(
+        "case-control",
+        0.1,
+        4.0,
+        1.0,
+        EffectPrior.from_interval(1.5, 4.0, 0.9),
+        DERIVED,
+        "normal",
+        2000,
+        marks=pytest.mark.xfail(strict=True, reason=KINK.format("-2.2e-3 (whole loss -1.3e-4)")),
+    ),
+    pytest.param(
+        "reference-rate",
+        1e-3,
+        1.0,
+        5.0,
+        EffectPrior.from_interval(1.3, 3.0, 0.8),
+        DERIVED,
+        "exact",
+        2000,
+        marks=pytest.mark.xfail(strict=True, reason=KINK.format("9.8e-5")),
+    ),
+    pytest.param(
+        "case-control",
+        0.1,
+        4.0,
+        1.0,
+        EffectPrior.from_interval(1.1, 10.0, 0.9),
+        CONSTANT,
+        "normal",
+        2000,
+        marks=pytest.mark.xfail(strict=True, reason=STEEP.format("-4.6e-2 (whole loss -2.5e-2)")),
+    ),
+]
+
+
+# The prior's far-left nodes give cells with few expected cases, where the normal
+# test (asked for here) is flagged as weak.
+@pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
+@pytest.mark.parametrize(
+    ("design", "baseline", "allocation", "years", "prior", "missed", "test", "n"), AGREE + DISAGREE
+)
+def test_expected_loss_matches_quad_over_the_lognormal_density(
+    design: str,
+    baseline: float,
+    allocation: float,
+    years: float,
+    prior: EffectPrior,
+    missed: dict[str, float],
+    test: str,
+    n: int,
+) -> None:
+    prob = fixed_size_problem(design, baseline, allocation, years, prior, missed, test, n)
+    dec = optimize(prob)
+    assert dec.test == test
+    missed_part, loss = quad_loss(prob, dec)
+    assert dec.loss_parts["missed"] == pytest.approx(missed_part, rel=1e-6)
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-6)
+
+
+@pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
+@pytest.mark.xfail(strict=True, reason=KINK.format("-8.6e-5 (whole loss -5.2e-5)"))
+def test_bundled_water_supply_expected_loss_matches_quad() -> None:
+    prob = load_scenario(REPO / "scenarios" / "water-supply-reference.toml").problem
+    dec = optimize(prob)
+    missed_part, loss = quad_loss(prob, dec)
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-6)
+
+
+def partial_expectation(median: float, s: float) -> float:
+    """E[(theta - 1)^+] for a lognormal with the given median and log-sd (identity)."""
+    m = np.log(median)
+    return float(median * np.exp(s * s / 2) * stats.norm.cdf((m + s * s) / s) - stats.norm.cdf(m / s))
+
+
+@pytest.mark.parametrize(
+    ("low", "high"),
+    [
+        (3.0, 6.0),
+        (2.5, 5.0),
+        pytest.param(1.5, 4.0, marks=pytest.mark.xfail(strict=True, reason=KINK.format("-5.0e-6 in E[M]"))),
+        pytest.param(1.3, 3.0, marks=pytest.mark.xfail(strict=True, reason=KINK.format("1.3e-5 in E[M]"))),
+    ],
+)
+def test_clear_now_with_derived_cost_is_the_lognormal_partial_expectation(low: float, high: float) -> None:
+    prior = EffectPrior.from_interval(low, high, 0.9)
+    prob = fixed_size_problem("reference-rate", 1e-3, 1.0, 5.0, prior, DERIVED, "exact", 500)
+    dec = optimize(prob)
+    c = DERIVED["exposed_population"] * DERIVED["background_rate"] * DERIVED["cost_per_case"] * DERIVED["horizon_years"]
+    expected = prob.p_harm * c * partial_expectation(prior.median, prior.log_sd)
+    # the same value by scipy.stats.lognorm.expect, as a check on the identity
+    ref = stats.lognorm(s=prior.log_sd, scale=prior.median)
+    by_scipy = prob.p_harm * c * ref.expect(lambda t: t - 1.0, lb=1.0, epsabs=0, epsrel=1e-12)
+    assert expected == pytest.approx(by_scipy, rel=1e-9)
+    assert dec.no_study["clear_now"] == pytest.approx(expected, rel=1e-6)
