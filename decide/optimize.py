@@ -28,6 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -451,24 +452,42 @@ def ratio_point(rng: tuple[float, float]) -> float | None:
 
 
 def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float | None:
-    from .solve import solve
-
     s = model.setting
     study = model.problem.study
+    return _detectable_effect(
+        s.design.name,
+        study.baseline,
+        study.allocation if s.design.allocation_name is not None else None,
+        study.years if s.design.uses_years else None,
+        s.sides,
+        s.continuity,
+        alpha,
+        int(n),
+        exact,
+    )
+
+
+@lru_cache(maxsize=256)
+def _detectable_effect(
+    design: str,
+    baseline: float,
+    allocation: float | None,
+    years: float | None,
+    sides: int,
+    continuity: bool,
+    alpha: float,
+    n: int,
+    exact: bool,
+) -> float | None:
+    """The smallest effect detected with power 0.8 (cached: policies often share a study)."""
+    from .solve import solve
+
     if not 0 < alpha < 0.8:
         return None
     try:
         sol = solve(
-            s.design,
-            baseline=study.baseline,
-            alpha=alpha,
-            power=0.8,
-            n_per_group=int(n),
-            allocation=None if s.design.allocation_name is None else study.allocation,
-            years=study.years if s.design.uses_years else None,
-            sides=s.sides,
-            test="exact" if exact else "normal",
-            continuity=s.continuity,
+            design, baseline=baseline, alpha=alpha, power=0.8, n_per_group=n, allocation=allocation,
+            years=years, sides=sides, test="exact" if exact else "normal", continuity=continuity,
         )
     except DecideError:
         return None

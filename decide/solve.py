@@ -584,15 +584,20 @@ def _solve_effect(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any
 
 
 def _exact_effect_curve(setting: Setting, alpha: float, n: int) -> Callable[[FloatArray], FloatArray]:
+    """Exact power at fixed size and level as a function of the log effect.
+
+    The rejection region does not depend on the effect, so all the effects
+    asked for at once share one grid (one p-value per count pair) and only
+    the exposed count's distribution changes.
+    """
     d = setting.design
+    one = np.ones(1)
 
     def curve(log_effect: FloatArray) -> FloatArray:
-        e = np.exp(log_effect).ravel()
-        full = np.ones_like(e)
-        pw, _ = exact_power(
-            d, alpha * full, n * full, e, float(setting.baseline) * full,
-            float(setting.allocation) * full, float(setting.years) * full, setting.sides,
-        )
-        return pw.reshape(log_effect.shape)
+        e = np.exp(log_effect).reshape(1, -1)
+        model = d.count_model(n * one, setting.baseline * one, e, setting.allocation * one, setting.years * one)
+        grid = _exact.build_grid(model, setting.sides)
+        power, _ = _exact.rejection_mass(grid, alpha * one)
+        return power.reshape(log_effect.shape)
 
     return curve
