@@ -38,8 +38,9 @@ from numpy.typing import NDArray
 from scipy import special
 
 from ._study import Setting
-from .designs import AUTO_EXACT_BELOW, _exact, _normal
+from .designs import _exact, _normal
 from .designs._base import FloatArray
+from .power import choose_exact
 from .problem import Problem
 
 #: Rows of the weight matrix: cost-weighted, prior-averaged, at the design effect.
@@ -91,15 +92,15 @@ class LossModel:
         return np.asarray(missed + (1 - p.p_harm) * p.consequences.false_alarm * attained)
 
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
-        """Where the test at size ``n`` is exact (``auto``: a cell expects < 10)."""
+        """Where the test at size ``n`` is exact (see :func:`decide.power.choose_exact`)."""
         s = self.setting
-        if s.test != "auto":
-            return np.full(np.shape(n), s.test == "exact")
+        if s.test == "normal":
+            return np.zeros(np.shape(n), dtype=bool)
         design_effect = np.full(np.shape(n), self.effects[-1])
         smallest = s.design.smallest_expected_count(
             np.asarray(n, dtype=np.float64), s.baseline, design_effect, s.allocation, s.years
         )
-        return np.asarray(smallest < AUTO_EXACT_BELOW)
+        return choose_exact(s.test, smallest)
 
 
 def build_model(problem: Problem) -> LossModel:

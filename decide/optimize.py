@@ -52,6 +52,8 @@ from .loss import (
 from .policies import LOSS_OPTIMAL, Policy
 from .problem import Problem
 
+#: Up to this many sizes below a smallest-for-power answer are all checked.
+EVERY_SIZE = {"one-group": 2_000, "two-group": 500}
 #: Size searched up to when nothing else bounds it (smallest-for-power).
 SIZE_CEILING = 10**9
 _TOL = 1e-9
@@ -95,7 +97,9 @@ def _choose_normal(model: LossModel, policy: Policy, n: FloatArray) -> tuple[Cha
     s = model.setting
     p = model.problem
     cons = p.constraints
-    zlo, zhi = (np.full(n.shape, v) for v in Z_RANGE)
+    # critical values whose nominal alpha stays below 1 (two-sided: z >= 0)
+    zlo = np.full(n.shape, max(Z_RANGE[0], float(_normal.critical_z(np.asarray(1 - 1e-12), s.sides))))
+    zhi = np.full(n.shape, Z_RANGE[1])
 
     def at(z: FloatArray) -> Characteristics:
         return normal_at(model, n[:, None] if z.ndim == 2 else n, z)
@@ -272,15 +276,31 @@ def _coarse_losses(model: LossModel, policy: Policy, grid: FloatArray) -> tuple[
     return grid[: kept.size], kept
 
 
-def _first_meeting(model: LossModel, policy: Policy, lo: float, hi: float) -> float | None:
-    grid = np.unique(np.append(_geometric(lo, hi, 81), hi))
+def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) -> tuple[float | None, int]:
+    """The smallest size that meets the policy, and the failure code at the largest size tried.
+
+    Sizes grow fourfold from ``lo`` until one meets the policy (or the ceiling
+    is reached), so no size far beyond the answer is ever evaluated; the last
+    bracket is then refined to the whole subject, and the sizes below the
+    answer are checked one by one (exact power saw-tooths): all of them up to
+    :data:`EVERY_SIZE`, else the 64 nearest.
+    """
+    below, hi = lo, lo
+    while True:
+        ch = choose_tests(model, policy, np.array([hi]))
+        if ch.meets_rules[0]:
+            break
+        if hi >= ceiling:
+            return None, int(ch.code[0])
+        below, hi = hi, min(ceiling, hi * 4)
+    if hi == lo:
+        return lo, OK
+    grid = np.unique(np.append(_geometric(below, hi, 33), hi))
     ok = choose_tests(model, policy, grid).meets_rules
-    if not ok.any():
-        return None
     k = int(np.argmax(ok))
     if k == 0:
-        return float(grid[0])
-    a, b = grid[k - 1], grid[k]
+        return float(grid[0]), OK
+    a, b = float(grid[k - 1]), float(grid[k])
     while b - a > 1:
         cand = np.unique(np.round(np.linspace(a, b, 42)))[1:-1]
         cand = cand[(cand > a) & (cand < b)]
@@ -289,16 +309,49 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, hi: float) -> fl
         hit = choose_tests(model, policy, cand).meets_rules
         if hit.any():
             j = int(np.argmax(hit))
-            b = cand[j]
-            a = cand[j - 1] if j > 0 else a
+            b = float(cand[j])
+            a = float(cand[j - 1]) if j > 0 else a
         else:
-            a = cand[-1]
-    below = np.arange(max(lo, b - 64), b)
-    if below.size:
-        early = choose_tests(model, policy, below).meets_rules
+            a = float(cand[-1])
+    span = EVERY_SIZE["one-group" if model.setting.design.allocation_name is None else "two-group"]
+    early_sizes = np.arange(lo, b) if b - lo <= span else np.arange(max(lo, b - 64), b)
+    if early_sizes.size:
+        early = choose_tests(model, policy, early_sizes).meets_rules
         if early.any():
-            b = below[int(np.argmax(early))]
-    return float(b)
+            b = float(early_sizes[int(np.argmax(early))])
+    return b, OK
+
+
+def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | None, int]:
+    """For a fixed alpha and a power target, the solver's smallest size, if it meets the policy.
+
+    For the one-group design exact power saw-tooths strongly in the size and
+    the solver finds the smallest size in closed form, segment by segment of
+    the critical count, so it is asked first; its answer stands only if the
+    policy's other requirements hold there too.
+    """
+    if policy.alpha_rule != "fixed" or policy.power is None or policy.alpha is None:
+        return None, OK
+    if model.setting.design.allocation_name is not None:
+        return None, OK  # two-group designs barely saw-tooth; the general search is faster
+    from .solve import solve
+
+    s, study = model.setting, model.problem.study
+    try:
+        sol = solve(
+            s.design, baseline=study.baseline, alpha=policy.alpha, power=policy.power,
+            effect=model.problem.effect.median,
+            allocation=study.allocation if s.design.allocation_name is not None else None,
+            years=study.years if s.design.uses_years else None, sides=s.sides, test=s.test,
+            continuity=s.continuity, max_n_per_group=SIZE_CEILING,
+        )
+    except DecideError:
+        return None, OK
+    n = float(max(sol.n_per_group, lo))
+    ch = choose_tests(model, policy, np.array([n]))
+    if ch.meets_rules[0] and bool(ch.exact[0]) == (sol.test == "exact"):
+        return n, OK
+    return None, OK
 
 
 @dataclass(frozen=True)
@@ -319,9 +372,12 @@ def _pick_size(model: LossModel, policy: Policy) -> _Pick:
             return _Pick(None, "takes the largest allowed size, but no size cap or budget is set")
         return _Pick(float(top), None)
     if policy.size_rule == "smallest-for-power":
-        n = _first_meeting(model, policy, lo, float(SIZE_CEILING))
+        n, code = _solver_size(model, policy, lo)
         if n is None:
-            return _Pick(None, f"no size up to {SIZE_CEILING:,} meets the policy")
+            n, code = _first_meeting(model, policy, lo, float(SIZE_CEILING))
+        if n is None:
+            why = _REASONS.get(code, "it fails the policy")
+            return _Pick(None, f"no size up to {SIZE_CEILING:,} meets the policy: at that size {why}")
         if top is not None and n > top:
             return _Pick(n, f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
         return _Pick(n, None)
@@ -521,7 +577,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     p = model.problem
     pick = _pick_size(model, policy)
     no_study = {"flag_now": model.flag_now, "clear_now": model.clear_now}
-    better = "flag now" if model.flag_now < model.clear_now else "clear now"
+    better = "flag" if model.flag_now < model.clear_now else "clear"
     best_none = min(model.flag_now, model.clear_now)
     stated = model.expected_missed / p.consequences.false_alarm if p.consequences.false_alarm > 0 else np.inf
     d = model.setting.design
@@ -529,7 +585,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         policy.name, policy.title, policy.summary, False, pick.reason, d.name, None, None, None, None,
         None, None, None, p.effect.median, None, None, None, None, no_study, None,
         f"{policy.title} cannot be met: {pick.reason}. Without a study, the better action is to "
-        f"{better} (expected loss {best_none:.4g}).",
+        f"{better} now (expected loss {best_none:.4g}).",
         None, None, None, None, None, float(stated),
     )
     if pick.n is None:
@@ -567,9 +623,10 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         rec = (f"No study is worth its cost under {policy.title.lower()}: {better} now "
                f"(expected loss {best_none:.4g}, against {loss:.4g} with the study).")
     elif feasible:
+        sided = "one-sided" if model.setting.sides == 1 else "two-sided"
         rec = (f"Study {int(n):,} {d.size_name} ({int(n_total):,} subjects in all); flag the exposure "
-               f"if the one-{'sided' if model.setting.sides == 1 else 'two-sided'} {test} test is "
-               f"significant at alpha = {c.nominal:.4g}. Expected net benefit over deciding now ({better}): {net:.4g}.")
+               f"if the {sided} {test} test is significant at alpha = {c.nominal:.4g}. "
+               f"Expected net benefit over deciding now (to {better}): {net:.4g}.")
     else:
         rec = f"{policy.title} cannot be met: {reason}."
     return replace(

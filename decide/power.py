@@ -16,7 +16,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from . import _checks
 from ._study import Setting, check_alpha_power, check_effect, check_setting
-from .designs import AUTO_EXACT_BELOW, StudyDesign, _exact, _normal
+from .designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign, _exact, _normal
 from .designs._base import FloatArray
 from .errors import ApproximationWarning
 
@@ -76,9 +76,13 @@ class PowerResult:
 
 
 def choose_exact(test: str, smallest_count: FloatArray) -> NDArray[np.bool_]:
-    """Where ``test`` asks for the exact test (``auto``: fewer than 10 expected)."""
+    """Where the exact test runs.
+
+    ``auto``: where a cell expects fewer than 10.  ``exact``: everywhere but
+    where every cell expects more than :data:`EXACT_UP_TO`.
+    """
     if test == "exact":
-        return np.ones(smallest_count.shape, dtype=bool)
+        return np.asarray(smallest_count <= EXACT_UP_TO)
     if test == "normal":
         return np.zeros(smallest_count.shape, dtype=bool)
     return np.asarray(smallest_count < AUTO_EXACT_BELOW)
@@ -164,6 +168,11 @@ def evaluate(
         ep, es = exact_power(d, a[sel], nn[sel], e[sel], b[sel], r[sel], y[sel], setting.sides)
         pw[sel], size[sel] = ep, es
     notes: list[str] = []
+    if setting.test == "exact" and not use_exact.all():
+        notes.append(
+            f"exact test requested, but where every cell expects more than {EXACT_UP_TO:g} the normal "
+            "approximation was used (the two agree closely there)"
+        )
     weak = ~use_exact & (smallest < AUTO_EXACT_BELOW)
     if weak.any():
         note = (

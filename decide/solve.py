@@ -31,7 +31,7 @@ from scipy import special
 from . import _checks
 from ._results import PlainData
 from ._study import Setting, check_alpha_power, check_effect, check_setting
-from .designs import AUTO_EXACT_BELOW, StudyDesign, _exact, _normal
+from .designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign, _exact, _normal
 from .designs._base import FloatArray
 from .errors import DecideError, InfeasibleError
 from .power import choose_exact, evaluate, exact_power
@@ -266,7 +266,7 @@ def _exact_size_scan(
 
 
 #: Up to this many whole sizes, an exact size solve evaluates every one of them.
-EVERY_SIZE = {"one-group": 200_000, "two-group": 3_000}
+EVERY_SIZE = {"one-group": 200_000, "two-group": 200}
 
 
 def _every_size_limit(setting: Setting) -> int:
@@ -330,6 +330,9 @@ def _reference_rate_sizes(
 
 
 def _reason(test: str, use_exact: bool, smallest: float) -> str:
+    if test == "exact" and not use_exact:
+        return (f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} ({smallest:.3g}): "
+                "the normal approximation was used, which agrees closely there")
     if test != "auto":
         return f"{test} test requested"
     if use_exact:

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from ..errors import DecideError
 from . import case_control, cohort_rate, cohort_risk, reference_rate
-from ._base import AUTO_EXACT_BELOW, CountModel, Marginal, NormalMoments, StudyDesign
+from ._base import AUTO_EXACT_BELOW, EXACT_UP_TO, CountModel, Marginal, NormalMoments, StudyDesign
 
 DESIGNS: dict[str, StudyDesign] = {
     d.name: d
@@ -30,6 +30,7 @@ def get_design(design: str | StudyDesign) -> StudyDesign:
 
 __all__ = [
     "AUTO_EXACT_BELOW",
+    "EXACT_UP_TO",
     "DESIGNS",
     "CountModel",
     "Marginal",

@@ -26,6 +26,10 @@ FloatArray = NDArray[np.float64]
 #: The smallest expected count, in any cell, at which ``test="auto"`` still
 #: trusts the normal approximation.
 AUTO_EXACT_BELOW = 10.0
+#: Above this smallest expected count even ``test="exact"`` runs the normal
+#: approximation: every cell then holds thousands of cases, the two tests
+#: agree closely, and an exact grid would hold millions of count pairs.
+EXACT_UP_TO = 2000.0
 
 
 @dataclass(frozen=True)
