@@ -116,12 +116,7 @@ def recompute(problem: Problem, dec: Decision) -> dict[str, float]:
 @pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
 @pytest.mark.parametrize("problem", PROBLEMS, ids=IDS)
 def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> None:
-    policies = list(load_policies().values())
-    if problem.study.test == "exact":
-        # smallest-for-power sizes with a forced exact test exhaust memory (see
-        # test_decision_policies.py::test_smallest_for_power_with_exact_test_stays_near_the_answer)
-        policies = [p for p in policies if p.size_rule != "smallest-for-power"]
-    decisions = compare(problem, policies)
+    decisions = compare(problem, list(load_policies().values()))
     assert any(d.feasible for d in decisions)
     for dec in decisions:
         if dec.n_per_group is None:
@@ -182,23 +177,11 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
     assert worth.recommendation.startswith(f"Study {worth.n_per_group:,} ")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="the recommendation reads 'flag now now' / 'clear now now': "
-    "the action already ends in 'now' and the template adds another",
-)
 def test_no_study_recommendation_names_the_action_once() -> None:
     dec = optimize(costly_study())
     assert "now now" not in dec.recommendation
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "two-sided normal tests search critical values below 0, where the nominal and attained alpha "
-        "2*Phi(-z) exceed 1 and power exceeds 1: here alpha = 1 + 7e-12 and beta = -6e-12"
-    ),
-)
 def test_two_sided_probabilities_stay_probabilities() -> None:
     # Harm is likely (p = 0.9) and a miss costs as much as a false alarm, so the
     # loss-optimal choice is to flag whatever the study finds: alpha near 1.

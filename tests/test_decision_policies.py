@@ -193,13 +193,6 @@ def test_alpha_cap_makes_fixed_alpha_policies_infeasible() -> None:
             assert d.alpha <= 0.01 * (1 + 1e-9)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "a smallest-for-power policy blocked by constraints.max_alpha is reported as 'no size up to "
-        "1,000,000,000 meets the policy', which does not name the cap that blocks it"
-    ),
-)
 def test_alpha_cap_is_named_when_it_blocks_a_power_target() -> None:
     base = constructed()[0]
     prob = Problem(base.study, base.effect, base.p_harm, base.consequences, Constraints(max_alpha=0.01))
@@ -242,14 +235,6 @@ def test_more_likely_than_not_is_the_equal_cost_bayes_test(p: float) -> None:
     assert dec.p_harm_given_positive > 0.5 > dec.p_harm_given_negative
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "two-sided normal tests search critical values below 0, whose nominal alpha 2*Phi(-z) exceeds 1; "
-        "the posterior rule picks z = -8.5 and every size fails the alpha cap of 1: 'no size within the "
-        "constraints meets the policy'"
-    ),
-)
 def test_more_likely_than_not_two_sided_with_a_likely_harm_is_feasible() -> None:
     prob = Problem(
         Study("cohort-rate", 1e-3, years=5.0, sides=2, test="normal"),
@@ -295,14 +280,6 @@ def test_precautionary_alpha_is_the_solver_alpha_for_95_percent_power() -> None:
     assert dec.beta == pytest.approx(0.05, rel=1e-7)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "smallest-for-power sizes search a geometric grid up to 10**9 per group and evaluate the exact "
-        "test at every grid size: with test = 'exact' a two-group design asks for exact power at "
-        "10**9 per group and exhausts memory (MemoryError under a 3 GB limit after about 20 s)"
-    ),
-)
 def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: pytest.MonkeyPatch) -> None:
     prob = Problem(
         Study("case-control", 0.1, test="exact"),

@@ -255,9 +255,6 @@ def prior_beta_and_design_power(problem: Problem, alpha: float, n: int, test: st
 @given(problems(budget=True))
 def test_every_feasible_policy_keeps_its_rules_and_the_constraints(problem: Problem) -> None:
     policies = list(POLICIES.values())
-    if problem.study.test == "exact":
-        # see test_decision_policies.py::test_smallest_for_power_with_exact_test_stays_near_the_answer
-        policies = [p for p in policies if p.size_rule != "smallest-for-power"]
     cons = problem.constraints
     model = build_model(problem)
     for dec in compare(problem, policies):
