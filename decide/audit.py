@@ -180,6 +180,7 @@ def _detect(sol: Any, level: float) -> float | None:
             n_per_group=sol.n_per_group, allocation=None if sol.design == "reference-rate" else sol.allocation,
             years=sol.years if sol.design in ("cohort-rate", "reference-rate") else None,
             sides=sol.sides, test=sol.test.replace("normal-cc", "normal"),
+            continuity=sol.test == "normal-cc",
         ).effect
     except DecideError:
         return None

@@ -7,7 +7,7 @@ is
     p_harm * E[(1 - P(theta)) * M(theta)] + (1 - p_harm) * a * F
     + per_subject * n_total + fixed,
 
-the expectation over the effect prior (Gauss-Hermite nodes), ``M`` the cost
+the expectation over the effect prior (composite Gauss-Legendre), ``M`` the cost
 of a missed hazard (constant or proportional to the excess cases) and ``F``
 the cost of a false alarm.  Doing no study, one can flag now (loss
 ``(1 - p_harm) * F``) or clear now (loss ``p_harm * E[M]``).
@@ -41,10 +41,13 @@ from ._study import Setting
 from .designs import _exact, _normal
 from .designs._base import FloatArray
 from .power import choose_exact
+from .prior import SEARCH_PANELS
 from .problem import Problem
 
 #: Rows of the weight matrix: cost-weighted, prior-averaged, at the design effect.
-CAUGHT, AVERAGE, DESIGN = 0, 1, 2
+MISSED, AVERAGE, DESIGN = 0, 1, 2
+#: Relative agreement at which the final quadrature stops refining.
+SETTLE_TOL = 1e-9
 #: Range of normal critical values searched (alpha from about 1 to 1e-300).
 Z_RANGE = (-8.5, 37.0)
 
@@ -54,9 +57,11 @@ class LossModel:
     """A problem prepared for fast evaluation.
 
     ``effects`` holds the prior's quadrature nodes followed by the design
-    effect; ``weights`` (3 x nodes) turns per-effect power into the
-    cost-weighted caught hazard, the prior-averaged power and the power at
-    the design effect.
+    effect; ``weights`` (3 x nodes) turns per-effect probabilities into
+    cost-weighted sums over the prior (row ``MISSED``, applied to miss
+    probabilities), prior averages (``AVERAGE``) and values at the design
+    effect (``DESIGN``).  ``expected_missed`` is ``E[M(effect)]``, integrated
+    to :data:`SETTLE_TOL`.
     """
 
     problem: Problem
@@ -85,11 +90,24 @@ class LossModel:
         c = self.problem.consequences
         return np.asarray(c.fixed + c.per_subject * self.n_total(n), dtype=np.float64)
 
-    def error_loss(self, attained: FloatArray, caught: FloatArray) -> FloatArray:
-        """Expected loss from the two errors (no study cost)."""
+    def error_loss(self, attained: FloatArray, missed: FloatArray) -> FloatArray:
+        """Expected loss from the two errors (no study cost).
+
+        ``missed`` is the cost-weighted miss probability ``E[M (1 - P)]``.
+        """
         p = self.problem
-        missed = p.p_harm * np.maximum(self.expected_missed - caught, 0.0)
-        return np.asarray(missed + (1 - p.p_harm) * p.consequences.false_alarm * attained)
+        return np.asarray(p.p_harm * missed + (1 - p.p_harm) * p.consequences.false_alarm * attained)
+
+    @property
+    def kink(self) -> float | None:
+        """The effect where a derived missed-hazard cost bends (1), if any."""
+        return 1.0 if self.problem.consequences.is_derived else None
+
+    def prior_nodes(self, panels: int) -> tuple[FloatArray, FloatArray]:
+        """Quadrature nodes kept below the design's effect limit, and weights."""
+        nodes, w = self.problem.effect.nodes(panels, self.kink)
+        limit = float(self.setting.design.effect_limit(self.setting.baseline))
+        return np.minimum(nodes, limit * (1 - 1e-9)), w
 
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
         """Where the test at size ``n`` is exact (see :func:`decide.power.choose_exact`)."""
@@ -105,41 +123,57 @@ class LossModel:
 
 def build_model(problem: Problem) -> LossModel:
     """Quadrature nodes, missed-hazard costs and weights for a problem."""
-    setting = problem.study.setting()
-    nodes, w = problem.effect.nodes()
-    limit = float(setting.design.effect_limit(setting.baseline))
-    nodes = np.minimum(nodes, limit * (1 - 1e-9))
+    model = LossModel(problem, problem.study.setting(), np.zeros(0), np.zeros((3, 0)), 0.0)
+    nodes, w = model.prior_nodes(SEARCH_PANELS)
     missed = problem.consequences.missed_cost(nodes)
     effects = np.append(nodes, problem.effect.median)
     q = nodes.size
     weights = np.zeros((3, q + 1))
-    weights[CAUGHT, :q] = w * missed
+    weights[MISSED, :q] = w * missed
     weights[AVERAGE, :q] = w
     weights[DESIGN, q] = 1.0
-    return LossModel(problem, setting, effects, weights, float(np.dot(w, missed)))
+
+    def expected(panels: int) -> FloatArray:
+        x, v = model.prior_nodes(panels)
+        return np.array([np.dot(v, problem.consequences.missed_cost(x))])
+
+    return LossModel(problem, model.setting, effects, weights, float(_refine(expected)[0]))
+
+
+def _refine(integral: Callable[[int], FloatArray]) -> FloatArray:
+    """Double the quadrature panels until the integrals agree to :data:`SETTLE_TOL`."""
+    panels = 2 * SEARCH_PANELS
+    last = integral(panels)
+    while panels < 1024:
+        panels *= 2
+        now = integral(panels)
+        if np.all(np.abs(now - last) <= SETTLE_TOL * np.maximum(np.abs(now), 1e-300)):
+            return now
+        last = now
+    return last
 
 
 @dataclass(frozen=True)
 class Characteristics:
     """Operating characteristics of tests, in arrays of one shape.
 
-    ``caught`` is the cost-weighted probability of flagging a real hazard,
-    ``E[P(theta) * M(theta)]``; ``power`` is averaged over the prior and
-    ``design_power`` taken at the design effect.
+    ``missed`` is the cost-weighted probability of missing a real hazard,
+    ``E[(1 - P(theta)) * M(theta)]``; ``power`` is averaged over the prior
+    and ``design_power`` taken at the design effect.
     """
 
     nominal: FloatArray
     attained: FloatArray
     power: FloatArray
     design_power: FloatArray
-    caught: FloatArray
+    missed: FloatArray
 
     def at(self, i: int) -> OperatingPoint:
         """The characteristics of the ``i``-th test, as numbers."""
         return OperatingPoint(*(float(np.ravel(getattr(self, f))[i]) for f in _FIELDS))
 
 
-_FIELDS = ("nominal", "attained", "power", "design_power", "caught")
+_FIELDS = ("nominal", "attained", "power", "design_power", "missed")
 
 
 @dataclass(frozen=True)
@@ -150,7 +184,7 @@ class OperatingPoint:
     attained: float
     power: float
     design_power: float
-    caught: float
+    missed: float
 
 
 # --------------------------------------------------------------------------
@@ -164,13 +198,11 @@ def normal_at(model: LossModel, n: FloatArray, z: FloatArray) -> Characteristics
     m = d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity)
     m0 = d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity)
     nn, zz = np.broadcast_arrays(np.asarray(n, dtype=np.float64), np.asarray(z, dtype=np.float64))
-    pw = _normal.power_at_z(m, nn[..., None], zz[..., None], s.sides)
-    agg = pw @ model.weights.T
+    pw = _normal.power_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights.T
+    miss = _normal.miss_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights[MISSED]
     attained = _normal.power_at_z(m0, nn[..., None], zz[..., None], s.sides)[..., 0]
     nominal = s.sides * special.ndtr(-zz)
-    return Characteristics(
-        np.asarray(nominal), np.asarray(attained), agg[..., AVERAGE], agg[..., DESIGN], agg[..., CAUGHT]
-    )
+    return Characteristics(np.asarray(nominal), np.asarray(attained), pw[..., AVERAGE], pw[..., DESIGN], miss)
 
 
 def bisect_decreasing(
@@ -253,11 +285,72 @@ def _options(path: _exact.RejectionPath) -> ExactOptions:
     valid = lead(path.last.astype(np.float64)).astype(bool) & (nominal >= _exact.ALPHA_FLOOR) & (nominal < 1)
     valid[:, 0] = True
     w = lead(path.weighted)
+    total = path.weighted[:, MISSED, -1:] + path.kept[:, MISSED, -1:]
+    missed = np.concatenate([total, path.kept[:, MISSED]], axis=-1)
     chars = Characteristics(
         nominal,
         lead(path.null),
         np.minimum(w[:, AVERAGE], 1.0),
         np.minimum(w[:, DESIGN], 1.0),
-        w[:, CAUGHT],
+        missed,
     )
     return ExactOptions(chars, valid)
+
+
+# --------------------------------------------------------------------------
+# the chosen test, integrated over the prior to full accuracy
+
+
+@dataclass(frozen=True)
+class Settled:
+    """Prior-averaged power and cost-weighted miss of one test, to :data:`SETTLE_TOL`."""
+
+    power: float
+    missed: float
+
+
+def settle(model: LossModel, n: float, exact: bool, z: float, nominal: float) -> Settled:
+    """Integrate the chosen test's power and miss over the prior to full accuracy.
+
+    The search uses a fixed rule; the reported numbers come from doubling the
+    panels until successive results agree to :data:`SETTLE_TOL`.
+    """
+    cost = model.problem.consequences
+
+    def integral(panels: int) -> FloatArray:
+        x, w = model.prior_nodes(panels) if panels else (model.effects[-1:], np.ones(1))
+        power, miss = _power_and_miss(model, n, exact, z, nominal, x)
+        return np.array([np.dot(w, power), np.dot(w * cost.missed_cost(x), miss)])
+
+    out = integral(0) if model.problem.effect.is_point else _refine(integral)
+    return Settled(float(out[0]), float(out[1]))
+
+
+def _power_and_miss(
+    model: LossModel, n: float, exact: bool, z: float, nominal: float, effects: FloatArray
+) -> tuple[FloatArray, FloatArray]:
+    s = model.setting
+    if not exact:
+        m = s.design.normal_moments(s.baseline, effects, s.allocation, s.years, s.continuity)
+        return _normal.power_at_z(m, np.asarray(n), np.asarray(z), s.sides), _normal.miss_at_z(
+            m, np.asarray(n), np.asarray(z), s.sides
+        )
+    power, miss = np.ones(effects.size), np.zeros(effects.size)
+    if nominal < _exact.ALPHA_FLOOR:  # the test that never flags
+        return np.zeros(effects.size), np.ones(effects.size)
+    order = np.argsort(effects)
+    one = np.ones(1)
+    for part in np.array_split(order, max(1, effects.size // 128)):
+        e = effects[part][None, :]
+        cm = s.design.count_model(n * one, s.baseline * one, e, s.allocation * one, s.years * one)
+        grid = _exact.build_grid(cm, s.sides)
+        reject = grid.p_value[0] <= nominal * (1 + _exact.REL_TOL)
+        caught = reject.astype(np.float64) @ grid.other[0]
+        kept = (~reject).astype(np.float64) @ grid.other[0]
+        power[part] = grid.alt_exposed[0] @ caught
+        miss[part] = grid.alt_exposed[0] @ kept
+        if miss[part].max() < 1e-16:  # larger effects are caught for certain
+            later = order[np.searchsorted(effects[order], effects[part].max(), side="right"):]
+            power[later], miss[later] = 1.0, 0.0
+            break
+    return power, miss

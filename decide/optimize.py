@@ -26,6 +26,7 @@ References
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
@@ -35,10 +36,11 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ._results import PlainData
-from .designs import _exact, _normal
+from .designs import AUTO_EXACT_BELOW, EXACT_UP_TO, _exact, _normal
 from .designs._base import FloatArray
-from .errors import DecideError
+from .errors import ApproximationWarning, DecideError
 from .loss import (
+    MISSED,
     Z_RANGE,
     Characteristics,
     LossModel,
@@ -48,6 +50,7 @@ from .loss import (
     exact_batches,
     minimise_on,
     normal_at,
+    settle,
 )
 from .policies import LOSS_OPTIMAL, Policy
 from .problem import Problem
@@ -106,7 +109,7 @@ def _choose_normal(model: LossModel, policy: Policy, n: FloatArray) -> tuple[Cha
 
     def loss(z: FloatArray) -> FloatArray:
         c = at(z)
-        return model.error_loss(c.attained, c.caught)
+        return model.error_loss(c.attained, c.missed)
 
     def power_root(target: float) -> FloatArray:
         return bisect_decreasing(lambda z: at(z).design_power - target, zlo, zhi)
@@ -160,7 +163,7 @@ def _choose_exact_batch(model: LossModel, policy: Policy, opts: Any) -> tuple[ND
         assert policy.alpha is not None
         k = np.where(valid & (c.nominal <= policy.alpha * (1 + _exact.REL_TOL)), cols, 0).max(axis=1)
     elif rule == "loss-optimal":
-        score = np.where(ok, model.error_loss(c.attained, c.caught), np.inf)
+        score = np.where(ok, model.error_loss(c.attained, c.missed), np.inf)
         k = np.argmin(score, axis=1)
         found = np.isfinite(score[np.arange(k.size), k])
     elif rule == "posterior":
@@ -185,7 +188,7 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
     """The test the policy's alpha rule picks at each size in ``n``."""
     n = np.asarray(n, dtype=np.float64)
     exact = model.uses_exact(n)
-    fields = {k: np.zeros(n.shape) for k in ("nominal", "attained", "power", "design_power", "caught")}
+    fields = {k: np.zeros(n.shape) for k in ("nominal", "attained", "power", "design_power", "missed")}
     z = np.full(n.shape, np.nan)
     found = np.ones(n.shape, dtype=bool)
     if (~exact).any():
@@ -193,6 +196,8 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
         for k in fields:
             fields[k][~exact] = getattr(c, k)
         z[~exact] = zz
+        if policy.alpha_rule == "fixed":
+            fields["nominal"][~exact] = policy.alpha  # exactly, not via the critical value
     if exact.any():
         where = np.flatnonzero(exact)
         for idx, opts in exact_batches(model, n[where]):
@@ -206,7 +211,7 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
             found[where[idx]] = f
     chars = Characteristics(**fields)
     code = np.where(found, _codes(model, policy, chars), NO_TEST)
-    return Choice(n, exact, chars, z, code, model.error_loss(chars.attained, chars.caught))
+    return Choice(n, exact, chars, z, code, model.error_loss(chars.attained, chars.missed))
 
 
 # --------------------------------------------------------------------------
@@ -451,7 +456,7 @@ def _implied_ratio_normal(model: LossModel, n: float, z: float) -> float | None:
     h = 1e-5
     c = normal_at(model, np.full(2, n), np.array([z - h, z + h]))
     d_att = c.attained[0] - c.attained[1]
-    d_caught = (c.caught[0] - c.caught[1]) / model.expected_missed
+    d_caught = (c.missed[1] - c.missed[0]) / model.expected_missed
     if d_caught <= 0:
         return None
     return float((1 - p.p_harm) * d_att / (p.p_harm * d_caught))
@@ -477,9 +482,10 @@ def _implied_ratio_exact(
         return None
     _, opts = next(exact_batches(model, np.array([n])))
     c, valid = opts.chars, opts.valid[0]
-    att, caught = c.attained[0][valid], c.caught[0][valid] / model.expected_missed
+    total = float(model.weights[MISSED].sum())
+    att, caught = c.attained[0][valid], (total - c.missed[0][valid]) / model.expected_missed
     a_star = float(chosen.attained)
-    c_star = float(chosen.caught) / model.expected_missed
+    c_star = (total - chosen.missed) / model.expected_missed
 
     def dual(u: FloatArray) -> FloatArray:
         slope = np.exp(u)[..., None]
@@ -497,6 +503,21 @@ def _implied_ratio_exact(
     lo = odds / s_left if s_left > 0 else np.inf
     hi = odds / s_right if s_right > 0 else np.inf
     return (float(min(lo, hi)), float(max(lo, hi))), c_star < hull - 1e-9
+
+
+def _approximation_notes(model: LossModel, n: float, exact: bool) -> list[str]:
+    """A note where the normal test runs on few expected cases, or exact gave way to normal."""
+    s = model.setting
+    smallest = float(s.design.smallest_expected_count(
+        np.asarray(n), s.baseline, np.asarray(model.effects[-1]), s.allocation, s.years
+    ))
+    if not exact and smallest < AUTO_EXACT_BELOW:
+        return [f"normal approximation with as few as {smallest:.3g} expected in a cell (below "
+                f"{AUTO_EXACT_BELOW:g}); the exact test is safer here"]
+    if not exact and s.test == "exact":
+        return [f"exact test requested, but every cell expects more than {EXACT_UP_TO:g}: the normal "
+                "approximation was used, which agrees closely there"]
+    return []
 
 
 def ratio_point(rng: tuple[float, float]) -> float | None:
@@ -541,10 +562,12 @@ def _detectable_effect(
     if not 0 < alpha < 0.8:
         return None
     try:
-        sol = solve(
-            design, baseline=baseline, alpha=alpha, power=0.8, n_per_group=n, allocation=allocation,
-            years=years, sides=sides, test="exact" if exact else "normal", continuity=continuity,
-        )
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ApproximationWarning)  # the decision notes it instead
+            sol = solve(
+                design, baseline=baseline, alpha=alpha, power=0.8, n_per_group=n, allocation=allocation,
+                years=years, sides=sides, test="exact" if exact else "normal", continuity=continuity,
+            )
     except DecideError:
         return None
     return sol.effect
@@ -599,13 +622,14 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     feasible = reason is None
     n_total = float(model.n_total(np.asarray(n)))
     study = float(model.study_cost(np.asarray(n)))
-    missed = p.p_harm * max(model.expected_missed - c.caught, 0.0)
+    accurate = settle(model, n, exact, float(ch.z[0]), c.nominal)
+    missed = p.p_harm * accurate.missed
     false_alarm = (1 - p.p_harm) * p.consequences.false_alarm * c.attained
     loss = missed + false_alarm + study
-    beta = 1 - c.power
+    beta = 1 - accurate.power
     neg = p.p_harm * beta + (1 - p.p_harm) * (1 - c.attained)
-    pos = p.p_harm * c.power + (1 - p.p_harm) * c.attained
-    warns: list[str] = []
+    pos = p.p_harm * accurate.power + (1 - p.p_harm) * c.attained
+    warns = _approximation_notes(model, n, exact)
     if exact:
         found = _implied_ratio_exact(model, n, c)
         rng = None if found is None else found[0]
@@ -638,7 +662,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         alpha=c.nominal,
         attained_alpha=c.attained,
         beta=beta,
-        power=c.power,
+        power=accurate.power,
         power_at_design_effect=c.design_power,
         n_per_group=int(n),
         n_total=int(n_total),

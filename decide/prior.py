@@ -5,8 +5,8 @@ References
 .. [1] O'Hagan, A., Stevens, J. W. and Campbell, M. J. (2005). Assurance in
    clinical trial design. *Pharm. Stat.* 4, 187-201 (power averaged over a
    prior on the effect).
-.. [2] Abramowitz, M. and Stegun, I. A. (1964). *Handbook of Mathematical
-   Functions*, National Bureau of Standards, 25.4.46 (Gauss-Hermite rule).
+.. [2] Davis, P. J. and Rabinowitz, P. (1984). *Methods of Numerical
+   Integration*, 2nd ed., Academic Press, ch. 2 (compound Gauss-Legendre rules).
 """
 
 from __future__ import annotations
@@ -21,16 +21,30 @@ from ._checks import open_unit, positive
 from .designs._base import FloatArray
 from .errors import DecideError
 
-#: Gauss-Hermite nodes used for a lognormal prior.
-QUADRATURE_NODES = 64
-#: Nodes whose weight is below this are dropped (their mass is negligible).
-NODE_WEIGHT_FLOOR = 1e-14
+#: Panels and Gauss-Legendre order of the quadrature used while optimising.
+SEARCH_PANELS, ORDER = 16, 6
+#: Half-width, in prior standard deviations, of the range integrated over;
+#: the prior mass beyond is below 1e-13.
+REACH = 7.5
 
 
 @lru_cache(maxsize=8)
-def _hermite(k: int) -> tuple[FloatArray, FloatArray]:
-    x, w = np.polynomial.hermite.hermgauss(k)
-    return x * np.sqrt(2.0), w / np.sqrt(np.pi)
+def _legendre(order: int) -> tuple[FloatArray, FloatArray]:
+    x, w = np.polynomial.legendre.leggauss(order)
+    return x, w
+
+
+def composite_rule(lo: float, hi: float, panels: int, breaks: tuple[float, ...] = ()) -> tuple[FloatArray, FloatArray]:
+    """Nodes and weights of composite Gauss-Legendre on ``[lo, hi]``.
+
+    Panel edges are equally spaced, plus ``breaks`` (points where the
+    integrand has a kink), so each panel integrates a smooth piece.
+    """
+    edges = np.unique(np.concatenate([np.linspace(lo, hi, panels + 1), [b for b in breaks if lo < b < hi]]))
+    x, w = _legendre(ORDER)
+    half = np.diff(edges)[:, None] / 2
+    mid = (edges[:-1] + edges[1:])[:, None] / 2
+    return (mid + half * x).ravel(), (half * w).ravel()
 
 
 @dataclass(frozen=True)
@@ -82,17 +96,24 @@ class EffectPrior:
     def is_point(self) -> bool:
         return self.log_sd == 0.0
 
-    def nodes(self, k: int = QUADRATURE_NODES) -> tuple[FloatArray, FloatArray]:
-        """Effects and weights that integrate smooth functions of the effect.
+    def nodes(
+        self, panels: int = SEARCH_PANELS, kink: float | None = None
+    ) -> tuple[FloatArray, FloatArray]:
+        """Effects and weights that integrate functions of the effect over the prior.
 
+        Composite Gauss-Legendre in the standard normal variable ``u`` of
+        ``log(effect) = log(median) + log_sd * u``, over ``|u| <= 7.5``
+        (shifted up by ``log_sd``, where integrands grow with the effect),
+        with a panel edge at ``kink`` (an effect where the integrand bends,
+        such as a missed-hazard cost proportional to ``effect - 1``).
         A point effect gives one node of weight 1.
         """
         if self.is_point:
             return np.array([self.median]), np.array([1.0])
-        x, w = _hermite(k)
-        keep = w >= NODE_WEIGHT_FLOOR
-        x, w = x[keep], w[keep]
-        return self.median * np.exp(self.log_sd * x), w / w.sum()
+        breaks = () if kink is None else (float(np.log(kink / self.median) / self.log_sd),)
+        u, w = composite_rule(-REACH, REACH + self.log_sd, panels, breaks)
+        w = w * np.exp(-u * u / 2) / np.sqrt(2 * np.pi)
+        return self.median * np.exp(self.log_sd * u), w / w.sum()
 
     def quantile(self, q: float) -> float:
         """The effect below which the prior puts probability ``q``."""

@@ -181,13 +181,6 @@ def test_audit_rejects_bad_judgments(key: str, value: float) -> None:
         audit("cohort-rate", **args)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "audit's detectable effects drop the continuity correction (its _detect calls solve without "
-        "continuity), so the effect reported for power 0.8 has power 0.768 under the corrected test"
-    ),
-)
 def test_continuity_corrected_audit_detects_with_the_stated_power() -> None:
     a = audit(
         "cohort-risk",

@@ -33,7 +33,7 @@ from hypothesis import strategies as st
 from scipy import special, stats
 
 from decide.designs import get_design
-from decide.loss import CAUGHT, DESIGN, build_model, exact_batches
+from decide.loss import DESIGN, MISSED, build_model, exact_batches
 from decide.optimize import compare, optimize
 from decide.power import power
 from decide.prior import EffectPrior
@@ -142,7 +142,7 @@ def normal_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
                 **power_kwargs(problem),
             )
         agg = r.power @ model.weights.T
-        err = p * np.maximum(model.expected_missed - agg[..., CAUGHT], 0.0)
+        err = p * np.maximum(model.expected_missed - agg[..., MISSED], 0.0)
         err = err + (1 - p) * problem.consequences.false_alarm * r.attained_alpha[..., 0]
         ok = (alpha <= cons.max_alpha * (1 + 1e-9)) & (agg[..., DESIGN] >= cons.min_power - 1e-9)
         return np.where(ok, err, np.inf)
@@ -170,13 +170,13 @@ def exact_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
         attained = np.concatenate([np.zeros((sizes.size, 1)), attained], axis=1)
         agg = np.concatenate([np.zeros((sizes.size, 1, 3)), agg], axis=1)
         valid = attained < 1
-        err = p * np.maximum(model.expected_missed - agg[..., CAUGHT], 0.0) + (1 - p) * false_alarm * attained
+        err = p * np.maximum(model.expected_missed - agg[..., MISSED], 0.0) + (1 - p) * false_alarm * attained
         ok = valid & (attained <= cons.max_alpha * (1 + 1e-9)) & (agg[..., DESIGN] >= cons.min_power - 1e-9)
         return np.where(ok, err, np.inf).min(axis=1)
     out = np.full(sizes.size, np.inf)
     for idx, opts in exact_batches(model, sizes):
         c = opts.chars
-        err = model.error_loss(c.attained, c.caught)
+        err = model.error_loss(c.attained, c.missed)
         ok = opts.valid & (c.nominal <= cons.max_alpha * (1 + 1e-9)) & (c.design_power >= cons.min_power - 1e-9)
         out[idx] = np.where(ok, err, np.inf).min(axis=1)
     return out

@@ -189,14 +189,9 @@ AGREE = [
     ("cohort-risk", 0.01, 1.0, 1.0, EffectPrior.from_interval(2.5, 5.0, 0.9), DERIVED, "exact", 150),
 ]
 
-KINK = (
-    "64-node Gauss-Hermite quadrature of a derived missed cost M = c (effect - 1)^+ "
-    "ignores its kink at effect 1, which lies inside the prior: the missed-hazard loss is off by {}"
-)
-STEEP = (
-    "64-node Gauss-Hermite quadrature cannot follow a power curve that rises from 0 to 1 "
-    "within a small part of a wide prior: the missed-hazard loss is off by {}"
-)
+# Cases that once failed: a derived cost's kink at effect 1 inside the prior, and a power
+# curve rising from 0 to 1 within a small part of a wide prior (a fixed 64-node
+# Gauss-Hermite rule was off by up to 4.6 % in the missed part).
 DISAGREE = [
     pytest.param(
         "case-control",
@@ -207,7 +202,6 @@ DISAGREE = [
         DERIVED,
         "normal",
         2000,
-        marks=pytest.mark.xfail(strict=True, reason=KINK.format("-2.2e-3 (whole loss -1.3e-4)")),
     ),
     pytest.param(
         "reference-rate",
@@ -218,7 +212,6 @@ DISAGREE = [
         DERIVED,
         "exact",
         2000,
-        marks=pytest.mark.xfail(strict=True, reason=KINK.format("9.8e-5")),
     ),
     pytest.param(
         "case-control",
@@ -229,7 +222,6 @@ DISAGREE = [
         CONSTANT,
         "normal",
         2000,
-        marks=pytest.mark.xfail(strict=True, reason=STEEP.format("-4.6e-2 (whole loss -2.5e-2)")),
     ),
 ]
 
@@ -259,7 +251,6 @@ def test_expected_loss_matches_quad_over_the_lognormal_density(
 
 
 @pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
-@pytest.mark.xfail(strict=True, reason=KINK.format("-8.6e-5 (whole loss -5.2e-5)"))
 def test_bundled_water_supply_expected_loss_matches_quad() -> None:
     prob = load_scenario(REPO / "scenarios" / "water-supply-reference.toml").problem
     dec = optimize(prob)
@@ -278,8 +269,8 @@ def partial_expectation(median: float, s: float) -> float:
     [
         (3.0, 6.0),
         (2.5, 5.0),
-        pytest.param(1.5, 4.0, marks=pytest.mark.xfail(strict=True, reason=KINK.format("-5.0e-6 in E[M]"))),
-        pytest.param(1.3, 3.0, marks=pytest.mark.xfail(strict=True, reason=KINK.format("1.3e-5 in E[M]"))),
+        (1.5, 4.0),
+        (1.3, 3.0),
     ],
 )
 def test_clear_now_with_derived_cost_is_the_lognormal_partial_expectation(low: float, high: float) -> None:

@@ -255,15 +255,18 @@ class RejectionPath:
     """Every test of the level-``alpha`` family of one batch of studies.
 
     Ordering the count pairs by p-value, the test at level ``p_value[..., k]``
-    rejects pairs ``0..k``; ``null[..., k]`` is its attained size and
+    rejects pairs ``0..k``; ``null[..., k]`` is its attained size,
     ``weighted[..., w, k]`` the mass it rejects under the ``w``-th weighting
-    of the effects.  ``last`` marks the end of each run of tied p-values:
-    only those positions are attainable tests.
+    of the effects and ``kept[..., w, k]`` the mass it does not reject (summed
+    from the other end, so that small misses keep their digits).  ``last``
+    marks the end of each run of tied p-values: only those positions are
+    attainable tests.
     """
 
     p_value: FloatArray
     null: FloatArray
     weighted: FloatArray
+    kept: FloatArray
     last: NDArray[np.bool_]
 
 
@@ -277,10 +280,13 @@ def rejection_path(grid: CountGrid, weights: FloatArray) -> RejectionPath:
     alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
     alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
     null_c = np.cumsum(np.take_along_axis(null, order, axis=1), axis=1)
-    alt_c = np.cumsum(np.take_along_axis(alt, order[:, None, :], axis=2), axis=2)
+    alt_sorted = np.take_along_axis(alt, order[:, None, :], axis=2)
+    alt_c = np.cumsum(alt_sorted, axis=2)
+    kept = np.cumsum(alt_sorted[:, :, ::-1], axis=2)[:, :, ::-1]
+    kept = np.concatenate([kept[:, :, 1:], np.zeros_like(kept[:, :, :1])], axis=2)
     nxt = np.concatenate([p_sorted[:, 1:], np.full((nb, 1), np.inf)], axis=1)
     last = (nxt > p_sorted * (1 + REL_TOL)) & np.isfinite(p_sorted)
-    return RejectionPath(p_sorted, np.minimum(null_c, 1.0), alt_c, last)
+    return RejectionPath(p_sorted, np.minimum(null_c, 1.0), alt_c, kept, last)
 
 
 def _take(x: FloatArray | None, idx: NDArray[np.int64]) -> FloatArray | None:

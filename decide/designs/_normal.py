@@ -45,6 +45,16 @@ def power_at_z(m: NormalMoments, n: FloatArray, z: FloatArray, sides: int) -> Fl
     return np.asarray(out, dtype=np.float64)
 
 
+def miss_at_z(m: NormalMoments, n: FloatArray, z: FloatArray, sides: int) -> FloatArray:
+    """``1 - power_at_z``, computed without cancellation when power is near 1."""
+    root = np.sqrt(n)
+    step = m.correction / root
+    out = special.ndtr(-(m.shift * root - step - z * m.sd_null) / m.sd_alt)
+    if sides == 2:
+        out = out - special.ndtr((-m.shift * root - step - z * m.sd_null) / m.sd_alt)
+    return np.asarray(np.maximum(out, 0.0), dtype=np.float64)
+
+
 def size(m: NormalMoments, alpha: FloatArray, target: FloatArray, sides: int) -> FloatArray:
     """Exposed subjects (continuous) for the target power, near tail only.
 
