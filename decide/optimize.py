@@ -224,7 +224,7 @@ def _largest_affordable(model: LossModel) -> int | None:
     c = model.problem.consequences
     top = cons.max_n_per_group
     if cons.budget is not None and c.per_subject > 0:
-        per = c.per_subject * (1 + float(model.setting.allocation) if model.setting.design.allocation_name else 1)
+        per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         guess = np.floor((cons.budget - c.fixed) / per) + 2
         cand = np.arange(max(1.0, guess - 4), guess + 1)
         fits = cand[model.study_cost(cand) <= cons.budget * (1 + 1e-12)]
@@ -238,22 +238,48 @@ def _geometric(lo: float, hi: float, k: int) -> FloatArray:
 
 
 def _refine_min(model: LossModel, policy: Policy, grid: FloatArray, loss: FloatArray) -> float:
+    """Refine the best size of a coarse grid to the whole subject.
+
+    Golden-section search on whole sizes inside the bracket of the grid's best
+    point (batches of 25 sizes first where the test is normal, which is cheap),
+    then every size within 8 of the best found (the exact tests'
+    loss is only nearly smooth in the size).  Checked against a search of
+    every size in the tests.
+    """
     k = int(np.argmin(loss))
-    a, b = float(grid[max(k - 1, 0)]), float(grid[min(k + 1, grid.size - 1)])
-    best, best_loss = float(grid[k]), float(loss[k])
-    while b - a > 2:
-        cand = np.unique(np.round(np.linspace(a, b, 25)))
-        ch = choose_tests(model, policy, cand)
-        lc = _total_loss(model, ch)
-        j = int(np.argmin(lc))
-        if lc[j] < best_loss:
-            best, best_loss = float(cand[j]), float(lc[j])
-        a, b = float(cand[max(j - 1, 0)]), float(cand[min(j + 1, cand.size - 1)])
-    window = np.arange(max(grid[0], best - 16), min(grid[-1], best + 16) + 1)
-    ch = choose_tests(model, policy, window)
-    lw = _total_loss(model, ch)
-    j = int(np.argmin(lw))
-    return float(window[j]) if lw[j] < best_loss else float(best)
+    a, b = int(grid[max(k - 1, 0)]), int(grid[min(k + 1, grid.size - 1)])
+    seen: dict[int, float] = {int(g): float(v) for g, v in zip(grid, loss, strict=True)}
+
+    def f(*sizes: int) -> list[float]:
+        todo = [x for x in sizes if x not in seen]
+        if todo:
+            values = _total_loss(model, choose_tests(model, policy, np.array(todo, dtype=np.float64)))
+            seen.update(zip(todo, (float(v) for v in values), strict=True))
+        return [seen[x] for x in sizes]
+
+    if not model.uses_exact(np.array([a, b], dtype=np.float64)).any():
+        # normal tests are cheap: shrink the bracket with batches of 25 sizes
+        while b - a > 8:
+            cand = np.unique(np.round(np.linspace(a, b, 25))).astype(int)
+            values = f(*(int(x) for x in cand))
+            j = int(np.argmin(values))
+            a, b = int(cand[max(j - 1, 0)]), int(cand[min(j + 1, cand.size - 1)])
+    ratio = (np.sqrt(5) - 1) / 2
+    c, d = b - round(ratio * (b - a)), a + round(ratio * (b - a))
+    fc, fd = f(c, d)
+    while b - a > 8:
+        if fc <= fd:
+            b, d, fd = d, c, fc
+            c = b - round(ratio * (b - a))
+            (fc,) = f(c)
+        else:
+            a, c, fc = c, d, fd
+            d = a + round(ratio * (b - a))
+            (fd,) = f(d)
+    best = min(seen, key=seen.__getitem__)
+    window = [x for x in range(best - 8, best + 9) if grid[0] <= x <= grid[-1]]
+    f(*window)
+    return float(min(seen, key=seen.__getitem__))
 
 
 def _total_loss(model: LossModel, ch: Choice) -> FloatArray:
@@ -391,7 +417,7 @@ def _pick_size(model: LossModel, policy: Policy) -> _Pick:
         return _Pick(None, "with no per-subject cost and no size cap or budget, loss keeps falling with size")
     hi = float(top) if top is not None else np.inf
     if c.per_subject > 0:
-        per = c.per_subject * (1 + float(model.setting.allocation))
+        per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         bound = (model.flag_now + model.clear_now + float(model.study_cost(np.asarray(lo)))) / per + 2
         hi = min(hi, float(np.ceil(bound)))
     hi = max(hi, lo)
