@@ -24,12 +24,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from decision_helpers import fixed_size_problem, power_kwargs
 
-from decide.designs import get_design
 from decide.optimize import optimize
 from decide.power import power
 from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -39,51 +38,6 @@ POINT = EffectPrior.point(2.0)
 WIDE = EffectPrior.from_interval(1.5, 4.0, 0.9)
 
 
-def fixed_size_problem(
-    design: str,
-    baseline: float,
-    allocation: float,
-    years: float,
-    prior: EffectPrior,
-    missed: dict[str, float],
-    n: int,
-    *,
-    test: str = "normal",
-    continuity: bool = False,
-    p: float = 0.2,
-    false_alarm: float = 2e6,
-) -> Problem:
-    d = get_design(design)
-    study = Study(
-        design,
-        baseline,
-        allocation=allocation if d.allocation_name else 1.0,
-        years=years if d.uses_years else 1.0,
-        test=test,
-        continuity=continuity,
-    )
-    return Problem(
-        study,
-        prior,
-        p,
-        Consequences(false_alarm=false_alarm, per_subject=10.0, **missed),
-        Constraints(min_n_per_group=n, max_n_per_group=n),
-    )
-
-
-def power_kwargs(problem: Problem) -> dict[str, object]:
-    s = problem.study
-    d = get_design(s.design)
-    return {
-        "allocation": s.allocation if d.allocation_name else None,
-        "years": s.years if d.uses_years else None,
-        "sides": s.sides,
-        "test": s.test,
-        "continuity": s.continuity,
-    }
-
-
-# design, baseline, allocation, years, prior, missed cost, n
 NORMAL_CASES = [
     ("reference-rate", 1e-3, 1.0, 5.0, POINT, CONSTANT, 4000),
     ("reference-rate", 1e-3, 1.0, 5.0, EffectPrior.from_interval(1.3, 3.0, 0.8), DERIVED, 4000),

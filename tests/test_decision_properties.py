@@ -28,6 +28,7 @@ import warnings
 
 import numpy as np
 import pytest
+from decision_helpers import power_kwargs
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import special, stats
@@ -111,17 +112,6 @@ def problems(draw: st.DrawFn, constant_missed: bool = False, budget: bool = Fals
 # brute force
 
 
-def power_kwargs(problem: Problem) -> dict[str, object]:
-    s = problem.study
-    d = get_design(s.design)
-    return {
-        "allocation": s.allocation if d.allocation_name else None,
-        "years": s.years if d.uses_years else None,
-        "sides": s.sides,
-        "continuity": s.continuity,
-    }
-
-
 def normal_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
     """Least error loss of the normal test at each size over critical values z (dense, then refined)."""
     model = build_model(problem)
@@ -139,7 +129,7 @@ def normal_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
                 model.effects,
                 s.baseline,
                 test="normal",
-                **power_kwargs(problem),
+                **power_kwargs(problem, with_test=False),
             )
         agg = r.power @ model.weights.T
         err = p * np.maximum(model.expected_missed - agg[..., MISSED], 0.0)
@@ -247,7 +237,7 @@ def prior_beta_and_design_power(problem: Problem, alpha: float, n: int, test: st
     effects, weights = problem.effect.nodes()
     effects = np.append(effects, problem.effect.median)
     s = problem.study
-    r = power(s.design, alpha, n, effects, s.baseline, test=test, **power_kwargs(problem))
+    r = power(s.design, alpha, n, effects, s.baseline, test=test, **power_kwargs(problem, with_test=False))
     return float(np.sum(weights * (1 - r.power[:-1]))), float(r.power[-1]), float(r.attained_alpha[0])
 
 

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import decision_helpers as helpers
 import numpy as np
 import pytest
 from scipy import integrate, stats
@@ -30,7 +31,7 @@ from decide.errors import DecideError
 from decide.optimize import Decision, optimize
 from decide.power import power
 from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.problem import Problem
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -107,30 +108,10 @@ def test_point_prior_is_one_node() -> None:
 
 
 def fixed_size_problem(
-    design: str,
-    baseline: float,
-    allocation: float,
-    years: float,
-    prior: EffectPrior,
-    missed: dict[str, float],
-    test: str,
-    n: int,
+    design: str, baseline: float, allocation: float, years: float,
+    prior: EffectPrior, missed: dict[str, float], test: str, n: int,
 ) -> Problem:
-    d = get_design(design)
-    study = Study(
-        design,
-        baseline,
-        allocation=allocation if d.allocation_name else 1.0,
-        years=years if d.uses_years else 1.0,
-        test=test,
-    )
-    return Problem(
-        study,
-        prior,
-        0.2,
-        Consequences(false_alarm=2e6, per_subject=10.0, fixed=5e3, **missed),
-        Constraints(min_n_per_group=n, max_n_per_group=n),
-    )
+    return helpers.fixed_size_problem(design, baseline, allocation, years, prior, missed, n, test=test)
 
 
 def quad_loss(problem: Problem, dec: Decision) -> tuple[float, float]:
