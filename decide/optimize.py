@@ -30,7 +30,6 @@ import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
-from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -43,6 +42,7 @@ from .loss import (
     MISSED,
     Z_RANGE,
     Characteristics,
+    ExactOptions,
     LossModel,
     OperatingPoint,
     bisect_decreasing,
@@ -150,10 +150,12 @@ def _choose_normal(model: LossModel, policy: Policy, n: FloatArray) -> tuple[Cha
     return at(z), z
 
 
-def _choose_exact_batch(model: LossModel, policy: Policy, opts: Any) -> tuple[NDArray[np.int64], NDArray[np.bool_]]:
-    c: Characteristics = opts.chars
+def _choose_exact_batch(
+    model: LossModel, policy: Policy, opts: ExactOptions
+) -> tuple[NDArray[np.int64], NDArray[np.bool_]]:
+    """The column (attainable test) the alpha rule picks in each row, and whether one was found."""
+    c = opts.chars
     valid = opts.valid
-    cons = model.problem.constraints
     p = model.problem
     cols = np.arange(valid.shape[1])
     ok = valid & (_codes(model, policy, c) == OK)
@@ -180,7 +182,6 @@ def _choose_exact_batch(model: LossModel, policy: Policy, opts: Any) -> tuple[ND
             cand &= 1 - c.power <= c.attained + 1e-12
         k = np.argmax(cand, axis=1)
         found = cand.any(axis=1)
-    del cons
     return k, found
 
 
