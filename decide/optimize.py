@@ -160,14 +160,14 @@ def _choose_exact_batch(
     cols = np.arange(valid.shape[1])
     ok = valid & (_codes(model, policy, c) == OK)
     rule = policy.alpha_rule
-    found = np.ones(valid.shape[0], dtype=bool)
+    found: NDArray[np.bool_] = np.ones(valid.shape[0], dtype=bool)
     if rule == "fixed":
         assert policy.alpha is not None
         k = np.where(valid & (c.nominal <= policy.alpha * (1 + _exact.REL_TOL)), cols, 0).max(axis=1)
     elif rule == "loss-optimal":
         score = np.where(ok, model.error_loss(c.attained, c.missed), np.inf)
         k = np.argmin(score, axis=1)
-        found = np.isfinite(score[np.arange(k.size), k])
+        found = np.asarray(np.isfinite(score[np.arange(k.size), k]))
     elif rule == "posterior":
         t = policy.posterior_threshold
         assert t is not None
@@ -181,7 +181,7 @@ def _choose_exact_batch(
         if policy.beta_at_most_alpha:
             cand &= 1 - c.power <= c.attained + 1e-12
         k = np.argmax(cand, axis=1)
-        found = cand.any(axis=1)
+        found = np.asarray(cand.any(axis=1))
     return k, found
 
 
