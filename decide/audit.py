@@ -32,6 +32,7 @@ import numpy as np
 
 from . import _checks
 from ._results import PlainData
+from .designs import get_design
 from .errors import DecideError
 from .loss import build_model, normal_at
 from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
@@ -174,11 +175,11 @@ def _exact_slope(model: Any, alpha: float, n: float) -> float:
 def _detect(sol: Any, level: float) -> float | None:
     if level <= sol.alpha:
         return None
+    allocation, years = get_design(sol.design).applicable(sol.allocation, sol.years)
     try:
         return solve(
             sol.design, baseline=sol.baseline, alpha=sol.alpha, power=level,
-            n_per_group=sol.n_per_group, allocation=None if sol.design == "reference-rate" else sol.allocation,
-            years=sol.years if sol.design in ("cohort-rate", "reference-rate") else None,
+            n_per_group=sol.n_per_group, allocation=allocation, years=years,
             sides=sol.sides, test=sol.test.replace("normal-cc", "normal"),
             continuity=sol.test == "normal-cc",
         ).effect

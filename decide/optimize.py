@@ -115,7 +115,11 @@ def _choose_normal(model: LossModel, policy: Policy, n: FloatArray) -> tuple[Cha
         return bisect_decreasing(lambda z: at(z).design_power - target, zlo, zhi)
 
     def equal_root() -> FloatArray:
-        return bisect_decreasing(lambda z: at(z).attained - (1 - at(z).power), zlo, zhi)
+        def gap(z: FloatArray) -> FloatArray:
+            c = at(z)
+            return np.asarray(c.attained - (1 - c.power))
+
+        return bisect_decreasing(gap, zlo, zhi)
 
     lo = zlo if cons.max_alpha >= 1 else np.maximum(zlo, _normal.critical_z(np.asarray(cons.max_alpha), s.sides))
     hi = zhi
@@ -369,12 +373,12 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     from .solve import solve
 
     s, study = model.setting, model.problem.study
+    allocation, years = s.design.applicable(study.allocation, study.years)
     try:
         sol = solve(
             s.design, baseline=study.baseline, alpha=policy.alpha, power=policy.power,
             effect=model.problem.effect.median,
-            allocation=study.allocation if s.design.allocation_name is not None else None,
-            years=study.years if s.design.uses_years else None, sides=s.sides, test=s.test,
+            allocation=allocation, years=years, sides=s.sides, test=s.test,
             continuity=s.continuity, max_n_per_group=SIZE_CEILING,
         )
     except DecideError:
@@ -558,11 +562,12 @@ def ratio_point(rng: tuple[float, float]) -> float | None:
 def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float | None:
     s = model.setting
     study = model.problem.study
+    allocation, years = s.design.applicable(study.allocation, study.years)
     return _detectable_effect(
         s.design.name,
         study.baseline,
-        study.allocation if s.design.allocation_name is not None else None,
-        study.years if s.design.uses_years else None,
+        allocation,
+        years,
         s.sides,
         s.continuity,
         alpha,

@@ -111,6 +111,14 @@ class StudyDesign(ABC):
     def effect_limit(self, baseline: FloatArray) -> FloatArray:
         """The effect (exclusive) above which the design's model breaks; ``inf`` if none."""
 
+    def applicable(self, allocation: float, years: float) -> tuple[float | None, float | None]:
+        """Allocation and follow-up years where this design uses them, else ``None``.
+
+        The API refuses a value for a setting the design does not have, so
+        callers passing a study's settings on use this.
+        """
+        return (None if self.allocation_name is None else allocation, years if self.uses_years else None)
+
     def comparison_size(self, n: FloatArray, allocation: FloatArray) -> FloatArray:
         """Subjects in the comparison group (0 for a one-group design).
 
