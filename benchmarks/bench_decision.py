@@ -31,9 +31,9 @@ import warnings
 from collections.abc import Callable
 from pathlib import Path
 
-from decide.optimize import optimize
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.optimize import optimize
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

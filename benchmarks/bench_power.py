@@ -9,7 +9,7 @@ Workloads
 ---------
 1. 100,000 normal size solves with mixed inputs (all four designs, one- and
    two-sided, rare to common baselines), validation included
-   (:func:`decide._study.check_setting` then :func:`decide.solve.normal_size`),
+   (:func:`decide.engine.study.check_setting` then :func:`decide.engine.solve.normal_size`),
    against a Python loop of statsmodels'
    ``samplesize_proportions_2indep_onetail`` over 2,000 of the two-proportion
    inputs, extrapolated per solve, in the same run.
@@ -28,10 +28,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from decide._study import check_setting
+from decide.engine.study import check_setting
 from decide.designs import DESIGNS
-from decide.power import exact_power
-from decide.solve import normal_size
+from decide.engine.power import exact_power
+from decide.engine.solve import normal_size
 
 N_SOLVES = 100_000
 N_REFERENCE = 2_000

@@ -12,15 +12,15 @@ on with ``from decide.solve import ...``.)
 
 from __future__ import annotations
 
-from .audit import Audit, audit
+from .decision.audit import Audit, audit
 from .designs import DESIGNS, StudyDesign, get_design
 from .errors import ApproximationWarning, DecideError, InfeasibleError
-from .optimize import Decision, compare, decide_policy, optimize
-from .policies import LOSS_OPTIMAL, Policy
-from .power import PowerResult, power
-from .prior import EffectPrior
-from .problem import Consequences, Constraints, Problem, Study
-from .solve import Solution, solve
+from .decision.optimize import Decision, compare, decide_policy, optimize
+from .decision.policies import LOSS_OPTIMAL, Policy
+from .engine.power import PowerResult, power
+from .decision.prior import EffectPrior
+from .decision.problem import Consequences, Constraints, Problem, Study
+from .engine.solve import Solution, solve
 
 __version__ = "0.1.0"
 

@@ -17,10 +17,10 @@ import typer
 from rich.console import Console
 from typer.core import TyperGroup
 
-from .audit import audit as _audit
+from .decision.audit import audit as _audit
 from .errors import DecideError, InfeasibleError
-from .optimize import compare as _compare
-from .optimize import optimize as _optimize
+from .decision.optimize import compare as _compare
+from .decision.optimize import optimize as _optimize
 from .report import console as render
 from .report import tables
 from .report.text import json_safe
@@ -32,8 +32,8 @@ from .scenario import (
     scenario_template,
     write_text_atomic,
 )
-from .solve import MAX_N_PER_GROUP
-from .solve import solve as _solve
+from .engine.solve import MAX_N_PER_GROUP
+from .engine.solve import solve as _solve
 
 _OPTIONS = {
     "alpha": "--alpha",

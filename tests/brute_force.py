@@ -1,6 +1,6 @@
 """Exact power by brute force, built only from scipy's tests and distributions.
 
-These helpers are the outside check for :mod:`decide.designs._exact`: they
+These helpers are the outside check for :mod:`decide.engine.exact`: they
 enumerate every count pair a small study can produce, ask scipy for the
 p-value of each (``fisher_exact``, ``binomtest``, ``poisson``), and add up the
 binomial or Poisson probabilities of the pairs the level-``alpha`` test

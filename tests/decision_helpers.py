@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 from decide.designs import get_design
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 
 
 def fixed_size_problem(

@@ -23,7 +23,7 @@ import pytest
 from typer.testing import CliRunner
 
 from decide.cli import app
-from decide.optimize import compare, optimize
+from decide.decision.optimize import compare, optimize
 from decide.report.text import CAUTION
 from decide.scenario import BUILTIN_ORDER, load_policies, load_scenario
 

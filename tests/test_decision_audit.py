@@ -23,9 +23,9 @@ import math
 import pytest
 from scipy import stats
 
-from decide.audit import audit
+from decide.decision.audit import audit
 from decide.errors import DecideError
-from decide.power import power
+from decide.engine.power import power
 
 # (design, baseline, allocation, years, effect, n_per_group)
 NORMAL_PROTOCOLS = [

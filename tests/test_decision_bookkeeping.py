@@ -29,10 +29,10 @@ from scipy import stats
 
 from decide.designs import get_design
 from decide.errors import ApproximationWarning
-from decide.optimize import Decision, compare, decide_policy, optimize
-from decide.power import power
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.optimize import Decision, compare, decide_policy, optimize
+from decide.engine.power import power
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.scenario import load_policies, load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -236,7 +236,7 @@ def test_seeded_simulation_of_the_decision_process_agrees_with_expected_loss() -
 
 
 def test_decide_policy_takes_a_prepared_model_or_a_problem() -> None:
-    from decide.loss import build_model
+    from decide.decision.loss import build_model
 
     prob = constructed_problems()[1]
     policy = load_policies()["equal-errors"]

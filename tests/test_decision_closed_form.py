@@ -29,9 +29,9 @@ import pytest
 from scipy import optimize as sopt
 from scipy import stats
 
-from decide.optimize import optimize
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.optimize import optimize
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 
 
 def reference_problem(

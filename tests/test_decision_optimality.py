@@ -26,9 +26,9 @@ import numpy as np
 import pytest
 from decision_helpers import fixed_size_problem, power_kwargs
 
-from decide.optimize import optimize
-from decide.power import power
-from decide.prior import EffectPrior
+from decide.decision.optimize import optimize
+from decide.engine.power import power
+from decide.decision.prior import EffectPrior
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

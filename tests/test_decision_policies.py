@@ -30,15 +30,15 @@ import pytest
 from scipy import stats
 
 from decide.designs import get_design
-from decide.loss import build_model
-from decide.optimize import compare, decide_policy
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.loss import build_model
+from decide.decision.optimize import compare, decide_policy
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.scenario import load_policies, load_scenario
-from decide.solve import solve
+from decide.engine.solve import solve
 
 # the module, not the function decide.optimize that the package exports under the same name
-OPTIMIZE_MODULE = importlib.import_module("decide.optimize")
+OPTIMIZE_MODULE = importlib.import_module("decide.decision.optimize")
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((REPO / "scenarios").glob("*.toml"))
 POLICIES = load_policies()

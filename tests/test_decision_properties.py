@@ -34,11 +34,11 @@ from hypothesis import strategies as st
 from scipy import special, stats
 
 from decide.designs import get_design
-from decide.loss import DESIGN, MISSED, build_model, exact_batches
-from decide.optimize import compare, optimize
-from decide.power import power
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.loss import DESIGN, MISSED, build_model, exact_batches
+from decide.decision.optimize import compare, optimize
+from decide.engine.power import power
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.scenario import load_policies
 
 POLICIES = load_policies()

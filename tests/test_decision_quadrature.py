@@ -28,10 +28,10 @@ from scipy import integrate, stats
 
 from decide.designs import get_design
 from decide.errors import DecideError
-from decide.optimize import Decision, optimize
-from decide.power import power
-from decide.prior import EffectPrior
-from decide.problem import Problem
+from decide.decision.optimize import Decision, optimize
+from decide.engine.power import power
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Problem
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 from decide.errors import DecideError
-from decide.policies import LOSS_OPTIMAL, Policy
+from decide.decision.policies import LOSS_OPTIMAL, Policy
 from decide.scenario import (
     BUILTIN_ORDER,
     PolicyFileError,

@@ -10,7 +10,7 @@ from typer.testing import CliRunner
 
 from decide import ApproximationWarning, DecideError, InfeasibleError, power
 from decide.cli import app
-from decide.solve import solve
+from decide.engine.solve import solve
 
 GOOD = {"baseline": 0.01, "effect": 3.0, "alpha": 0.05, "power": 0.8}
 

@@ -17,7 +17,7 @@ import pytest
 from scipy import stats
 
 from decide import power
-from decide.solve import solve
+from decide.engine.solve import solve
 
 ALPHAS = (0.01, 0.05, 0.1)
 

@@ -19,7 +19,7 @@ from scipy import special
 
 from decide.designs import DESIGNS
 from decide.errors import DecideError
-from decide.problem import Problem
+from decide.decision.problem import Problem
 from decide.scenario import (
     LoadedScenario,
     ScenarioError,
@@ -31,7 +31,7 @@ from decide.scenario import (
     write_text_atomic,
 )
 from decide.scenario.models import DesignName, TestName
-from decide.solve import solve
+from decide.engine.solve import solve
 
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((REPO / "scenarios").glob("*.toml"))
@@ -517,7 +517,7 @@ def test_json_schema_describes_every_table_and_key() -> None:
 def test_model_vocabulary_matches_the_core() -> None:
     from typing import get_args
 
-    from decide._study import TESTS
+    from decide.engine.study import TESTS
 
     assert set(get_args(DesignName)) == set(DESIGNS)
     assert set(get_args(TestName)) == set(TESTS)

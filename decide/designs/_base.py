@@ -8,7 +8,7 @@ follow-up years) into two things the shared engines understand:
 * :class:`CountModel`, the distributions of the counts an exact test sees
   and the conditional test it runs on them.
 
-The engines in :mod:`decide.designs._normal` and :mod:`decide.designs._exact`
+The engines in :mod:`decide.engine.normal` and :mod:`decide.engine.exact`
 do the rest, so a new design is one new module with one class.
 """
 

@@ -9,10 +9,10 @@ from rich.panel import Panel
 from rich.table import Table
 from rich.text import Text
 
-from ..audit import Audit
+from ..decision.audit import Audit
 from ..designs import StudyDesign, get_design
-from ..optimize import Decision
-from ..solve import Solution
+from ..decision.optimize import Decision
+from ..engine.solve import Solution
 from .text import CAUTION, fmt, fmt_compact
 
 _LABELS = {

@@ -6,7 +6,7 @@ import csv
 import io
 from typing import Any
 
-from ..optimize import Decision
+from ..decision.optimize import Decision
 from .text import CAUTION, fmt, json_safe
 
 #: Columns of the flat comparison formats (CSV, Markdown).

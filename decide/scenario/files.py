@@ -27,7 +27,7 @@ from pydantic.json_schema import GenerateJsonSchema, JsonSchemaValue
 from pydantic_core import core_schema
 
 from decide.errors import DecideError
-from decide.problem import Problem
+from decide.decision.problem import Problem
 
 from ._messages import (
     ScenarioError,

@@ -36,8 +36,8 @@ from pydantic import BaseModel, ConfigDict, Field, field_validator, model_valida
 from pydantic_core import PydanticCustomError
 
 from decide.designs import DESIGNS, get_design
-from decide.prior import EffectPrior
-from decide.problem import Consequences, Constraints, Problem, Study
+from decide.decision.prior import EffectPrior
+from decide.decision.problem import Consequences, Constraints, Problem, Study
 
 DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
 TestName = Literal["normal", "exact", "auto"]

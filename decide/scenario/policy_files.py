@@ -14,7 +14,7 @@ A policy file states how alpha and the study size are chosen::
     [size]
     rule = "smallest-for-power"   # smallest-for-power | largest-allowed | loss-optimal
 
-The rules are described in :mod:`decide.policies`.  The policy's name is the
+The rules are described in :mod:`decide.decision.policies`.  The policy's name is the
 file's stem (``conventional-science.toml`` is ``conventional-science``).
 
 The bundled policies live in the top-level ``policies/`` folder of a source
@@ -37,7 +37,7 @@ from typing import Annotated, Any
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from decide.errors import DecideError
-from decide.policies import AlphaRule, Policy, SizeRule
+from decide.decision.policies import AlphaRule, Policy, SizeRule
 
 from ._messages import PolicyFileError, from_core_error
 from .files import read_toml, toml_json_schema, validate_model

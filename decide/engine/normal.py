@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
-from ._base import FloatArray, NormalMoments
+from ..designs._base import FloatArray, NormalMoments
 
 
 def critical_z(alpha: FloatArray, sides: int) -> FloatArray:

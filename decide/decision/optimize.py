@@ -34,10 +34,12 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import NDArray
 
-from ._results import PlainData
-from .designs import AUTO_EXACT_BELOW, EXACT_UP_TO, _exact, _normal
-from .designs._base import FloatArray
-from .errors import ApproximationWarning, DecideError
+from .._results import PlainData
+from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..engine import exact as _exact
+from ..engine import normal as _normal
+from ..designs._base import FloatArray
+from ..errors import ApproximationWarning, DecideError
 from .loss import (
     MISSED,
     Z_RANGE,
@@ -370,7 +372,7 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
         return None, OK
     if model.setting.design.allocation_name is not None:
         return None, OK  # two-group designs barely saw-tooth; the general search is faster
-    from .solve import solve
+    from ..engine.solve import solve
 
     s, study = model.setting, model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)
@@ -589,7 +591,7 @@ def _detectable_effect(
     exact: bool,
 ) -> float | None:
     """The smallest effect detected with power 0.8 (cached: policies often share a study)."""
-    from .solve import solve
+    from ..engine.solve import solve
 
     if not 0 < alpha < 0.8:
         return None
@@ -716,8 +718,8 @@ def optimize(problem: Problem) -> Decision:
 
     Examples
     --------
-    >>> from decide.problem import Problem, Study, Consequences
-    >>> from decide.prior import EffectPrior
+    >>> from decide.decision.problem import Problem, Study, Consequences
+    >>> from decide.decision.prior import EffectPrior
     >>> prob = Problem(Study("reference-rate", 2e-4, years=5.0), EffectPrior.point(2.0), 0.3,
     ...                Consequences(false_alarm=1e6, per_subject=20.0, missed_hazard=1e8))
     >>> d = optimize(prob)

@@ -7,10 +7,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
-from . import _checks
-from .designs import StudyDesign, get_design
-from .designs._base import FloatArray
-from .errors import DecideError
+from .. import _checks
+from ..designs import StudyDesign, get_design
+from ..designs._base import FloatArray
+from ..errors import DecideError
 
 TESTS = ("auto", "normal", "exact")
 

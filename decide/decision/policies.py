@@ -50,8 +50,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
-from ._checks import open_unit
-from .errors import DecideError
+from .._checks import open_unit
+from ..errors import DecideError
 
 AlphaRule = Literal["fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power"]
 SizeRule = Literal["smallest-for-power", "largest-allowed", "loss-optimal"]

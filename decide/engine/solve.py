@@ -28,12 +28,14 @@ from typing import Any
 import numpy as np
 from scipy import special
 
-from . import _checks
-from ._results import PlainData
-from ._study import Setting, check_alpha_power, check_effect, check_setting
-from .designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign, _exact, _normal
-from .designs._base import FloatArray
-from .errors import DecideError, InfeasibleError
+from .. import _checks
+from .._results import PlainData
+from .study import Setting, check_alpha_power, check_effect, check_setting
+from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign
+from . import exact as _exact
+from . import normal as _normal
+from ..designs._base import FloatArray
+from ..errors import DecideError, InfeasibleError
 from .power import choose_exact, evaluate, exact_power
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
@@ -403,7 +405,7 @@ def solve(
 
     Examples
     --------
-    >>> from decide.solve import solve
+    >>> from decide import solve
     >>> s = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
     >>> s.n_per_group, s.n_total
     (188, 376)

@@ -36,7 +36,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import special, stats
 
-from ._base import CountModel, FloatArray, Marginal
+from ..designs._base import CountModel, FloatArray, Marginal
 
 #: Tail mass left out at each end of each count's window.
 TAIL = 1e-13

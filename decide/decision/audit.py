@@ -30,17 +30,17 @@ from typing import Any
 
 import numpy as np
 
-from . import _checks
-from ._results import PlainData
-from .designs import get_design
-from .errors import DecideError
+from .. import _checks
+from .._results import PlainData
+from ..designs import get_design
+from ..errors import DecideError
 from .loss import build_model, normal_at
 from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
 from .policies import Policy
-from .power import evaluate
+from ..engine.power import evaluate
 from .prior import EffectPrior
 from .problem import Consequences, Problem, Study
-from .solve import solve
+from ..engine.solve import solve
 
 DETECTION_LEVELS = (0.5, 0.8, 0.95)
 

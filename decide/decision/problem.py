@@ -10,11 +10,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ._checks import non_negative, open_unit, positive
-from ._study import Setting, check_setting
-from .designs import get_design
-from .designs._base import FloatArray
-from .errors import DecideError
+from .._checks import non_negative, open_unit, positive
+from ..engine.study import Setting, check_setting
+from ..designs import get_design
+from ..designs._base import FloatArray
+from ..errors import DecideError
 from .prior import EffectPrior
 
 

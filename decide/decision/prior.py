@@ -17,9 +17,9 @@ from functools import lru_cache
 import numpy as np
 from scipy import special
 
-from ._checks import open_unit, positive
-from .designs._base import FloatArray
-from .errors import DecideError
+from .._checks import open_unit, positive
+from ..designs._base import FloatArray
+from ..errors import DecideError
 
 #: Panels and Gauss-Legendre order of the quadrature used while optimising.
 SEARCH_PANELS, ORDER = 16, 6

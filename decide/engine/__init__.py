@@ -1,0 +1,12 @@
+"""The power engine: normal and exact tests, power and the solver.
+
+Depends only on :mod:`decide.designs` (and the package's checks and
+errors); the decision layer builds on it.
+"""
+
+from __future__ import annotations
+
+from .power import PowerResult, power
+from .solve import Solution, solve
+
+__all__ = ["PowerResult", "Solution", "power", "solve"]
