@@ -28,10 +28,10 @@ from collections.abc import Callable
 
 import numpy as np
 
-from decide.engine.study import check_setting
 from decide.designs import DESIGNS
 from decide.engine.power import exact_power
 from decide.engine.solve import normal_size
+from decide.engine.study import check_setting
 
 N_SOLVES = 100_000
 N_REFERENCE = 2_000

@@ -13,14 +13,14 @@ on with ``from decide.solve import ...``.)
 from __future__ import annotations
 
 from .decision.audit import Audit, audit
-from .designs import DESIGNS, StudyDesign, get_design
-from .errors import ApproximationWarning, DecideError, InfeasibleError
 from .decision.optimize import Decision, compare, decide_policy, optimize
 from .decision.policies import LOSS_OPTIMAL, Policy
-from .engine.power import PowerResult, power
 from .decision.prior import EffectPrior
 from .decision.problem import Consequences, Constraints, Problem, Study
+from .designs import DESIGNS, StudyDesign, get_design
+from .engine.power import PowerResult, power
 from .engine.solve import Solution, solve
+from .errors import ApproximationWarning, DecideError, InfeasibleError
 
 __version__ = "0.1.0"
 

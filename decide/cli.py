@@ -18,9 +18,11 @@ from rich.console import Console
 from typer.core import TyperGroup
 
 from .decision.audit import audit as _audit
-from .errors import DecideError, InfeasibleError
 from .decision.optimize import compare as _compare
 from .decision.optimize import optimize as _optimize
+from .engine.solve import MAX_N_PER_GROUP
+from .engine.solve import solve as _solve
+from .errors import DecideError, InfeasibleError
 from .report import console as render
 from .report import tables
 from .report.text import json_safe
@@ -32,8 +34,6 @@ from .scenario import (
     scenario_template,
     write_text_atomic,
 )
-from .engine.solve import MAX_N_PER_GROUP
-from .engine.solve import solve as _solve
 
 _OPTIONS = {
     "alpha": "--alpha",

@@ -2,9 +2,9 @@
 
 from __future__ import annotations
 
-from decide.designs import get_design
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
+from decide.designs import get_design
 
 
 def fixed_size_problem(

@@ -24,8 +24,8 @@ import pytest
 from scipy import stats
 
 from decide.decision.audit import audit
-from decide.errors import DecideError
 from decide.engine.power import power
+from decide.errors import DecideError
 
 # (design, baseline, allocation, years, effect, n_per_group)
 NORMAL_PROTOCOLS = [

@@ -27,12 +27,12 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from decide.designs import get_design
-from decide.errors import ApproximationWarning
 from decide.decision.optimize import Decision, compare, decide_policy, optimize
-from decide.engine.power import power
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
+from decide.designs import get_design
+from decide.engine.power import power
+from decide.errors import ApproximationWarning
 from decide.scenario import load_policies, load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

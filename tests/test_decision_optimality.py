@@ -27,8 +27,8 @@ import pytest
 from decision_helpers import fixed_size_problem, power_kwargs
 
 from decide.decision.optimize import optimize
-from decide.engine.power import power
 from decide.decision.prior import EffectPrior
+from decide.engine.power import power
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

@@ -29,13 +29,13 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from decide.designs import get_design
 from decide.decision.loss import build_model
 from decide.decision.optimize import compare, decide_policy
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
-from decide.scenario import load_policies, load_scenario
+from decide.designs import get_design
 from decide.engine.solve import solve
+from decide.scenario import load_policies, load_scenario
 
 # the module, not the function decide.optimize that the package exports under the same name
 OPTIMIZE_MODULE = importlib.import_module("decide.decision.optimize")

@@ -33,12 +33,12 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import special, stats
 
-from decide.designs import get_design
 from decide.decision.loss import DESIGN, MISSED, build_model, exact_batches
 from decide.decision.optimize import compare, optimize
-from decide.engine.power import power
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
+from decide.designs import get_design
+from decide.engine.power import power
 from decide.scenario import load_policies
 
 POLICIES = load_policies()

@@ -26,12 +26,12 @@ import numpy as np
 import pytest
 from scipy import integrate, stats
 
-from decide.designs import get_design
-from decide.errors import DecideError
 from decide.decision.optimize import Decision, optimize
-from decide.engine.power import power
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Problem
+from decide.designs import get_design
+from decide.engine.power import power
+from decide.errors import DecideError
 from decide.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]

@@ -10,8 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from decide.errors import DecideError
 from decide.decision.policies import LOSS_OPTIMAL, Policy
+from decide.errors import DecideError
 from decide.scenario import (
     BUILTIN_ORDER,
     PolicyFileError,

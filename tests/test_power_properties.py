@@ -16,10 +16,10 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from decide import power
-from decide.engine.study import check_setting
 from decide.designs import AUTO_EXACT_BELOW
 from decide.engine.exact import ALPHA_FLOOR
 from decide.engine.solve import normal_size, solve
+from decide.engine.study import check_setting
 
 DESIGNS = ("cohort-risk", "case-control", "cohort-rate", "reference-rate")
 quiet = pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")

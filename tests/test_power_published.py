@@ -11,8 +11,8 @@ import pytest
 from scipy import stats
 
 from decide import power
-from decide.engine.study import check_setting
 from decide.engine.solve import normal_size, solve
+from decide.engine.study import check_setting
 
 Z = stats.norm.ppf
 

@@ -18,10 +18,10 @@ import pytest
 from statsmodels.stats import proportion as sm_proportion
 from statsmodels.stats import rates as sm_rates
 
-from decide.engine.study import check_setting
 from decide.designs import get_design
 from decide.engine.power import normal_power
 from decide.engine.solve import normal_size
+from decide.engine.study import check_setting
 
 ALTERNATIVE = {1: "larger", 2: "two-sided"}
 

@@ -17,9 +17,10 @@ import pytest
 from pydantic import BaseModel
 from scipy import special
 
-from decide.designs import DESIGNS
-from decide.errors import DecideError
 from decide.decision.problem import Problem
+from decide.designs import DESIGNS
+from decide.engine.solve import solve
+from decide.errors import DecideError
 from decide.scenario import (
     LoadedScenario,
     ScenarioError,
@@ -31,7 +32,6 @@ from decide.scenario import (
     write_text_atomic,
 )
 from decide.scenario.models import DesignName, TestName
-from decide.engine.solve import solve
 
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((REPO / "scenarios").glob("*.toml"))

@@ -33,14 +33,14 @@ import numpy as np
 from .. import _checks
 from .._results import PlainData
 from ..designs import get_design
+from ..engine.power import evaluate
+from ..engine.solve import solve
 from ..errors import DecideError
 from .loss import build_model, normal_at
 from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
 from .policies import Policy
-from ..engine.power import evaluate
 from .prior import EffectPrior
 from .problem import Consequences, Problem, Study
-from ..engine.solve import solve
 
 DETECTION_LEVELS = (0.5, 0.8, 0.95)
 

@@ -37,11 +37,11 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import special
 
-from ..engine.study import Setting
+from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
-from ..designs._base import FloatArray
 from ..engine.power import choose_exact
+from ..engine.study import Setting
 from .prior import SEARCH_PANELS
 from .problem import Problem
 

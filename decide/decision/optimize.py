@@ -36,9 +36,9 @@ from numpy.typing import NDArray
 
 from .._results import PlainData
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
-from ..designs._base import FloatArray
 from ..errors import ApproximationWarning, DecideError
 from .loss import (
     MISSED,

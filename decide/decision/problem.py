@@ -11,9 +11,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .._checks import non_negative, open_unit, positive
-from ..engine.study import Setting, check_setting
 from ..designs import get_design
 from ..designs._base import FloatArray
+from ..engine.study import Setting, check_setting
 from ..errors import DecideError
 from .prior import EffectPrior
 

@@ -15,12 +15,12 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .. import _checks
-from .study import Setting, check_alpha_power, check_effect, check_setting
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign
-from . import exact as _exact
-from . import normal as _normal
 from ..designs._base import FloatArray
 from ..errors import ApproximationWarning
+from . import exact as _exact
+from . import normal as _normal
+from .study import Setting, check_alpha_power, check_effect, check_setting
 
 
 @dataclass(frozen=True)

@@ -30,13 +30,13 @@ from scipy import special
 
 from .. import _checks
 from .._results import PlainData
-from .study import Setting, check_alpha_power, check_effect, check_setting
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign
-from . import exact as _exact
-from . import normal as _normal
 from ..designs._base import FloatArray
 from ..errors import DecideError, InfeasibleError
+from . import exact as _exact
+from . import normal as _normal
 from .power import choose_exact, evaluate, exact_power
+from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
 #: Default cap on the exposed group (or cases) for size solves.

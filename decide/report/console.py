@@ -10,8 +10,8 @@ from rich.table import Table
 from rich.text import Text
 
 from ..decision.audit import Audit
-from ..designs import StudyDesign, get_design
 from ..decision.optimize import Decision
+from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
 from .text import CAUTION, fmt, fmt_compact
 

@@ -26,8 +26,8 @@ from pydantic import BaseModel, ValidationError
 from pydantic.json_schema import GenerateJsonSchema, JsonSchemaValue
 from pydantic_core import core_schema
 
-from decide.errors import DecideError
 from decide.decision.problem import Problem
+from decide.errors import DecideError
 
 from ._messages import (
     ScenarioError,

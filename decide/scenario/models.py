@@ -35,9 +35,9 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 from pydantic_core import PydanticCustomError
 
-from decide.designs import DESIGNS, get_design
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
+from decide.designs import DESIGNS, get_design
 
 DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
 TestName = Literal["normal", "exact", "auto"]

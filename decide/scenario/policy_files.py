@@ -36,8 +36,8 @@ from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
-from decide.errors import DecideError
 from decide.decision.policies import AlphaRule, Policy, SizeRule
+from decide.errors import DecideError
 
 from ._messages import PolicyFileError, from_core_error
 from .files import read_toml, toml_json_schema, validate_model
