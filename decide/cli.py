@@ -235,20 +235,22 @@ def solve_command(
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
 ) -> None:
     """Solve for whichever of alpha, power, size or effect is left out."""
-    call = lambda: _solve(  # noqa: E731
-        design.value,
-        baseline=baseline,
-        alpha=alpha,
-        power=power,
-        n_per_group=n_per_group,
-        effect=effect,
-        allocation=allocation,
-        years=years,
-        sides=sides,
-        test=test.value,
-        continuity=continuity,
-        max_n_per_group=max_n_per_group,
-    )
+    def call() -> Any:
+        return _solve(
+            design.value,
+            baseline=baseline,
+            alpha=alpha,
+            power=power,
+            n_per_group=n_per_group,
+            effect=effect,
+            allocation=allocation,
+            years=years,
+            sides=sides,
+            test=test.value,
+            continuity=continuity,
+            max_n_per_group=max_n_per_group,
+        )
+
     with busy("Solving...", enabled=not as_json):
         solution = run_api("solve", call)
     if as_json:
@@ -369,11 +371,13 @@ def audit_command(
     as_json: JsonFlag = False,
 ) -> None:
     """Reveal the value judgments a protocol's alpha and size imply."""
-    call = lambda: _audit(  # noqa: E731
-        design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
-        per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
-        years=years, sides=sides, test=test.value,
-    )
+    def call() -> Any:
+        return _audit(
+            design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
+            per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
+            years=years, sides=sides, test=test.value,
+        )
+
     with busy("Auditing the protocol...", enabled=not as_json):
         result = run_api("audit", call)
     if as_json:

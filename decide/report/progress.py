@@ -35,7 +35,10 @@ def busy(message: str, enabled: bool = True, console: Console | None = None, del
 
     timer = threading.Timer(delay, start)
     timer.daemon = True
-    timer.start()
+    if delay <= 0:
+        start()
+    else:
+        timer.start()
     try:
         yield
     finally:

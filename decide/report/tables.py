@@ -66,7 +66,7 @@ def compare_document(
         entry = d.to_dict()
         entry.pop("no_study", None)
         policies.append(entry)
-    return nb.for_json(
+    document: dict[str, Any] = nb.for_json(
         {
             "scenario": scenario,
             "currency": currency,
@@ -76,6 +76,7 @@ def compare_document(
             "policies": policies,
         }
     )
+    return document
 
 
 _HEAD = ["policy", "meets the constraints", "alpha", "attained alpha", "beta", "power (design)",
