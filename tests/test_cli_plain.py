@@ -259,3 +259,22 @@ def test_progress_is_silent_off_a_terminal_and_shown_on_one() -> None:
 def test_cli_progress_never_reaches_a_captured_stderr() -> None:
     result = run("compare", DEPOT, "--policy", "loss-optimal")
     assert result.exit_code == 0 and result.stderr == ""
+
+
+def test_policies_at_80_columns_keep_a_long_name_whole(tmp_path: Path) -> None:
+    name = "a-very-long-policy-name-that-a-board-wrote-for-its-own-standard-of-proof"
+    folder = tmp_path / "mine"
+    folder.mkdir()
+    (folder / f"{name}.toml").write_text(
+        'title = "Invented long one"\nsummary = "Alpha fixed at 0.01."\n'
+        '[alpha]\nrule = "fixed"\nvalue = 0.01\n[size]\nrule = "largest-allowed"\n',
+        encoding="utf-8",
+    )
+    result = run("policies", "--policy-dir", folder, env={"COLUMNS": "80"})
+    assert result.exit_code == 0, result.stderr
+    lines = result.stdout.splitlines()
+    assert all(len(line) <= 80 for line in lines)
+    assert any(name in line for line in lines), "the long name was broken or shortened"
+    assert "…" not in result.stdout
+    for builtin in load_policies():
+        assert any(re.search(rf"(^|[\s(]){re.escape(builtin)}($|[\s)])", line) for line in lines), builtin

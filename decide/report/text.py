@@ -61,7 +61,8 @@ def one_line(text: Any) -> str:
     return " ".join(literal(text).split())
 
 
-_MD_SPECIAL = re.compile(r"([\\`*_{}\[\]<>()#+!|~])")
+#: Characters with a meaning inside a Markdown line (emphasis, links, code, HTML, table cells).
+_MD_SPECIAL = re.compile(r"([\\`*_\[\]<>|~])")
 
 
 def markdown_literal(text: Any) -> str:
@@ -69,8 +70,8 @@ def markdown_literal(text: Any) -> str:
 
     Examples
     --------
-    >>> markdown_literal("a | b [x](y) *z*")
-    'a \\\\| b \\\\[x\\\\]\\\\(y\\\\) \\\\*z\\\\*'
+    >>> markdown_literal("a | b [x](y) *z* (1 + 2)")
+    'a \\\\| b \\\\[x\\\\](y) \\\\*z\\\\* (1 + 2)'
     """
     return _MD_SPECIAL.sub(r"\\\1", one_line(text))
 
