@@ -1,7 +1,7 @@
 """Shared wording, and user text made safe to print literally.
 
-Numbers are formatted in :mod:`decide.report.numbers`; ``fmt`` and
-``json_safe`` remain here as thin aliases for older callers.
+Numbers are formatted in :mod:`decide.report.numbers`; ``fmt``,
+``fmt_compact`` and ``json_safe`` remain here as thin aliases for older callers.
 """
 
 from __future__ import annotations
@@ -77,16 +77,30 @@ def markdown_literal(text: Any) -> str:
 
 
 def fmt(value: Any, digits: int = 4) -> str:
-    """Deprecated alias: a number for people, as :func:`decide.report.numbers.number`."""
+    """Older callers' number format: counts as :func:`numbers.count`, others as :func:`numbers.number`.
+
+    New code should say what the number is (``money``, ``probability``,
+    ``count``, ``number`` in :mod:`decide.report.numbers`).
+
+    Examples
+    --------
+    >>> fmt(41429), fmt(1.516e7), fmt(0.06824123), fmt(None)
+    ('41,429', '15,160,000', '0.06824', '-')
+    """
     if isinstance(value, bool):
         return "yes" if value else "no"
-    if isinstance(value, int):
-        return numbers.count(value)
-    if isinstance(value, float):
-        return numbers.number(value, digits)
+    if hasattr(value, "__index__"):
+        return numbers.count(int(value))
+    if hasattr(value, "__float__") and not isinstance(value, str):
+        return numbers.number(float(value), digits)
     return numbers.MISSING if value is None else str(value)
 
 
+def fmt_compact(value: Any) -> str:
+    """Older callers' short money format: :func:`numbers.money` with ``compact=True``."""
+    return numbers.money(value, compact=True)
+
+
 def json_safe(value: Any) -> Any:
-    """Deprecated alias of :func:`decide.report.numbers.for_json`."""
+    """Older callers' JSON preparation: :func:`numbers.for_json` (snake_case keys, non-finite as null)."""
     return numbers.for_json(value)
