@@ -278,3 +278,13 @@ def test_policies_at_80_columns_keep_a_long_name_whole(tmp_path: Path) -> None:
     assert "…" not in result.stdout
     for builtin in load_policies():
         assert any(re.search(rf"(^|[\s(]){re.escape(builtin)}($|[\s)])", line) for line in lines), builtin
+
+
+def test_one_line_errors_drop_validation_library_prefixes(capsys: pytest.CaptureFixture[str]) -> None:
+    from decide.cli import _fail
+
+    with pytest.raises(SystemExit) as stopped:
+        _fail("decide optimize: s.toml: effect.high: Value error, must be above effect.low\x1b[0m", 2)
+    assert stopped.value.code == 2
+    err = capsys.readouterr().err
+    assert err == "decide optimize: s.toml: effect.high: must be above effect.low\\x1b[0m\n"
