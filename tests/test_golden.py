@@ -22,6 +22,7 @@ from __future__ import annotations
 import json
 import os
 import re
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -29,6 +30,7 @@ import pytest
 from rich.cells import cell_len
 from typer.testing import CliRunner
 
+from decide import cli
 from decide.cli import app
 from decide.report import numbers as nb
 from decide.scenario import BUILTIN_ORDER
@@ -74,15 +76,32 @@ def invoke(args: list[str], width: int) -> Any:
     return result
 
 
+def remembered(call: Callable[..., Any]) -> Callable[..., Any]:
+    """``call`` computing each distinct question once: the four widths render one result."""
+    seen: dict[str, Any] = {}
+
+    def again(*args: Any, **kwargs: Any) -> Any:
+        key = repr((args, sorted(kwargs.items())))
+        if key not in seen:
+            seen[key] = call(*args, **kwargs)
+        return seen[key]
+
+    return again
+
+
 @pytest.fixture(scope="module")
 def screens() -> dict[tuple[str, int], str]:
-    """Every case at every width, run once (in the repository, so file names print the same everywhere)."""
-    here = Path.cwd()
-    os.chdir(REPO)
-    try:
+    """Every case at every width (in the repository, so file names print the same everywhere).
+
+    The computations behind the command line are remembered between widths;
+    everything from the command line's parsing to the rendered text runs anew
+    at each width.
+    """
+    with pytest.MonkeyPatch.context() as mp:
+        for name in ("_solve", "_optimize", "_compare", "_audit"):
+            mp.setattr(cli, name, remembered(getattr(cli, name)))
+        mp.chdir(REPO)
         return {(name, w): invoke(args, w).stdout for name, args in CASES.items() for w in WIDTHS}
-    finally:
-        os.chdir(here)
 
 
 PAIRS = [(name, w) for name in CASES for w in WIDTHS]
