@@ -40,7 +40,7 @@ from scipy import special
 from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
-from ..engine.power import choose_exact
+from ..engine.selection import uses_exact
 from ..engine.study import Setting
 from .prior import SEARCH_PANELS
 from .problem import Problem
@@ -111,15 +111,8 @@ class LossModel:
         return np.minimum(nodes, limit * (1 - 1e-9)), w
 
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
-        """Where the test at size ``n`` is exact (see :func:`decide.power.choose_exact`)."""
-        s = self.setting
-        if s.test == "normal":
-            return np.zeros(np.shape(n), dtype=bool)
-        design_effect = np.full(np.shape(n), self.effects[-1])
-        smallest = s.design.smallest_expected_count(
-            np.asarray(n, dtype=np.float64), s.baseline, design_effect, s.allocation, s.years
-        )
-        return choose_exact(s.test, smallest)
+        """Where the test at size ``n`` is exact (see :func:`decide.engine.selection.uses_exact`)."""
+        return uses_exact(self.setting, n, np.full(np.shape(n), self.effects[-1]))
 
 
 def build_model(problem: Problem) -> LossModel:
