@@ -158,7 +158,7 @@ def _notes(decisions: Sequence[Decision]) -> list[Text]:
                   "which its alpha would minimise expected loss for its size. Regret is the extra "
                   "expected loss over the best of all actions (a study, or flagging or clearing now).",
                   style="dim")]
-    if isinstance(decisions, Comparison) and decisions.best_action != "study":
+    if isinstance(decisions, Comparison):
         notes.insert(0, Text(best_action(decisions), style="bold"))
     for d in decisions:
         if not d.feasible:
