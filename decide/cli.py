@@ -25,7 +25,7 @@ from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
 from .report import console as render
 from .report import tables
-from .report.sentences import decision_record
+from .report.sentences import best_action, decision_record, recommendation
 from .report.text import json_safe
 from .scenario import (
     load_policies,
@@ -221,6 +221,8 @@ def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
         emit_json({"scenario": loaded.title, **decision_record(decision)})
     else:
         con = Console()
+        if decision.action in ("flag-now", "clear-now"):  # lead with it: no study is worth its cost
+            con.print(recommendation(decision), style="bold", markup=False, highlight=False)
         con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
@@ -264,6 +266,8 @@ def compare_command(
         if output is not None:
             _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
         con = Console()
+        if decisions.best_action != "study":  # lead with it: no study is worth its cost
+            con.print(best_action(decisions), style="bold", markup=False, highlight=False)
         con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.compare_table(decisions, loaded.title, loaded.currency or "", con.width))
         return

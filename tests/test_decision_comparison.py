@@ -13,8 +13,13 @@ Outside checks (definitions and closed forms computed in the test):
 
 from __future__ import annotations
 
-import pytest
+import json
+from pathlib import Path
 
+import pytest
+from typer.testing import CliRunner
+
+from decide.cli import app
 from decide.decision.optimize import Comparison, compare, optimize
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
@@ -22,6 +27,7 @@ from decide.report.sentences import best_action, recommendation
 from decide.scenario import load_policies
 
 POLICIES = load_policies()
+REPO = Path(__file__).resolve().parents[1]
 
 
 def problem(*, fixed: float = 0.0, per_subject: float = 5.0, p: float = 0.3, cap: int | None = 50_000) -> Problem:
@@ -90,3 +96,26 @@ def test_a_comparison_iterates_and_indexes_like_its_decisions() -> None:
     assert len(cmp) == 2 and cmp[1].policy == "loss-optimal" and cmp[:1] == cmp.decisions[:1]
     data = cmp.to_dict()
     assert data["best_action"] == "study" and len(data["decisions"]) == 2
+
+
+def test_the_command_line_leads_with_deciding_now_when_no_study_pays(tmp_path: Path) -> None:
+    # the bundled invented depot scenario with a fixed study cost above the loss of flagging now
+    text = (REPO / "scenarios" / "depot-cohort-rate.toml").read_text()
+    text = text.replace("fixed = 2.0e5", "fixed = 2.9e7").replace("budget = 3.2e6", "budget = 4.0e7")
+    path = tmp_path / "costly.toml"
+    path.write_text(text)
+    shown = CliRunner().invoke(app, ["compare", str(path)], env={"COLUMNS": "120"})
+    assert shown.exit_code == 0, shown.stderr
+    assert shown.stdout.startswith("No study is worth its cost: the best action is to flag now")
+    shown = CliRunner().invoke(app, ["optimize", str(path)], env={"COLUMNS": "120"})
+    assert shown.stdout.startswith("No study is worth its cost under loss-optimal: flag now")
+    rows = json.loads(CliRunner().invoke(app, ["compare", str(path), "--json"], env={"COLUMNS": "120"}).stdout)
+    flag_now = 0.8 * 3.0e7  # (1 - p_harm) * false_alarm
+    for row in rows:
+        assert row["no_study"]["flag_now"] == pytest.approx(flag_now, rel=1e-12)
+        assert row["recommendation"]
+        if row["feasible"]:
+            assert row["action"] == "flag-now"
+            assert row["regret"] == pytest.approx(row["expected_loss"] - flag_now, rel=1e-12)
+        else:
+            assert row["action"] == "not-available" and row["regret"] is None
