@@ -76,4 +76,5 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
         fields["nominal"][:] = stated
     chars = Characteristics(**fields)
     code = np.where(found, failure_codes(model, policy, chars), NO_TEST)
-    return Choice(n, exact, chars, z, code, model.error_loss(chars.attained, chars.missed))
+    loss = model.error_loss(chars.attained, chars.missed)
+    return Choice(n=n, exact=exact, chars=chars, z=z, code=code, error_loss=loss)

@@ -119,7 +119,7 @@ def implied_ratio_exact(model: LossModel, n: float, chosen: OperatingPoint) -> I
     odds = (1 - model.problem.p_harm) / model.problem.p_harm
     lo = odds / s_left if s_left > 0 else np.inf
     hi = odds / s_right if s_right > 0 else np.inf
-    return ImpliedRange(float(min(lo, hi)), float(max(lo, hi)), bool(c_star < hull - 1e-9))
+    return ImpliedRange(low=float(min(lo, hi)), high=float(max(lo, hi)), dominated=bool(c_star < hull - 1e-9))
 
 
 def _hull_at(att: FloatArray, caught: FloatArray, a_star: float) -> float:

@@ -228,24 +228,25 @@ def pick_size(model: LossModel, policy: Policy) -> SizePick:
     lo = float(cons.min_n_per_group)
     top = _largest_affordable(model)
     if top is not None and top < lo:
-        return SizePick(None, "the budget does not cover the smallest allowed study")
+        return SizePick(n=None, reason="the budget does not cover the smallest allowed study")
     if policy.size_rule == "largest-allowed":
         if top is None:
-            return SizePick(None, "takes the largest allowed size, but no size cap or budget is set")
-        return SizePick(float(top), None)
+            return SizePick(n=None, reason="takes the largest allowed size, but no size cap or budget is set")
+        return SizePick(n=float(top), reason=None)
     if policy.size_rule == "smallest-for-power":
         n, code = _solver_size(model, policy, lo)
         if n is None:
             n, code = _first_meeting(model, policy, lo, float(SIZE_CEILING))
         if n is None:
             why = REASONS.get(code, "it fails the policy")
-            return SizePick(None, f"no size up to {SIZE_CEILING:,} meets the policy: at that size {why}")
+            return SizePick(n=None, reason=f"no size up to {SIZE_CEILING:,} meets the policy: at that size {why}")
         if top is not None and n > top:
-            return SizePick(n, f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
-        return SizePick(n, None)
+            return SizePick(n=n, reason=f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
+        return SizePick(n=n, reason=None)
     # loss-optimal size
     if c.per_subject == 0 and top is None:
-        return SizePick(None, "with no per-subject cost and no size cap or budget, loss keeps falling with size")
+        why = "with no per-subject cost and no size cap or budget, loss keeps falling with size"
+        return SizePick(n=None, reason=why)
     hi = float(top) if top is not None else np.inf
     if c.per_subject > 0:
         per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
@@ -254,5 +255,5 @@ def pick_size(model: LossModel, policy: Policy) -> SizePick:
     hi = max(hi, lo)
     grid, loss = _coarse_losses(model, policy, np.unique(np.append(_geometric(lo, hi, 65), hi)))
     if not np.isfinite(loss).any():
-        return SizePick(None, "no size within the constraints meets the policy")
-    return SizePick(_refine_min(model, policy, grid, loss), None)
+        return SizePick(n=None, reason="no size within the constraints meets the policy")
+    return SizePick(n=_refine_min(model, policy, grid, loss), reason=None)

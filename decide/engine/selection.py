@@ -83,7 +83,8 @@ def choose_test(setting: Setting, n: float, effect: float) -> TestChoice:
     (False, True)
     """
     smallest = float(smallest_count(setting, n, effect))
-    return TestChoice(setting.test, bool(choose_exact(setting.test, np.asarray(smallest))), smallest)
+    exact = bool(choose_exact(setting.test, np.asarray(smallest)))
+    return TestChoice(requested=setting.test, exact=exact, smallest_count=smallest)
 
 
 def first_normal_size(setting: Setting, effect: float, lo: int, hi: int) -> int:

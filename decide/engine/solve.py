@@ -457,7 +457,7 @@ def _finish(
         design=d.name,
         solved_for=solved_for,
         test=test,
-        test_reason=TestChoice(setting.test, use_exact, smallest).reason,
+        test_reason=TestChoice(requested=setting.test, exact=use_exact, smallest_count=smallest).reason,
         method=f"{sided} {method}",
         sides=setting.sides,
         baseline=float(b),
