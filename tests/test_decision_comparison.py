@@ -13,6 +13,8 @@ Outside checks (definitions and closed forms computed in the test):
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 from pathlib import Path
 
@@ -119,3 +121,17 @@ def test_the_command_line_leads_with_deciding_now_when_no_study_pays(tmp_path: P
             assert row["regret"] == pytest.approx(row["expected_loss"] - flag_now, rel=1e-12)
         else:
             assert row["action"] == "not-available" and row["regret"] is None
+
+
+def test_csv_carries_the_action_and_both_posterior_probabilities() -> None:
+    from decide.report.tables import to_csv
+
+    cmp = compare(problem(fixed=5e5), [POLICIES["loss-optimal"]])
+    (row,) = list(csv.DictReader(io.StringIO(to_csv(cmp))))
+    d = cmp[0]
+    assert row["action"] == "clear-now"
+    assert d.p_harm_given_positive is not None and d.p_harm_given_negative is not None
+    # Bayes' rule from the decision's own error rates (p = 0.3)
+    p, power, attained = 0.3, d.power, d.attained_alpha
+    assert power is not None and attained is not None
+    assert float(row["p_harm_given_positive"]) == pytest.approx(p * power / (p * power + (1 - p) * attained), rel=1e-9)

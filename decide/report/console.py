@@ -99,6 +99,8 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
         t.add_row("expected net benefit of the study", Text(_money(d.net_benefit, unit), style=style))
     if d.p_harm_given_negative is not None:
         t.add_row("P(harmful | negative result)", fmt(d.p_harm_given_negative))
+    if d.p_harm_given_positive is not None:
+        t.add_row("P(harmful | positive result), the share of flags that are true", fmt(d.p_harm_given_positive))
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", fmt(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
@@ -144,6 +146,7 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
         ("expected loss", lambda d: fmt_compact(d.expected_loss)),
         ("regret", lambda d: fmt_compact(d.regret)),
         ("P(harm | negative)", lambda d: fmt(d.p_harm_given_negative, 3)),
+        ("P(harm | positive)", lambda d: fmt(d.p_harm_given_positive, 3)),
         (f"{design.effect_name} detected at 80%", lambda d: fmt(d.detectable_effect, 3)),
         ("implied cost ratio", lambda d: fmt(d.implied_cost_ratio, 3)),
     ]

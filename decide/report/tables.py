@@ -13,9 +13,10 @@ from .text import CAUTION, fmt, json_safe
 
 #: Columns of the flat comparison formats (CSV, Markdown).
 COMPARE_COLUMNS = (
-    "policy", "feasible", "test", "alpha", "attained_alpha", "beta", "power",
+    "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
     "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
-    "p_harm_given_negative", "detectable_effect", "implied_cost_ratio", "net_benefit", "reason",
+    "p_harm_given_negative", "p_harm_given_positive", "detectable_effect", "implied_cost_ratio",
+    "net_benefit", "reason",
 )
 
 
