@@ -53,3 +53,10 @@ def test_a_registered_rule_runs_for_both_tests(test: str, monkeypatch: pytest.Mo
     assert dec.test == test and dec.n_per_group == 400
     assert dec.attained_alpha == pytest.approx(0.0, abs=1e-12)
     assert dec.power == pytest.approx(0.0, abs=1e-12)
+
+
+def test_the_size_registry_holds_every_size_rule_a_policy_may_name() -> None:
+    from decide.decision.policies import SIZE_RULES as NAMES
+    from decide.decision.sizes import SIZE_RULES
+
+    assert set(SIZE_RULES) == set(NAMES)

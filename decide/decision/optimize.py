@@ -32,6 +32,7 @@ import numpy as np
 
 from .._results import PlainData
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..engine.selection import smallest_count
 from .choice import choose_tests
 from .implied import detectable_effect, implied_ratio_exact, implied_ratio_normal
 from .loss import LossModel, OperatingPoint, build_model, settle
@@ -99,9 +100,7 @@ class Decision(PlainData):
 def _approximation_notes(model: LossModel, n: float, exact: bool) -> list[str]:
     """A note where the normal test runs on few expected cases, or exact gave way to normal."""
     s = model.setting
-    smallest = float(s.design.smallest_expected_count(
-        np.asarray(n), s.baseline, np.asarray(model.effects[-1]), s.allocation, s.years
-    ))
+    smallest = float(smallest_count(s, n, model.effects[-1]))
     if not exact and smallest < AUTO_EXACT_BELOW:
         return [f"normal approximation with as few as {smallest:.3g} expected in a cell (below "
                 f"{AUTO_EXACT_BELOW:g}); the exact test is safer here"]

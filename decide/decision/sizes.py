@@ -22,6 +22,7 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -221,34 +222,32 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     return None, OK
 
 
-def pick_size(model: LossModel, policy: Policy) -> SizePick:
-    """The size the policy's size rule picks within the constraints."""
-    cons = model.problem.constraints
+def _largest_allowed(model: LossModel, policy: Policy, lo: float, top: int | None) -> SizePick:
+    if top is None:
+        return SizePick(n=None, reason="takes the largest allowed size, but no size cap or budget is set")
+    return SizePick(n=float(top), reason=None)
+
+
+def _smallest_for_power(model: LossModel, policy: Policy, lo: float, top: int | None) -> SizePick:
+    n, code = _solver_size(model, policy, lo)
+    if n is None:
+        n, code = _first_meeting(model, policy, lo, float(SIZE_CEILING))
+    if n is None:
+        why = REASONS.get(code, "it fails the policy")
+        return SizePick(n=None, reason=f"no size up to {SIZE_CEILING:,} meets the policy: at that size {why}")
+    if top is not None and n > top:
+        return SizePick(n=n, reason=f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
+    return SizePick(n=n, reason=None)
+
+
+def _loss_optimal(model: LossModel, policy: Policy, lo: float, top: int | None) -> SizePick:
     c = model.problem.consequences
-    lo = float(cons.min_n_per_group)
-    top = _largest_affordable(model)
-    if top is not None and top < lo:
-        return SizePick(n=None, reason="the budget does not cover the smallest allowed study")
-    if policy.size_rule == "largest-allowed":
-        if top is None:
-            return SizePick(n=None, reason="takes the largest allowed size, but no size cap or budget is set")
-        return SizePick(n=float(top), reason=None)
-    if policy.size_rule == "smallest-for-power":
-        n, code = _solver_size(model, policy, lo)
-        if n is None:
-            n, code = _first_meeting(model, policy, lo, float(SIZE_CEILING))
-        if n is None:
-            why = REASONS.get(code, "it fails the policy")
-            return SizePick(n=None, reason=f"no size up to {SIZE_CEILING:,} meets the policy: at that size {why}")
-        if top is not None and n > top:
-            return SizePick(n=n, reason=f"needs {int(n):,} per group, more than the {int(top):,} the constraints allow")
-        return SizePick(n=n, reason=None)
-    # loss-optimal size
     if c.per_subject == 0 and top is None:
         why = "with no per-subject cost and no size cap or budget, loss keeps falling with size"
         return SizePick(n=None, reason=why)
     hi = float(top) if top is not None else np.inf
     if c.per_subject > 0:
+        # no size whose study cost alone exceeds both no-study losses (and the smallest study) can win
         per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         bound = (model.flag_now + model.clear_now + float(model.study_cost(np.asarray(lo)))) / per + 2
         hi = min(hi, float(np.ceil(bound)))
@@ -257,3 +256,20 @@ def pick_size(model: LossModel, policy: Policy) -> SizePick:
     if not np.isfinite(loss).any():
         return SizePick(n=None, reason="no size within the constraints meets the policy")
     return SizePick(n=_refine_min(model, policy, grid, loss), reason=None)
+
+
+#: Every size rule, by the name a policy file gives it: (model, policy, smallest, largest allowed) -> pick.
+SIZE_RULES: dict[str, Callable[[LossModel, Policy, float, int | None], SizePick]] = {
+    "largest-allowed": _largest_allowed,
+    "smallest-for-power": _smallest_for_power,
+    "loss-optimal": _loss_optimal,
+}
+
+
+def pick_size(model: LossModel, policy: Policy) -> SizePick:
+    """The size the policy's size rule picks within the constraints (see :data:`SIZE_RULES`)."""
+    lo = float(model.problem.constraints.min_n_per_group)
+    top = _largest_affordable(model)
+    if top is not None and top < lo:
+        return SizePick(n=None, reason="the budget does not cover the smallest allowed study")
+    return SIZE_RULES[policy.size_rule](model, policy, lo, top)
