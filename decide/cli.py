@@ -28,6 +28,7 @@ from .report import tables
 from .report.inputs import scenario_inputs
 from .report.numbers import for_json
 from .report.progress import busy
+from .report.sentences import best_action, decision_record, recommendation
 from .report.text import one_line
 from .scenario import (
     LoadedScenario,
@@ -300,9 +301,11 @@ def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
     with busy("Finding the loss-optimal study...", enabled=not as_json):
         decision = run_api("optimize", lambda: _optimize(loaded.problem))
     if as_json:
-        emit_json({"scenario": loaded.title, **decision.to_dict()})
+        emit_json({"scenario": loaded.title, **decision_record(decision, loaded.currency or "")})
     else:
         con = render.make_console()
+        if decision.action in ("flag-now", "clear-now"):  # lead with it: no study is worth its cost
+            con.print(render.literal_text(recommendation(decision, loaded.currency or ""), "bold"))
         con.print(render.inputs_table(_inputs(loaded), loaded.currency or ""))
         con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
@@ -347,6 +350,8 @@ def compare_command(
         text = tables.to_markdown(decisions, loaded.title, _inputs(loaded), currency)
     else:
         con = render.make_console()
+        if decisions.best_action != "study":  # lead with it: no study is worth its cost
+            con.print(render.literal_text(best_action(decisions, currency), "bold"))
         con.print(render.inputs_table(_inputs(loaded), currency))
         con.print(render.compare_table(decisions, loaded.title, currency, con.width, con))
         return

@@ -19,11 +19,12 @@ from rich.table import Table
 from rich.text import Text
 
 from ..decision.audit import Audit
-from ..decision.optimize import Decision
+from ..decision.optimize import Comparison, Decision
 from ..decision.policies import Policy
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
 from . import numbers as nb
+from .sentences import best_action, recommendation
 from .text import CAUTION, literal, one_line
 
 _LABELS = {
@@ -49,8 +50,12 @@ def make_console(
     )
 
 
-def _text(value: Any, style: str = "") -> Text:
+def literal_text(value: Any, style: str = "") -> Text:
+    """Text shown exactly as written (control characters escaped), never parsed as markup."""
     return Text(literal(value), style=style)
+
+
+_text = literal_text
 
 
 def _notes_panel(notes: Iterable[Text]) -> Panel:
@@ -105,11 +110,6 @@ def inputs_table(rows: Sequence[tuple[str, str]], unit: str) -> Table:
     return t
 
 
-def _headline(d: Decision) -> str:
-    """The one-sentence summary of a decision (until sentences are built in the report layer)."""
-    return str(getattr(d, "recommendation", "") or "")
-
-
 def decision_table(d: Decision, title: str, unit: str) -> Group:
     """One policy's decision, its loss and what it implies."""
     design = get_design(d.design)
@@ -140,12 +140,13 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     if d.p_harm_given_negative is not None:
         t.add_row("P(harmful | negative result)", nb.probability(d.p_harm_given_negative))
     if d.p_harm_given_positive is not None:
-        t.add_row("P(harmful | positive result)", nb.probability(d.p_harm_given_positive))
+        t.add_row("P(harmful | positive result), the share of flags that are true",
+                  nb.probability(d.p_harm_given_positive))
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", nb.number(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
     t.add_row("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio))
-    notes = [_text(_headline(d), "bold")]
+    notes = [_text(recommendation(d, cur), "bold")]
     notes += [_text(f"Warning: {w}", "yellow") for w in d.warnings]
     return Group(t, _notes_panel(notes))
 
@@ -174,7 +175,7 @@ def _fits(table: Table, console: Console, width: int) -> bool:
 
 
 def compare_table(
-    decisions: list[Decision], title: str, unit: str, width: int = 80, console: Console | None = None
+    decisions: Sequence[Decision], title: str, unit: str, width: int = 80, console: Console | None = None
 ) -> Group:
     """Policies side by side, split into as few blocks as fit ``width``, each block whole."""
     design = get_design(decisions[0].design)
@@ -187,11 +188,11 @@ def compare_table(
             blocks[-1] = trial
         else:
             blocks.append([d])
-    blocks = _balanced(blocks, decisions, design, cur, con, width)
+    blocks = _balanced(blocks, list(decisions), design, cur, con, width)
     tables = [_compare_part(part, design, cur, title if i == 0 else "") for i, part in enumerate(blocks)]
     note = f"Money in {cur}; " if cur else "Money in the scenario's unit; "
     tables[-1].caption = Text(note + nb.SUFFIX_NOTE + ".")
-    return Group(*tables, Panel(Group(*_notes(decisions)), border_style="dim"))
+    return Group(*tables, Panel(Group(*_notes(decisions, cur)), border_style="dim"))
 
 
 def _balanced(
@@ -241,20 +242,22 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, cur: str, titl
     return t
 
 
-def _notes(decisions: list[Decision]) -> list[Text]:
+def _notes(decisions: Sequence[Decision], currency: str = "") -> list[Text]:
     notes = [
         Text(
             f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
             f"{nb.number(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
             "which its alpha would minimise expected loss for its size. Regret is the extra "
-            "expected loss over the loss-optimal choice.",
+            "expected loss over the best of all actions (a study, or flagging or clearing now).",
             style="dim",
         )
     ]
+    if isinstance(decisions, Comparison):
+        notes.insert(0, _text(best_action(decisions, currency), "bold"))
     notes += [_text(f"{one_line(d.title)}: {d.reason}.", "red") for d in decisions if not d.feasible]
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
-    if best is not None and _headline(best):
-        notes.append(_text(f"Loss-optimal: {_headline(best)}", "bold"))
+    if best is not None:
+        notes.append(_text(f"Loss-optimal: {recommendation(best, currency)}", "bold"))
     notes.append(Text(CAUTION, style="dim italic"))
     return notes
 

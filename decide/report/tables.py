@@ -9,29 +9,31 @@ from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Sequence
 from typing import Any
 
-from ..decision.optimize import Decision
+from ..decision.optimize import Comparison, Decision
 from ..decision.problem import Problem
 from ..designs import get_design
 from . import numbers as nb
+from .sentences import best_action, decision_record
 from .text import CAUTION, literal, markdown_literal
 
 #: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
-    "policy", "feasible", "test", "alpha", "attained_alpha", "beta", "power",
+    "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
     "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
     "p_harm_given_negative", "p_harm_given_positive", "detectable_effect", "implied_cost_ratio",
     "net_benefit", "reason",
 )
 
 
-def decision_rows(decisions: list[Decision]) -> list[dict[str, Any]]:
+def decision_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
     """One flat row per policy, for machines."""
     return [{k: nb.for_json(d.to_dict().get(k)) for k in COMPARE_COLUMNS} for d in decisions]
 
 
-def to_csv(decisions: list[Decision]) -> str:
+def to_csv(decisions: Sequence[Decision]) -> str:
     """The comparison as CSV, full precision, empty cells for missing or non-finite values."""
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=COMPARE_COLUMNS, lineterminator="\n")
@@ -53,19 +55,25 @@ def units(problem: Problem, currency: str) -> dict[str, str]:
 
 
 def compare_document(
-    decisions: list[Decision], problem: Problem, scenario: dict[str, Any], currency: str
+    decisions: Sequence[Decision], problem: Problem, scenario: dict[str, Any], currency: str
 ) -> dict[str, Any]:
-    """``compare --json``: the inputs, the no-study options and one entry per policy.
+    """``compare --json``: the inputs, the no-study options, the best action and one entry per policy.
 
     ``scenario`` echoes the scenario as read (title, description, file, and
     its validated contents).  The no-study options do not depend on the
-    policy, so they appear once, not in every policy's entry.
+    policy, so they appear once, not in every policy's entry.  ``best`` is
+    the best of all actions (a study or deciding now) when ``decisions`` is
+    a :class:`~decide.decision.optimize.Comparison`.
     """
     policies = []
     for d in decisions:
-        entry = d.to_dict()
+        entry = decision_record(d, currency)
         entry.pop("no_study", None)
         policies.append(entry)
+    best = None
+    if isinstance(decisions, Comparison):
+        best = {"action": decisions.best_action, "policy": decisions.best_policy, "expected_loss": decisions.best_loss,
+                "in_words": best_action(decisions, currency)}
     document: dict[str, Any] = nb.for_json(
         {
             "scenario": scenario,
@@ -73,6 +81,7 @@ def compare_document(
             "units": units(problem, currency),
             "stated_cost_ratio": decisions[0].stated_cost_ratio if decisions else None,
             "no_study": dict(decisions[0].no_study) if decisions else {},
+            "best": best,
             "policies": policies,
         }
     )
@@ -95,7 +104,7 @@ def _markdown_row(d: Decision, cur: str) -> str:
 
 
 def to_markdown(
-    decisions: list[Decision], title: str, inputs: list[tuple[str, str]] | None = None, currency: str = ""
+    decisions: Sequence[Decision], title: str, inputs: list[tuple[str, str]] | None = None, currency: str = ""
 ) -> str:
     """The comparison as a Markdown table a board can read, with the inputs and the caution."""
     cur = markdown_literal(currency)
@@ -108,5 +117,7 @@ def to_markdown(
     lines += [_markdown_row(d, cur) for d in decisions]
     lines += ["", f"Stated cost ratio (miss : false alarm): {nb.number(decisions[0].stated_cost_ratio)}.", ""]
     lines += [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in decisions if not d.feasible]
+    if isinstance(decisions, Comparison):
+        lines += ["", markdown_literal(best_action(decisions, currency))]
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)
