@@ -209,7 +209,10 @@ def batch_optimum(
 
     lo_n = float(model.problem.constraints.min_n_per_group)
     n_best, z_best, f_best = _golden_sizes(total, left, right, z)
-    for step in (-4, -3, -2, -1, 1, 2, 3, 4):  # whole sizes around the best (group sizes round)
+    alloc = model.setting.allocation
+    whole = model.setting.design.allocation_name is None or float(alloc) == round(float(alloc))
+    steps = (-1, 1) if whole else (-4, -3, -2, -1, 1, 2, 3, 4)
+    for step in steps:  # whole sizes around the best (a comparison group of allocation * n rounds)
         cand = np.clip(n_best + step, lo_n, hi_)
         zz, ff = total(cand, z_best)
         better = ff < f_best
