@@ -36,10 +36,11 @@ from numpy.typing import NDArray
 from scipy import stats
 
 from .._results import PlainData
-from ..designs._base import FloatArray
 from ..errors import DecideError, InfeasibleError
 from .optimize import Decision
 from .problem import Problem
+
+FloatArray = NDArray[np.float64]
 
 #: Differences beyond this many standard errors are flagged.
 FLAG_AT = 4.0
