@@ -58,8 +58,8 @@ SCAN_POINTS = 33
 SLOW_SCAN_POINTS = 9
 #: Points between each end and the central value where policies are compared.
 POLICY_POINTS = 1
-#: Relative tolerance of break-even values.
-ROOT_RTOL = 1e-11
+#: Relative tolerance of break-even values (the losses then agree far below 1e-6).
+ROOT_RTOL = 1e-10
 
 _COST_LIKE = {
     "prior.p_harm", "consequences.missed_hazard", "consequences.false_alarm", "consequences.per_subject",
@@ -217,11 +217,18 @@ def _numbers(d: Decision) -> tuple[float, ...]:
 # break-even values of the recommended action
 
 
-def _action_gap(problem: Problem, name: str, study_vs_none: bool) -> Callable[[float], float]:
-    """The loss difference whose sign gives the action, as a function of the input (by optimize)."""
+def _action_gap(
+    problem: Problem, name: str, study_vs_none: bool, seen: dict[float, Decision]
+) -> Callable[[float], float]:
+    """The loss difference whose sign gives the action, as a function of the input (by optimize).
+
+    Decisions are kept in ``seen`` by input value, so no value is optimised twice.
+    """
 
     def gap(x: float) -> float:
-        d = optimize(with_value(problem, name, x))
+        if x not in seen:
+            seen[x] = optimize(with_value(problem, name, x))
+        d = seen[x]
         flag, clear = d.no_study["flag_now"], d.no_study["clear_now"]
         if not study_vs_none:
             return float(flag - clear)
@@ -276,11 +283,13 @@ def action_thresholds(problem: Problem, name: str, scan: Optima) -> tuple[Thresh
             continue
         study_vs_none = STUDY in (left, right)
         a, b = float(v[i]), float(v[i + 1])
-        gap = _action_gap(problem, name, study_vs_none)
+        seen: dict[float, Decision] = {}
+        gap = _action_gap(problem, name, study_vs_none, seen)
         root = _settle_root(gap, *_narrowed(problem, name, a, b, study_vs_none))
         if root is None:
             continue
-        d = optimize(with_value(problem, name, root))
+        gap(root)
+        d = seen[root]
         flag, clear = d.no_study["flag_now"], d.no_study["clear_now"]
         if study_vs_none:
             loss = math.nan if d.expected_loss is None else d.expected_loss
@@ -436,7 +445,10 @@ def one_way(
     scan = optima(problem, name, _spaced(r, points)) if r.high > r.low else None
     thresholds: tuple[Threshold, ...] = () if scan is None else action_thresholds(problem, name, scan)
     ppoints = _policy_points(r, POLICY_POINTS) if standards and r.high > r.low else np.array([r.low, r.high])
-    plosses = [policy_losses(problem, name, float(x), standards, central) for x in ppoints] if standards else []
+    central_losses = {k: math.inf if not d.feasible or d.expected_loss is None else d.expected_loss
+                      for k, d in central.items()}
+    plosses = [central_losses if float(x) == r.central else policy_losses(problem, name, float(x), standards, central)
+               for x in ppoints] if standards else []
     if standards and r.high > r.low:
         thresholds += policy_thresholds(problem, name, ppoints, plosses, standards, central)
     first, last = (plosses[0], plosses[-1]) if plosses else (None, None)
