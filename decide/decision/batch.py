@@ -82,7 +82,7 @@ def _largest_sizes(model: LossModel, per_subject: FloatArray, flag: FloatArray, 
     if cons.budget is not None:
         with np.errstate(divide="ignore"):
             guess = np.where(per > 0, np.floor((cons.budget - fixed) / per) + 2, np.inf)
-        cand = np.clip(guess[:, None] - np.arange(5)[None, :], 1, 1e15)
+        cand = np.asarray(np.clip(guess[:, None] - np.arange(5.0)[None, :], 1, 1e15), dtype=np.float64)
         cost = fixed + per_subject[:, None] * model.n_total(cand)
         ok = cost <= cons.budget * (1 + 1e-12)
         best = np.where(ok, cand, 0).max(axis=1)

@@ -193,8 +193,8 @@ def optima(problem: Problem, name: str, values: FloatArray, progress: Progress |
         acts_.append(recommended_action(d))
         if progress is not None:
             progress(i + 1, values.size)
-    cols = np.array(rows, dtype=np.float64).T
-    return Optima(values, *cols, tuple(acts_))
+    cols = np.array(rows, dtype=np.float64).reshape(-1, 7).T
+    return Optima(values, cols[0], cols[1], cols[2], cols[3], cols[4], cols[5], cols[6], tuple(acts_))
 
 
 _SCALED = _COST_LIKE - {"prior.p_harm", "consequences.false_alarm", "consequences.per_subject"}
@@ -365,6 +365,16 @@ def least_loss(losses: dict[str, float]) -> str | None:
     return min(finite, key=finite.__getitem__) if finite else None
 
 
+def _policy_gap(
+    problem: Problem, name: str, pair: Sequence[Policy], central: dict[str, Decision], first: str, second: str
+) -> Callable[[float], float]:
+    def diff(x: float) -> float:
+        ls = policy_losses(problem, name, x, pair, central)
+        return float(ls[first] - ls[second])
+
+    return diff
+
+
 def policy_thresholds(
     problem: Problem,
     name: str,
@@ -386,11 +396,7 @@ def policy_thresholds(
             out.append(Threshold(name, "policy", None, left, right, None, (a, b)))
             continue
 
-        def diff(x: float) -> float:
-            ls = policy_losses(problem, name, x, pair, central)
-            return float(ls[left] - ls[right])
-
-        root = _settle_root(diff, a, b, None)
+        root = _settle_root(_policy_gap(problem, name, pair, central, left, right), a, b, None)
         if root is None:
             out.append(Threshold(name, "policy", None, left, right, None, (a, b)))
             continue

@@ -422,12 +422,12 @@ def _with_baseline(
     for d in cand_all:
         assert d.alpha is not None and d.n_per_group is not None and d.n_total is not None
         test = "exact" if d.test == "exact" else "normal"
-        kw = {"sides": s.sides, "test": test, "continuity": s.continuity}
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ApproximationWarning)
             res = _power(s.design, d.alpha, d.n_per_group, effects, baselines[:, None],
                          allocation=s.allocation if model.setting.design.allocation_name else None,
-                         years=s.years if model.setting.design.uses_years else None, **kw)
+                         years=s.years if model.setting.design.uses_years else None, sides=s.sides, test=test,
+                         continuity=s.continuity)
         miss = (1 - res.power) @ (weights * m_cost)
         att = res.attained_alpha[:, 0]
         losses[d.policy] = np.asarray(p * scale * miss + (1 - p) * fa * att + problem.consequences.fixed

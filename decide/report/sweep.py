@@ -102,10 +102,10 @@ def probabilistic_tables(p: Probabilistic, unit: str = "") -> Group:
     odds = Table(title="How often")
     odds.add_column("what")
     odds.add_column("probability", justify="right")
-    for a, v in p.action_probability.items():
-        odds.add_row(f"best action: {a}", fmt(v, 3))
-    for k, v in p.policy_least_loss_probability.items():
-        odds.add_row(f"least loss: design of {k}", fmt(v, 3))
+    for a, share in p.action_probability.items():
+        odds.add_row(f"best action: {a}", fmt(share, 3))
+    for k, share in p.policy_least_loss_probability.items():
+        odds.add_row(f"least loss: design of {k}", fmt(share, 3))
     summary = Table(title="Commit before the doubt is resolved" + (f" (costs in {unit})" if unit else ""),
                     show_header=False)
     summary.add_column("quantity", style="bold")
