@@ -21,13 +21,10 @@ def recommended_action(decision: Decision) -> str:
 
     A policy that cannot be met recommends nothing (``not-available``).
     Ties between flagging and clearing go to clearing, as in the decision
-    engine (flag only when it is strictly cheaper).
+    engine (flag only when it is strictly cheaper).  The decision carries
+    this as its ``action``; :func:`actions_of` is the same rule on arrays.
     """
-    if not decision.feasible or decision.net_benefit is None:
-        return NOT_AVAILABLE
-    if decision.net_benefit > 0:
-        return STUDY
-    return FLAG_NOW if decision.no_study["flag_now"] < decision.no_study["clear_now"] else CLEAR_NOW
+    return str(decision.action)
 
 
 def actions_of(

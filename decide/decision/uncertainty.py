@@ -336,7 +336,7 @@ def probabilistic(
     values = draw_inputs(inputs, draws, seed)
     own, acts, method, seen = _optima_per_draw(problem, values, draws, progress)
     pols = list(policies) if any(p == LOSS_OPTIMAL for p in policies) else [LOSS_OPTIMAL, *policies]
-    decisions = compare(problem, pols)
+    decisions = list(compare(problem, pols))
     central = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
     if "study.baseline" in values:
         return _with_baseline(problem, values, draws, seed, inputs, own, acts, decisions + seen, central, method)
