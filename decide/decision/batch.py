@@ -176,6 +176,7 @@ def batch_optimum(
     missed_scale: FloatArray,
     false_alarm: FloatArray,
     per_subject: FloatArray,
+    start: tuple[FloatArray, FloatArray] | None = None,
 ) -> BatchOptimum:
     """Loss-optimal normal tests and sizes for arrays of settings.
 
@@ -187,6 +188,10 @@ def batch_optimum(
     p_harm, missed_scale, false_alarm, per_subject : array_like
         One value per setting (broadcast together); ``missed_scale``
         multiplies the model's missed-hazard cost.
+    start : (sizes, critical values), optional
+        A nearby optimum (from neighbouring settings): the search then stays
+        within 64 subjects and 0.25 in ``z`` of it instead of starting from the table.  For
+        settings close to those of the start only; callers check the result.
 
     Returns
     -------
@@ -200,14 +205,19 @@ def batch_optimum(
     hi = _largest_sizes(model, per, flag, clear)
     ok = np.isfinite(hi)
     hi_ = np.where(ok, hi, float(model.problem.constraints.min_n_per_group))
-    left, right, z, _ = _table_start(model, a_miss, a_fa, per, hi_)
+    lo_n = float(model.problem.constraints.min_n_per_group)
+    if start is None:
+        left, right, z, _ = _table_start(model, a_miss, a_fa, per, hi_)
+    else:
+        n0 = np.broadcast_to(np.asarray(start[0], dtype=np.float64), p.shape)
+        z = np.broadcast_to(np.asarray(start[1], dtype=np.float64), p.shape)
+        left, right = np.clip(n0 - 64, lo_n, hi_), np.clip(n0 + 64, lo_n, hi_)
     fixed = model.problem.consequences.fixed
 
     def total(n: FloatArray, z0: FloatArray) -> tuple[FloatArray, FloatArray]:
-        zz, err = _best_z(model, a_miss, a_fa, n, z0, 0.5)
+        zz, err = _best_z(model, a_miss, a_fa, n, z0, 0.5 if start is None else 0.25)
         return zz, err + fixed + per * model.n_total(n)
 
-    lo_n = float(model.problem.constraints.min_n_per_group)
     n_best, z_best, f_best = _golden_sizes(total, left, right, z)
     alloc = model.setting.allocation
     whole = model.setting.design.allocation_name is None or float(alloc) == round(float(alloc))

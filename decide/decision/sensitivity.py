@@ -55,11 +55,11 @@ Progress = Callable[[int, int], None]
 #: Input values scanned per input to bracket changes of the recommended action.
 SCAN_POINTS = 33
 #: Input values scanned per input when each needs a full optimisation (exact tests).
-SLOW_SCAN_POINTS = 9
+SLOW_SCAN_POINTS = 7
 #: Points between each end and the central value where policies are compared.
 POLICY_POINTS = 1
 #: Relative tolerance of break-even values (the losses then agree far below 1e-6).
-ROOT_RTOL = 1e-10
+ROOT_RTOL = 1e-9
 
 _COST_LIKE = {
     "prior.p_harm", "consequences.missed_hazard", "consequences.false_alarm", "consequences.per_subject",
@@ -146,11 +146,15 @@ class Tornado(PlainData):
 
 
 def _spaced(r: InputRange, points: int) -> FloatArray:
+    """``points`` values from ``r.low`` to ``r.high`` (exactly), spaced on the range's scale."""
     if r.scale == "logit":
-        return np.asarray(special.expit(np.linspace(special.logit(r.low), special.logit(r.high), points)))
-    if r.scale == "log":
-        return np.geomspace(r.low, r.high, points)
-    return np.linspace(r.low, r.high, points)
+        x = np.asarray(special.expit(np.linspace(special.logit(r.low), special.logit(r.high), points)))
+    elif r.scale == "log":
+        x = np.geomspace(r.low, r.high, points)
+    else:
+        x = np.linspace(r.low, r.high, points)
+    x[0], x[-1] = r.low, r.high
+    return x
 
 
 def fast_available(problem: Problem) -> bool:
@@ -257,20 +261,47 @@ def _settle_root(
     return float(_roots.brentq(gap, a, b, xtol=tol * 1e-3, rtol=ROOT_RTOL))
 
 
-def _narrowed(
-    problem: Problem, name: str, a: float, b: float, study_vs_none: bool
-) -> tuple[float, float, tuple[float, float] | None]:
-    """``a``, ``b`` and, where the batch optimum applies, a bracket 32 times narrower inside them."""
+def _batch_gap(problem: Problem, name: str, study_vs_none: bool, xs: FloatArray,
+               start: tuple[FloatArray, FloatArray] | None = None) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """The action's loss difference at each value by the batch optimum, and the optimal sizes and z."""
+    b = batch_optimum(build_model(problem), *_batch_settings(problem, name, xs), start=start)
+    gap = b.flag_now - b.clear_now if not study_vs_none else b.loss - np.minimum(b.flag_now, b.clear_now)
+    return gap, b.n, b.z
+
+
+def _fast_root(problem: Problem, name: str, a: float, b: float, study_vs_none: bool) -> float | None:
+    """The break-even value by Brent's method on the batch optimum's loss difference.
+
+    A grid of 33 values narrows the bracket; Brent's method then runs on the
+    batch optimum warm-started at the optimum of the bracket's end.  Callers
+    confirm the value with :func:`decide.optimize`.
+    """
     if name not in _COST_LIKE or not fast_available(problem):
-        return a, b, None
+        return None
     xs = np.linspace(a, b, 33)
-    o = optima(problem, name, xs)
-    gap = o.flag_now - o.clear_now if not study_vs_none else o.expected_loss - np.minimum(o.flag_now, o.clear_now)
+    gap, n, z = _batch_gap(problem, name, study_vs_none, xs)
     change = np.flatnonzero(np.sign(gap[:-1]) * np.sign(gap[1:]) < 0)
     if change.size != 1:
-        return a, b, None
+        return None
     k = int(change[0])
-    return a, b, (float(xs[k]), float(xs[k + 1]))
+    # start from the end where the study wins: its design carries on to the break-even value,
+    # while on the other side the optimum may be a different, token study
+    j = k if gap[k] < 0 else k + 1
+    start = (n[j : j + 1], z[j : j + 1])
+    if not np.all(np.isfinite(start[0])):
+        return None
+
+    def f(x: float) -> float:
+        return float(_batch_gap(problem, name, study_vs_none, np.array([x]), start)[0][0])
+
+    lo, hi = float(xs[k]), float(xs[k + 1])
+    if not f(lo) * f(hi) < 0:
+        return None
+    return float(_roots.brentq(f, lo, hi, xtol=ROOT_RTOL * 1e-3 * max(abs(lo), abs(hi)), rtol=ROOT_RTOL))
+
+
+def _loss_scale(d: Decision) -> float:
+    return max(d.no_study["flag_now"], d.no_study["clear_now"], d.expected_loss or 0.0)
 
 
 def action_thresholds(problem: Problem, name: str, scan: Optima) -> tuple[Threshold, ...]:
@@ -285,7 +316,11 @@ def action_thresholds(problem: Problem, name: str, scan: Optima) -> tuple[Thresh
         a, b = float(v[i]), float(v[i + 1])
         seen: dict[float, Decision] = {}
         gap = _action_gap(problem, name, study_vs_none, seen)
-        root = _settle_root(gap, *_narrowed(problem, name, a, b, study_vs_none))
+        root = _fast_root(problem, name, a, b, study_vs_none)
+        if root is not None and not abs(gap(root)) <= 1e-9 * abs(_loss_scale(seen[root])):
+            root = None  # the warm-started batch went astray: settle it with the optimiser
+        if root is None:
+            root = _settle_root(gap, a, b)
         if root is None:
             continue
         gap(root)
