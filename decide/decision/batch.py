@@ -176,6 +176,7 @@ def batch_optimum(
     missed_scale: FloatArray,
     false_alarm: FloatArray,
     per_subject: FloatArray,
+    *,
     start: tuple[FloatArray, FloatArray] | None = None,
 ) -> BatchOptimum:
     """Loss-optimal normal tests and sizes for arrays of settings.

@@ -162,7 +162,10 @@ def fast_available(problem: Problem) -> bool:
     return normal_throughout(build_model(problem))
 
 
-def _batch_settings(problem: Problem, name: str, values: FloatArray) -> tuple[FloatArray, ...]:
+Settings = tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+
+
+def _batch_settings(problem: Problem, name: str, values: FloatArray) -> Settings:
     """``p_harm``, missed-cost scale, false-alarm cost and per-subject cost for each value."""
     c = problem.consequences
     n = values.size
@@ -600,7 +603,7 @@ def two_way(
         for vx, vy, base in ((px, py, problem.p_harm), (sx, sy, 1.0),
                              (fx, fy, problem.consequences.false_alarm), (cx, cy, problem.consequences.per_subject)):
             settings.append(vx[jx] * vy[iy] / base if base != 0 else vx[jx])
-        b = batch_optimum(model, *settings)
+        b = batch_optimum(model, settings[0], settings[1], settings[2], settings[3])
         acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
         return TwoWay(problem.title, x.name, y.name, tuple(map(float, xs)), tuple(map(float, ys)),
                       _table(b.nominal, shape), _table(b.attained, shape), _table(b.n, shape),

@@ -212,7 +212,9 @@ def draw_inputs(inputs: dict[str, Distribution], draws: int, seed: int) -> dict[
     return {name: inputs[name].draw(rng, draws) for name in sorted(inputs)}
 
 
-def _settings(problem: Problem, values: dict[str, FloatArray], size: int) -> tuple[FloatArray, ...]:
+def _settings(
+    problem: Problem, values: dict[str, FloatArray], size: int
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
     """``p_harm``, missed-cost scale, false-alarm and per-subject cost of each draw."""
     c = problem.consequences
     p = values.get("prior.p_harm", np.full(size, problem.p_harm))
@@ -225,7 +227,9 @@ def _settings(problem: Problem, values: dict[str, FloatArray], size: int) -> tup
     return p, scale, fa, per
 
 
-def _design_losses(d: Decision, problem: Problem, settings: tuple[FloatArray, ...]) -> FloatArray:
+def _design_losses(
+    d: Decision, problem: Problem, settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+) -> FloatArray:
     """The loss of a fixed design (made for ``problem``) under each draw of the prior and costs."""
     p, scale, fa, per = settings
     if not d.feasible or d.loss_parts is None or d.attained_alpha is None or d.n_total is None:
@@ -235,7 +239,9 @@ def _design_losses(d: Decision, problem: Problem, settings: tuple[FloatArray, ..
                       + problem.consequences.fixed + per * d.n_total)
 
 
-def _certainty_equivalent(problem: Problem, settings: tuple[FloatArray, ...]) -> Problem:
+def _certainty_equivalent(
+    problem: Problem, settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+) -> Problem:
     """A problem whose loss equals, for every design, the loss averaged over the draws.
 
     The loss is linear in ``p_harm * scale``, ``(1 - p_harm) * false_alarm``
