@@ -39,6 +39,8 @@ from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import DESIGNS, get_design
 
+from .uncertainty import UncertaintyModel
+
 DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
 TestName = Literal["normal", "exact", "auto"]
 
@@ -488,6 +490,16 @@ class ScenarioModel(BaseModel):
         default_factory=ConstraintsModel,
         description="Limits every policy must respect (all optional).",
     )
+    uncertainty: UncertaintyModel | None = Field(
+        default=None,
+        description="Distributions of uncertain inputs, for 'decide sweep --draws' (optional).",
+    )
+
+    @model_validator(mode="after")
+    def _uncertainty_fits(self) -> ScenarioModel:
+        if self.uncertainty is not None:
+            self.uncertainty.check_against(self.consequences.missed_hazard is None)
+        return self
 
     @model_validator(mode="after")
     def _budget_allows_a_study(self) -> ScenarioModel:
