@@ -73,6 +73,13 @@ def _setup() -> Any:
     return plt
 
 
+def _money_axis(axis: Any) -> None:
+    """Money ticks in the report's own compact form (``14.8M``), never with an e-notation offset."""
+    from matplotlib.ticker import FuncFormatter
+
+    axis.set_major_formatter(FuncFormatter(lambda v, _: nb.money(v, compact=True)))
+
+
 def _loss(plt: Any, r: ReportResults) -> Figure | None:
     c, cur = r.loss_curve, r.loaded.currency
     if c is None:
@@ -91,6 +98,7 @@ def _loss(plt: Any, r: ReportResults) -> Figure | None:
     ax.set_xscale("log")
     ax.set_xlabel("attained alpha (false-alarm probability)")
     ax.set_ylabel(f"expected loss ({cur})" if cur else "expected loss")
+    _money_axis(ax.yaxis)
     ax.legend(fontsize=7, loc="best")
     ax.grid(alpha=0.3)
     low = int(np.argmin(c.y))
@@ -160,6 +168,7 @@ def _tornado(plt: Any, r: ReportResults) -> Figure | None:
         said.append(f"{w.input}: {nb.money(lo, cur)} at {nb.number(w.low.value)} to {nb.money(hi, cur)} at "
                     f"{nb.number(w.high.value)}")
     ax.axvline(centre, color="black", lw=1)
+    _money_axis(ax.xaxis)
     ax.set_yticks(range(len(rows)), [w.input for w in rows], fontsize=8)
     ax.set_xlabel(f"expected loss of the loss-optimal choice ({cur})" if cur else "expected loss")
     from matplotlib.patches import Patch
@@ -224,6 +233,8 @@ def _judgments(plt: Any, r: ReportResults) -> Figure | None:
     ax.axvline(r.decision.stated_cost_ratio, color="black", ls=":", lw=1.2, label="the stated ratio")
     ax.set_xscale("log")
     ax.set_yscale("log")
+    marked = [d.attained_alpha for d in r.comparison if d.attained_alpha]
+    ax.set_ylim(bottom=max(1e-5, min(marked, default=1e-3) / 20))
     ax.set_xlabel("cost ratio, missed hazard : false alarm")
     ax.set_ylabel("attained alpha")
     ax.legend(fontsize=7, loc="best")

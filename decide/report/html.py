@@ -20,8 +20,7 @@ from ..scenario import write_text_atomic
 from .document import SIMULATED_STUDIES, ReportResults
 from .figures import Figure, draw_all
 from .justify import justification
-from .page import Num, cautions, chosen, input_rows, num, policy_rows, probabilistic_rows, simulation_rows
-from .page import tornado_rows
+from .page import Num, cautions, chosen, input_rows, num, policy_rows, probabilistic_rows, simulation_rows, tornado_rows
 from .text import CAUTION, markdown_literal
 
 

@@ -84,7 +84,7 @@ def input_rows(r: ReportResults) -> list[dict[str, Any]]:
     rows = []
     for table in INPUT_TABLES:
         part = getattr(model, table)
-        for name in part.model_fields:
+        for name in type(part).model_fields:
             value = getattr(part, name)
             if value is None or name == "currency" or name not in part.model_fields_set:
                 continue
@@ -204,8 +204,8 @@ def simulation_rows(r: ReportResults) -> list[dict[str, Any]]:
         rows.append({
             "label": label, "analytic": num(f"{k}.analytic", c.analytic, kind, cur),
             "simulated": num(f"{k}.simulated", c.simulated, kind, cur),
-            "low": num(f"{k}.interval.low", c.interval.low if c.interval else None, kind, cur),
-            "high": num(f"{k}.interval.high", c.interval.high if c.interval else None, kind, cur),
+            "low": num(f"{k}.interval.low", c.interval.low, kind, cur) if c.interval else nb.MISSING,
+            "high": num(f"{k}.interval.high", c.interval.high, kind, cur) if c.interval else nb.MISSING,
             "se": num(f"{k}.standard_error", c.standard_error, kind, cur),
             "agrees": "no, differs by more than 4 standard errors" if c.flagged else "yes",
         })
