@@ -35,6 +35,8 @@ from ..engine.power import evaluate
 
 #: Points along each plotted curve (normal tests and effect axes).
 CURVE_POINTS = 120
+#: The smallest attained alpha a loss curve shows (smaller ones crowd a log axis and change no choice).
+SMALLEST_ALPHA = 1e-5
 
 
 @dataclass(frozen=True)
@@ -55,12 +57,12 @@ def loss_curve(problem: Problem, n_per_group: int) -> Curve:
         for _, opts in exact_batches(model, n):
             attained = np.asarray(opts.chars.attained[0], dtype=np.float64)
             missed = np.asarray(opts.chars.missed[0], dtype=np.float64)
-        keep = (attained > 0) & (attained < 1)
+        keep = (attained >= SMALLEST_ALPHA) & (attained < 1)
         order = np.argsort(attained[keep])
         a, m = attained[keep][order], missed[keep][order]
     else:
         sides = model.setting.sides
-        nominal = np.geomspace(1e-5, 0.6, CURVE_POINTS)
+        nominal = np.geomspace(SMALLEST_ALPHA, 0.6, CURVE_POINTS)
         z = special.ndtri(1 - nominal / sides)
         c = normal_at(model, np.full(z.shape, n[0]), z)
         a, m = np.asarray(c.attained), np.asarray(c.missed)
