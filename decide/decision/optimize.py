@@ -39,6 +39,7 @@ from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
 from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
+from ..engine.rule import DecisionRule, decision_rule
 from ..errors import ApproximationWarning, DecideError
 from .loss import (
     MISSED,
@@ -479,6 +480,7 @@ class Decision(PlainData):
     stated_cost_ratio: float
     regret: float | None = None
     warnings: tuple[str, ...] = field(default=())
+    rule: DecisionRule | None = None
 
 
 
@@ -657,6 +659,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     n_total = float(model.n_total(np.asarray(n)))
     study = float(model.study_cost(np.asarray(n)))
     accurate = settle(model, n, exact, float(ch.z[0]), c.nominal)
+    rule = decision_rule(model.setting, n, c.nominal, exact=exact, effect=float(model.effects[-1]))
     missed = p.p_harm * accurate.missed
     false_alarm = (1 - p.p_harm) * p.consequences.false_alarm * c.attained
     loss = missed + false_alarm + study
@@ -683,7 +686,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     elif feasible:
         sided = "one-sided" if model.setting.sides == 1 else "two-sided"
         rec = (f"Study {int(n):,} {d.size_name} ({int(n_total):,} subjects in all); flag the exposure "
-               f"if the {sided} {test} test is significant at alpha = {c.nominal:.4g}. "
+               f"if the {sided} {test} test is significant at alpha = {rule.cutoff_shown}. "
                f"Expected net benefit over deciding now (to {better}): {net:.4g}.")
     else:
         rec = f"{policy.title} cannot be met: {reason}."
@@ -710,6 +713,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         implied_cost_ratio=point,
         implied_cost_ratio_range=rng,
         warnings=tuple(warns),
+        rule=rule,
     )
 
 

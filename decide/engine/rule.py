@@ -451,8 +451,8 @@ def statement(rule: DecisionRule) -> str:
         return (f"Flag the exposure if {' or '.join(parts)} {rule.count_name} are observed "
                 f"({rule.expected_null:.3g} expected at the reference rate).")
     if rule.thresholds:
-        return (f"Flag the exposure if the {rule.count_name} reach the threshold shown for the number of "
-                f"{rule.total_name} observed (table).")
+        return (f"Flag the exposure if the {rule.count_name} reach the threshold listed for the total "
+                f"number of {rule.total_name} observed.")
     if rule.cutoff is not None:
         return "No outcome of the study flags the exposure."
     return (f"Flag the exposure if the {rule.test} test is significant at alpha = {rule.cutoff_shown} "

@@ -13,6 +13,7 @@ from ..decision.audit import Audit
 from ..decision.optimize import Decision
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
+from . import rules
 from .text import CAUTION, fmt, fmt_compact
 
 _LABELS = {
@@ -79,8 +80,8 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     t.add_row("feasible", "yes" if d.feasible else Text(f"no: {d.reason}", style="red"))
     if d.n_per_group is not None:
         t.add_row("test", d.method or "-")
-        t.add_row("alpha (nominal)", fmt(d.alpha))
-        t.add_row("alpha attained (false-alarm probability)", fmt(d.attained_alpha))
+        for label, value in rules.alpha_rows(d):
+            t.add_row(label, value)
         t.add_row("beta (miss probability, averaged over the effect)", fmt(d.beta))
         t.add_row(f"power at the design {design.effect_name} {fmt(d.design_effect)}", fmt(d.power_at_design_effect))
         t.add_row(design.size_name, fmt(d.n_per_group))
@@ -103,8 +104,9 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     t.add_row("stated cost ratio (miss : false alarm)", fmt(d.stated_cost_ratio))
     notes = [Text(d.recommendation, style="bold")]
     notes += [Text(f"Warning: {w}", style="yellow") for w in d.warnings]
+    notes += rules.decision_notes([d])
     notes.append(Text(CAUTION, style="dim italic"))
-    return Group(t, Panel(Group(*notes), border_style="dim"))
+    return Group(t, rules.console_rule(d.rule), Panel(Group(*notes), border_style="dim"))
 
 
 def _ratio(d: Decision | Audit) -> str:
@@ -133,8 +135,8 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
         t.add_column(d.title, justify="right", min_width=9, no_wrap=False)
     rows: list[tuple[str, Any]] = [
         ("meets the constraints", lambda d: Text("yes", style="green") if d.feasible else Text("no", style="red")),
-        ("alpha, nominal", lambda d: fmt(d.alpha, 3)),
-        ("alpha, attained", lambda d: fmt(d.attained_alpha, 3)),
+        ("alpha, nominal", rules.nominal_text),
+        ("alpha, attained", lambda d: fmt(rules.attained(d), 3)),
         ("beta (averaged)", lambda d: fmt(d.beta, 3)),
         ("power at design effect", lambda d: fmt(d.power_at_design_effect, 3)),
         (f"{design.size_name} per group", lambda d: fmt(d.n_per_group)),
@@ -161,6 +163,9 @@ def _notes(decisions: list[Decision]) -> list[Text]:
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
         notes.append(Text(f"Loss-optimal: {best.recommendation}", style="bold"))
+        if best.rule is not None:
+            notes.append(Text(f"Loss-optimal decision rule: {best.rule.statement}"))
+    notes += rules.decision_notes(decisions)
     notes.append(Text(CAUTION, style="dim italic"))
     return notes
 

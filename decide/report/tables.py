@@ -7,6 +7,7 @@ import io
 from typing import Any
 
 from ..decision.optimize import Decision
+from . import rules
 from .text import CAUTION, fmt, json_safe
 
 #: Columns of the flat comparison formats (CSV, Markdown).
@@ -42,12 +43,18 @@ def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, s
         lines += ["## Inputs", ""] + [f"- {label}: {value}" for label, value in inputs] + ["", "## Policies", ""]
     lines += ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
     for d in decisions:
-        cells = [d.title, "yes" if d.feasible else "no", fmt(d.alpha, 3), fmt(d.attained_alpha, 3),
+        cells = [d.title, "yes" if d.feasible else "no", rules.nominal_text(d), fmt(rules.attained(d), 3),
                  fmt(d.beta, 3), fmt(d.power_at_design_effect, 3), fmt(d.n_per_group), fmt(d.n_total),
                  fmt(d.expected_loss, 3), fmt(d.regret, 3), fmt(d.p_harm_given_negative, 3),
                  fmt(d.detectable_effect, 3), fmt(d.implied_cost_ratio, 3)]
         lines.append("| " + " | ".join(cells) + " |")
     lines += ["", f"Stated cost ratio (miss : false alarm): {fmt(decisions[0].stated_cost_ratio)}.", ""]
     lines += [f"- **{d.title}**: {d.reason}." for d in decisions if not d.feasible]
+    lines += ["", rules.NOMINAL_AND_ATTAINED, ""]
+    if any(d.test in ("normal", "normal-cc") for d in decisions):
+        lines += [rules.NORMAL_LOSS_NOTE, ""]
+    lines += ["## Decision rules", ""]
+    for d in decisions:
+        lines += rules.markdown_rule(d.rule, d.title)
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)
