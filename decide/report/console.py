@@ -13,7 +13,7 @@ from ..decision.audit import Audit
 from ..decision.optimize import Decision
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
-from . import rules
+from . import audit_words, rules
 from .text import CAUTION, fmt, fmt_compact
 
 _LABELS = {
@@ -175,21 +175,28 @@ def audit_table(a: Audit, unit: str) -> Group:
     design = get_design(a.design)
     t = Table(title=f"Audit of a {design.title.lower()} protocol", show_header=False)
     t.add_column("quantity", style="bold")
-    t.add_column("value")
+    t.add_column("value", overflow="fold")
     t.add_row("test", a.method)
-    t.add_row("alpha (nominal / attained)", f"{fmt(a.alpha)} / {fmt(a.attained_alpha)}")
+    for label, value in rules.alpha_rows(a):
+        t.add_row(label, value)
     t.add_row(f"power against {design.effect_name} {fmt(a.effect)}", fmt(a.power))
     t.add_row(design.size_name, fmt(a.n_per_group))
     t.add_row("subjects in all", fmt(a.n_total))
+    if a.prior is not None:
+        t.add_row(f"{design.effect_name} if harmful (prior, as entered)", a.prior)
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(a))
-    t.add_row("power gained per extra exposed subject", fmt(a.marginal_power_per_subject))
+    t.add_row(f"power gained per extra {audit_words.one_subject(a.design)}", fmt(a.marginal_power_per_subject))
     t.add_row("implied cost of a missed hazard", _money(a.implied_missed_hazard, unit))
     t.add_row("implied cost of a false alarm", _money(a.implied_false_alarm, unit))
     t.add_row("P(harmful | negative result)", fmt(a.p_harm_given_negative))
     t.add_row("P(harmful | positive result)", fmt(a.p_harm_given_positive))
     for level, effect in a.detectable_effects.items():
         t.add_row(f"{design.effect_name} detected with power {level}", fmt(effect))
+    for label, value in audit_words.loss_rows(a, unit):
+        t.add_row(label, value)
     notes = [Text(a.rules_out, style="bold")]
+    notes += [Text(line) for line in audit_words.explanations(a)]
     notes += [Text(f"Note: {w}", style="yellow") for w in a.warnings]
+    notes += rules.decision_notes([a])
     notes.append(Text(CAUTION, style="dim italic"))
-    return Group(t, Panel(Group(*notes), border_style="dim"))
+    return Group(t, rules.console_rule(a.rule), Panel(Group(*notes), border_style="dim"))

@@ -58,3 +58,40 @@ def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, s
         lines += rules.markdown_rule(d.rule, d.title)
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)
+
+
+def decision_markdown(d: Decision, title: str, inputs: list[tuple[str, str]], unit: str) -> str:
+    """One policy's decision as a Markdown document: inputs, the choice, its rule, the caution."""
+    lines = [f"# {title}", "", f"## {d.title}", ""]
+    lines += ["### Inputs", ""] + [f"- {label}: {value}" for label, value in inputs] + [""]
+
+    def money(v: float | None) -> str:
+        return "-" if v is None else f"{fmt(v)} {unit}".strip()
+
+    rows: list[tuple[str, str]] = [("meets the constraints", "yes" if d.feasible else f"no: {d.reason}")]
+    if d.n_per_group is not None and d.loss_parts is not None:
+        rows += [("test", d.method or "-"), *rules.alpha_rows(d),
+                 ("beta (miss probability, averaged over the effect)", fmt(d.beta)),
+                 (f"power at the design effect {fmt(d.design_effect)}", fmt(d.power_at_design_effect)),
+                 ("size per group", fmt(d.n_per_group)), ("subjects in all", fmt(d.n_total)),
+                 ("expected loss", money(d.expected_loss)),
+                 ("from missed hazards", money(d.loss_parts["missed"])),
+                 ("from false alarms", money(d.loss_parts["false_alarm"])),
+                 ("study cost", money(d.loss_parts["study"]))]
+    rows += [("loss if flagged now, no study", money(d.no_study["flag_now"])),
+             ("loss if cleared now, no study", money(d.no_study["clear_now"])),
+             ("expected net benefit of the study", money(d.net_benefit)),
+             ("P(harmful \\| negative result)", fmt(d.p_harm_given_negative)),
+             ("P(harmful \\| positive result)", fmt(d.p_harm_given_positive)),
+             ("smallest effect detected with power 0.8", fmt(d.detectable_effect)),
+             ("implied cost ratio (miss : false alarm)", fmt(d.implied_cost_ratio)),
+             ("stated cost ratio (miss : false alarm)", fmt(d.stated_cost_ratio))]
+    lines += ["| quantity | value |", "|---|---|"] + [f"| {k} | {v} |" for k, v in rows]
+    lines += ["", f"**{d.recommendation}**", ""]
+    lines += [f"- Warning: {w}" for w in d.warnings] + ([""] if d.warnings else [])
+    lines += ["### Decision rule", ""] + rules.markdown_rule(d.rule)
+    lines += [rules.NOMINAL_AND_ATTAINED, ""]
+    if d.test in ("normal", "normal-cc"):
+        lines += [rules.NORMAL_LOSS_NOTE, ""]
+    lines += [f"_{CAUTION}_", ""]
+    return "\n".join(lines)
