@@ -273,3 +273,15 @@ def test_normal_statistic_is_undefined_without_cases() -> None:
     up, down = d.normal_statistic(np.array([0.0]), np.array([0.0]), np.array([10.0]), np.array([0.1]),
                                   np.array([1.0]), np.array([1.0]), False)
     assert np.isnan(up).all() and np.isnan(down).all()
+
+
+def test_solve_reports_the_normal_test_real_false_alarm() -> None:
+    from decide.engine.solve import solve
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ApproximationWarning)
+        sol = solve("cohort-rate", baseline=2e-3, alpha=0.05, n_per_group=1000, effect=2.0, years=5.0,
+                    test="normal")
+    assert sol.false_alarm == pytest.approx(_brute_false_alarm("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05),
+                                            rel=1e-7)
+    assert sol.attained_alpha == pytest.approx(0.05)  # the normal approximation's own level

@@ -35,7 +35,8 @@ def solution_table(s: Solution) -> Group:
         t.add_row(label, Text(value, style="bold green") if solved else value)
 
     row(f"alpha (nominal, {'one' if s.sides == 1 else 'two'}-sided)", fmt(s.alpha), s.solved_for == "alpha")
-    row("alpha attained (false-alarm probability)", fmt(s.attained_alpha))
+    row("alpha attained (real false-alarm probability)",
+        "not computed (counts too large to lay out)" if s.false_alarm is None else fmt(s.false_alarm))
     row("power", fmt(s.power), s.solved_for == "power")
     row("beta (miss probability)", fmt(s.beta))
     row(d.effect_name, fmt(s.effect), s.solved_for == "effect")
