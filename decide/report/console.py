@@ -126,7 +126,9 @@ def compare_table(decisions: list[Decision], title: str, unit: str, width: int =
     parts = [decisions[i : i + per_table] for i in range(0, len(decisions), per_table)]
     tables = [_compare_part(part, design, title if i == 0 else "") for i, part in enumerate(parts)]
     tables[-1].caption = f"Costs in {unit or 'the scenario unit'} (k = thousand, M = million)."
-    return Group(*tables, Panel(Group(*_notes(decisions)), border_style="dim"))
+    best = next((d for d in decisions if d.policy == "loss-optimal"), None)
+    shown = rules.console_rule(best.rule, "Loss-optimal decision rule") if best is not None else Group()
+    return Group(*tables, shown, Panel(Group(*_notes(decisions)), border_style="dim"))
 
 
 def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) -> Table:
@@ -164,8 +166,6 @@ def _notes(decisions: list[Decision]) -> list[Text]:
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
         notes.append(Text(f"Loss-optimal: {best.recommendation}", style="bold"))
-        if best.rule is not None:
-            notes.append(Text(f"Loss-optimal decision rule: {best.rule.statement}"))
     notes += rules.decision_notes(decisions)
     notes.append(Text(CAUTION, style="dim italic"))
     return notes

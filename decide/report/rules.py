@@ -85,7 +85,7 @@ def alpha_rows(d: Any) -> list[tuple[str, str]]:
     return rows
 
 
-def console_rule(rule: DecisionRule | None) -> Any:
+def console_rule(rule: DecisionRule | None, title: str = "Decision rule") -> Any:
     """The rule as a rich renderable: its sentence, then its thresholds."""
     from rich.console import Group
     from rich.table import Table
@@ -93,7 +93,7 @@ def console_rule(rule: DecisionRule | None) -> Any:
 
     if rule is None:
         return Group()
-    parts: list[Any] = [Text(f"Decision rule: {rule.statement}", style="bold")]
+    parts: list[Any] = [Text(f"{title}: {rule.statement}", style="bold")]
     groups = runs(rule)
     if groups:
         t = Table(box=None, show_edge=False, pad_edge=False, title=None)
