@@ -285,3 +285,14 @@ def test_solve_reports_the_normal_test_real_false_alarm() -> None:
     assert sol.false_alarm == pytest.approx(_brute_false_alarm("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05),
                                             rel=1e-7)
     assert sol.attained_alpha == pytest.approx(0.05)  # the normal approximation's own level
+
+
+def test_grouped_thresholds_cover_every_total_once() -> None:
+    from decide.report.rules import runs
+
+    s = _setting("cohort-risk", 0.01, 1.0, None)
+    r = decision_rule(s, 3000, 0.05, exact=True, effect=1.5)
+    groups = runs(r)
+    spelled = {t: (up, down) for first, last, up, down in groups for t in range(first, last + 1)}
+    assert spelled == {row.total: (row.flag_at_least, row.flag_at_most) for row in r.thresholds}
+    assert all(a[2:] != b[2:] for a, b in zip(groups, groups[1:], strict=False))

@@ -24,6 +24,8 @@ NORMAL_LOSS_NOTE = (
 
 #: Columns of (totals, threshold) pairs in a console rule table.
 PAIRS_PER_LINE = 3
+#: Most lines of a console rule table; longer tables show evenly spaced totals.
+MOST_LINES = 20
 
 
 def runs(rule: DecisionRule) -> list[tuple[int, int, int | None, int | None]]:
@@ -95,6 +97,10 @@ def console_rule(rule: DecisionRule | None, title: str = "Decision rule") -> Any
         return Group()
     parts: list[Any] = [Text(f"{title}: {rule.statement}", style="bold")]
     groups = runs(rule)
+    every = 1
+    if len(groups) > PAIRS_PER_LINE * MOST_LINES:
+        every = -(-len(groups) // (PAIRS_PER_LINE * MOST_LINES))
+        groups = groups[::every]
     if groups:
         t = Table(box=None, show_edge=False, pad_edge=False, title=None)
         for _ in range(min(PAIRS_PER_LINE, len(groups))):
@@ -108,15 +114,18 @@ def console_rule(rule: DecisionRule | None, title: str = "Decision rule") -> Any
             cells += [""] * (2 * min(PAIRS_PER_LINE, len(groups)) - len(cells))
             t.add_row(*cells)
         parts.append(t)
+        if every > 1:
+            parts.append(Text(f"One group of totals in {every} is shown; --markdown and --json list them all.",
+                              style="dim"))
         parts.append(Text(_coverage(rule), style="dim"))
     return Group(*parts)
 
 
 def _coverage(rule: DecisionRule) -> str:
     sided = "one-sided" if rule.sides == 1 else "two-sided"
-    return (f"The totals shown carry 99.9% of the probability both if the exposure is harmful (at the design "
-            f"effect) and if it is harmless. On a total not shown, flag when the {sided} {rule.test} test "
-            f"gives p <= {rule.cutoff_shown}.")
+    return (f"The table covers the totals that carry 99.9% of the probability both if the exposure is harmful "
+            f"(at the design effect) and if it is harmless. On any other total, flag when the {sided} "
+            f"{rule.test} test gives p <= {rule.cutoff_shown}.")
 
 
 def markdown_rule(rule: DecisionRule | None, heading: str = "") -> list[str]:
