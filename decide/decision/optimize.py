@@ -448,7 +448,11 @@ class Decision(PlainData):
     (the point effect or the prior median).  ``implied_cost_ratio`` is the
     ratio of expected missed-hazard cost to false-alarm cost at which the
     chosen alpha would be loss-optimal for the chosen size (for exact tests,
-    the geometric middle of ``implied_cost_ratio_range``).
+    the geometric middle of ``implied_cost_ratio_range``).  ``rule`` states
+    the chosen test in counts (:class:`~decide.engine.rule.DecisionRule`);
+    for a normal test ``attained_alpha`` is the normal approximation's level,
+    which the loss uses, and ``rule.false_alarm`` its real false-alarm
+    probability under the exact law of the counts.
     """
 
     policy: str
