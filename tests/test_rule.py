@@ -177,7 +177,8 @@ def _statistic(design: str, x1, x0, n, n0, baseline, years, continuity):
     if design == "cohort-rate":
         share = n / (n + n0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            return (np.log(x1 / n) - np.log(x0 / n0)) * np.sqrt((x1 + x0) * share * (1 - share))
+            z = (np.log(x1 / n) - np.log(x0 / n0)) * np.sqrt((x1 + x0) * share * (1 - share))
+        return np.where((x1 > 0) & (x0 > 0), z, np.nan)  # no log rate ratio without a case in each group
     pooled = (x1 + x0) / (n + n0)
     cc = (1 / n + 1 / n0) / 2 if continuity else 0.0
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -296,3 +297,21 @@ def test_grouped_thresholds_cover_every_total_once() -> None:
     spelled = {t: (up, down) for first, last, up, down in groups for t in range(first, last + 1)}
     assert spelled == {row.total: (row.flag_at_least, row.flag_at_most) for row in r.thresholds}
     assert all(a[2:] != b[2:] for a, b in zip(groups, groups[1:], strict=False))
+
+
+@pytest.mark.parametrize("design", ["reference-rate", "cohort-rate", "cohort-risk"])
+@pytest.mark.parametrize("exact", [True, False])
+def test_extreme_levels_give_a_stated_rule(design: str, exact: bool) -> None:
+    s = _setting(design, 1e-3, None if design == "reference-rate" else 1.0,
+                 None if design == "cohort-risk" else 1.0)
+    never = decision_rule(s, 5, 0.0, exact=exact, effect=2.8)
+    assert never.false_alarm == 0.0 and never.statement == "No outcome of the study flags the exposure."
+    tiny = decision_rule(s, 50, 1e-300, exact=exact, effect=2.8)
+    assert tiny.false_alarm is not None and tiny.false_alarm <= 1e-15
+    loose = decision_rule(s, 50, 0.99999, exact=exact, effect=2.8)
+    assert loose.false_alarm is not None and 0 < loose.false_alarm <= 1.0
+    if design == "reference-rate" and exact:  # 0.05 expected: any case at all flags
+        assert loose.flag_at_least == 1
+        assert loose.false_alarm == pytest.approx(stats.poisson.sf(0, 0.05), rel=1e-9)
+    if exact:  # an exact test never exceeds its level
+        assert loose.false_alarm <= 0.99999 * (1 + 1e-9)

@@ -94,16 +94,16 @@ class CohortRate(StudyDesign):
         """``log(rate ratio) * sqrt(N pi (1 - pi))``, ``N`` the observed total, ``pi`` the exposed share.
 
         The null variance of the log rate ratio at the observed total, as the
-        design formula takes it at the expected total.  With no unexposed case
-        (and some exposed) the statistic is ``+inf``; with no exposed case,
-        ``-inf``.
+        design formula takes it at the expected total.  With no case in either
+        group the log rate ratio has no value: the statistic is ``nan`` and
+        such counts never flag.
         """
         t1 = n * years
         t0 = self.comparison_size(n, allocation) * years
         share = t1 / (t1 + t0)
         with np.errstate(divide="ignore", invalid="ignore"):
             z = (np.log(exposed / t1) - np.log(other / t0)) * np.sqrt((exposed + other) * share * (1 - share))
-        z = np.asarray(z, dtype=np.float64)
+        z = np.asarray(np.where((exposed > 0) & (other > 0), z, np.nan), dtype=np.float64)
         return z, z
 
     def count_model(

@@ -44,7 +44,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy import special, stats
+from scipy import special
 
 from .._results import PlainData
 from ..designs import EXACT_UP_TO, StudyDesign
@@ -263,13 +263,19 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     p = grid.p_value[0] if exact else np.where(
         np.isfinite(grid.p_value[0]), st.normal_p(grid.exposed_counts[0][:, None], grid.other_counts[0][None, :]),
         np.inf)
-    flag = p <= _limit(alpha)
+    # an exact level below the floor is the test that never flags (p-values under 1e-20 read as 0)
+    never = alpha <= 0 or (exact and alpha < _exact.ALPHA_FLOOR)
+    flag = np.zeros(p.shape, dtype=bool) if never else p <= _limit(alpha)
     false_alarm = float(min(1.0, grid.null_exposed[0] @ flag.astype(np.float64) @ grid.other[0]))
     low = float(p[flag].max()) if flag.any() else 0.0
-    rest = p[~flag & np.isfinite(p)]
+    rest = p[~flag & np.isfinite(p) & (p > 0)]
     high = float(rest.min()) if rest.size else math.inf
+    if never and exact:
+        high = _exact.ALPHA_FLOOR
     rule = DecisionRule(d.name, test, setting.sides, int(n), float(alpha), (low, high), _shown(alpha, (low, high)),
                         false_alarm, count_name, total_name, None, None, None)
+    if never:
+        return _with_statement(rule)
     if model.conditional == "poisson":
         expected = float(st.baseline[0] * n * st.years[0])
         at_least, at_most = _one_group(st, expected)
@@ -296,9 +302,14 @@ def _names(d: StudyDesign) -> tuple[str, str | None]:
 def _one_group(st: _Study, expected: float) -> tuple[int | None, int | None]:
     """Thresholds of a one-group test on the observed count."""
     s = st.setting
-    tiny = min(st.alpha, 0.5) * 1e-3
-    z = float(_normal.critical_z(np.asarray(st.alpha), s.sides))
-    top = max(float(stats.poisson.isf(tiny, expected)) + 1, (math.sqrt(expected) + abs(z) / 2) ** 2 + 2)
+    if st.exact:  # a count whose upper tail is below alpha / 1000
+        top = expected + 10 * math.sqrt(expected) + 10
+        while special.pdtrc(top, expected) > min(st.alpha, 0.5) * 1e-3:
+            top *= 2
+        top += 1
+    else:  # beyond it the square-root statistic exceeds the critical value
+        z = float(_normal.critical_z(np.asarray(st.alpha), s.sides))
+        top = (math.sqrt(expected) + abs(z) / 2) ** 2 + 2
     x = np.arange(0.0, math.ceil(top) + 1)[None, :]
     if st.exact:
         p = _exact.poisson_p_values(x, np.array([expected]), s.sides)[0]
