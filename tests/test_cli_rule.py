@@ -19,7 +19,7 @@ from scipy import special, stats
 from typer.testing import CliRunner
 
 from decide.cli import app
-from decide.report.rules import NOMINAL_AND_ATTAINED
+from decide.report.rule_words import NOMINAL_AND_ATTAINED
 from decide.report.text import CAUTION
 from decide.scenario import load_scenario
 

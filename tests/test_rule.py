@@ -289,7 +289,7 @@ def test_solve_reports_the_normal_test_real_false_alarm() -> None:
 
 
 def test_grouped_thresholds_cover_every_total_once() -> None:
-    from decide.report.rules import runs
+    from decide.report.rule_words import runs
 
     s = _setting("cohort-risk", 0.01, 1.0, None)
     r = decision_rule(s, 3000, 0.05, exact=True, effect=1.5)

@@ -42,8 +42,9 @@ from ..engine.power import evaluate
 from ..engine.rule import DecisionRule, decision_rule
 from ..engine.solve import solve
 from ..errors import DecideError
+from .choice import choose_tests
+from .implied import implied_ratio_exact, implied_ratio_normal
 from .loss import build_model, normal_at
-from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
 from .optimize import decide_policy as _decide_policy
 from .optimize import optimize as _optimize
 from .policies import Policy
@@ -95,11 +96,14 @@ class ProtocolLosses(PlainData):
     """The protocol judged by its own stated costs and prior.
 
     ``expected_loss`` and ``loss_parts`` are the protocol's (alpha and size
-    as they stand); ``regret`` is its extra expected loss over the
-    loss-optimal design of the same problem (``optimal_*``); ``net_benefit``
-    is the loss of the better no-study action (``no_study``) less the
-    protocol's.  ``stated_cost_ratio`` is the expected missed-hazard cost over
-    the false-alarm cost, to set beside the implied one.
+    as they stand); ``net_benefit`` is the loss of the better no-study action
+    (``no_study``) less the protocol's.  ``optimal_action`` is the best
+    action for the same problem: the loss-optimal study (``study``, with its
+    size, shown alpha and test) or, when no study is worth its cost,
+    ``flag-now`` or ``clear-now``; ``optimal_expected_loss`` is its loss and
+    ``regret`` the protocol's extra expected loss over it.
+    ``stated_cost_ratio`` is the expected missed-hazard cost over the
+    false-alarm cost, to set beside the implied one.
     """
 
     missed_hazard: float
@@ -109,13 +113,13 @@ class ProtocolLosses(PlainData):
     loss_parts: dict[str, float]
     no_study: dict[str, float]
     net_benefit: float
-    regret: float | None
+    regret: float
     stated_cost_ratio: float
+    optimal_action: str
     optimal_n_per_group: int | None
     optimal_alpha: str | None
     optimal_test: str | None
-    optimal_expected_loss: float | None
-    optimal_recommendation: str
+    optimal_expected_loss: float
 
 
 
@@ -184,15 +188,15 @@ def audit(
     warnings: list[str] = list(sol.warnings)
     rng: tuple[float, float] | None
     if exact:
-        found = _implied_ratio_exact(model, n, ch.chars.at(0))
-        rng = None if found is None else found[0]
-        ratio = None if rng is None else ratio_point(rng)
+        found = implied_ratio_exact(model, n, ch.chars.at(0))
+        rng = None if found is None else (found.low, found.high)
+        ratio = None if found is None else found.point
         slope = _exact_slope(model, alpha, n)
         warnings.append("exact power saw-tooths in size: the marginal power is the slope of a line "
                         "fitted to exact power over sizes within 10% of the protocol's")
     else:
         rng = None
-        ratio = _implied_ratio_normal(model, n, float(ch.z[0]))
+        ratio = implied_ratio_normal(model, n, float(ch.z[0]))
         h = max(1e-3 * n, 1e-3)
         c = normal_at(model, np.array([n - h, n + h]), np.full(2, float(ch.z[0])))
         slope = float((c.design_power[1] - c.design_power[0]) / (2 * h))
@@ -234,17 +238,19 @@ def _protocol_losses(problem: Problem, alpha: float, n: int, test: str) -> Proto
                             problem.effect, problem.p_harm, problem.consequences))
     assert protocol.expected_loss is not None and protocol.loss_parts is not None
     assert protocol.net_benefit is not None
-    regret = None if best.expected_loss is None else protocol.expected_loss - best.expected_loss
+    study = best.action == "study" and best.expected_loss is not None
+    best_loss = float(best.expected_loss) if study and best.expected_loss is not None else best.no_study_loss
+    action = "study" if study else best.no_study_action
     c = problem.consequences
     assert c.missed_hazard is not None
     return ProtocolLosses(
         missed_hazard=c.missed_hazard, false_alarm=c.false_alarm, fixed=c.fixed,
         expected_loss=protocol.expected_loss, loss_parts=protocol.loss_parts, no_study=protocol.no_study,
-        net_benefit=protocol.net_benefit, regret=regret, stated_cost_ratio=protocol.stated_cost_ratio,
-        optimal_n_per_group=best.n_per_group,
-        optimal_alpha=None if best.rule is None else best.rule.cutoff_shown,
-        optimal_test=best.test, optimal_expected_loss=best.expected_loss,
-        optimal_recommendation=best.recommendation,
+        net_benefit=protocol.net_benefit, regret=protocol.expected_loss - best_loss,
+        stated_cost_ratio=protocol.stated_cost_ratio, optimal_action=action,
+        optimal_n_per_group=best.n_per_group if study else None,
+        optimal_alpha=best.rule.cutoff_shown if study and best.rule is not None else None,
+        optimal_test=best.test if study else None, optimal_expected_loss=best_loss,
     )
 
 

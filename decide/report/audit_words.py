@@ -39,10 +39,11 @@ def loss_rows(a: Audit, unit: str) -> list[tuple[str, str]]:
         ("loss if flagged now, no study", _money(x.no_study["flag_now"], unit)),
         ("loss if cleared now, no study", _money(x.no_study["clear_now"], unit)),
         ("net benefit of running the protocol", _money(x.net_benefit, unit)),
+        ("best action for the same problem", x.optimal_action.replace("-", " ")),
         ("loss-optimal design: size per group", fmt(x.optimal_n_per_group)),
         ("loss-optimal design: alpha (nominal)", x.optimal_alpha or "-"),
-        ("loss-optimal design: expected loss", _money(x.optimal_expected_loss, unit)),
-        ("regret of the protocol (extra loss over the loss-optimal design)", _money(x.regret, unit)),
+        ("expected loss of the best action", _money(x.optimal_expected_loss, unit)),
+        ("regret of the protocol (extra loss over the best action)", _money(x.regret, unit)),
     ]
     return rows
 
@@ -52,7 +53,15 @@ def explanations(a: Audit) -> list[str]:
     out = [IMPLIED_MISSED_HAZARD.format(unit=one_subject(a.design))]
     x = a.losses
     if x is not None:
-        out.append(f"Loss-optimal design for the same costs and prior: {x.optimal_recommendation}")
+        size_name = get_design(a.design).size_name
+        if x.optimal_action == "study":
+            out.append(f"Loss-optimal design for the same costs and prior: {fmt(x.optimal_n_per_group)} "
+                       f"{size_name}, the {x.optimal_test} test at alpha = {x.optimal_alpha}, expected loss "
+                       f"{fmt(x.optimal_expected_loss)}.")
+        else:
+            verb = "flag" if x.optimal_action == "flag-now" else "clear"
+            out.append(f"By the same costs and prior no study is worth its cost: the best action is to {verb} "
+                       f"now (expected loss {fmt(x.optimal_expected_loss)}); the regret is measured against it.")
         if x.net_benefit <= 0:
             better = "flag" if x.no_study["flag_now"] < x.no_study["clear_now"] else "clear"
             out.append(f"By the stated costs the protocol is not worth running: deciding now (to {better}) "
@@ -62,7 +71,7 @@ def explanations(a: Audit) -> list[str]:
 
 def markdown(a: Audit, unit: str) -> str:
     """The audit as a Markdown document, with the rule, the notes and the caution."""
-    from .rules import NOMINAL_AND_ATTAINED, alpha_rows, markdown_rule
+    from .rule_words import NOMINAL_AND_ATTAINED, alpha_rows, markdown_rule
     from .text import CAUTION
 
     d = get_design(a.design)

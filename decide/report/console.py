@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 from rich.console import Group
@@ -10,10 +11,11 @@ from rich.table import Table
 from rich.text import Text
 
 from ..decision.audit import Audit
-from ..decision.optimize import Decision
+from ..decision.optimize import Comparison, Decision
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
-from . import audit_words, rules
+from . import audit_words, rule_words
+from .sentences import best_action, recommendation
 from .text import CAUTION, fmt, fmt_compact
 
 _LABELS = {
@@ -81,7 +83,7 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     t.add_row("feasible", "yes" if d.feasible else Text(f"no: {d.reason}", style="red"))
     if d.n_per_group is not None:
         t.add_row("test", d.method or "-")
-        for label, value in rules.alpha_rows(d):
+        for label, value in rule_words.alpha_rows(d):
             t.add_row(label, value)
         t.add_row("beta (miss probability, averaged over the effect)", fmt(d.beta))
         t.add_row(f"power at the design {design.effect_name} {fmt(d.design_effect)}", fmt(d.power_at_design_effect))
@@ -99,15 +101,17 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
         t.add_row("expected net benefit of the study", Text(_money(d.net_benefit, unit), style=style))
     if d.p_harm_given_negative is not None:
         t.add_row("P(harmful | negative result)", fmt(d.p_harm_given_negative))
+    if d.p_harm_given_positive is not None:
+        t.add_row("P(harmful | positive result), the share of flags that are true", fmt(d.p_harm_given_positive))
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", fmt(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
     t.add_row("stated cost ratio (miss : false alarm)", fmt(d.stated_cost_ratio))
-    notes = [Text(d.recommendation, style="bold")]
+    notes = [Text(recommendation(d), style="bold")]
     notes += [Text(f"Warning: {w}", style="yellow") for w in d.warnings]
-    notes += rules.decision_notes([d])
+    notes += rule_words.decision_notes([d])
     notes.append(Text(CAUTION, style="dim italic"))
-    return Group(t, rules.console_rule(d.rule), Panel(Group(*notes), border_style="dim"))
+    return Group(t, rule_words.console_rule(d.rule), Panel(Group(*notes), border_style="dim"))
 
 
 def _ratio(d: Decision | Audit) -> str:
@@ -119,15 +123,15 @@ def _ratio(d: Decision | Audit) -> str:
     return fmt(d.implied_cost_ratio)
 
 
-def compare_table(decisions: list[Decision], title: str, unit: str, width: int = 80) -> Group:
+def compare_table(decisions: Sequence[Decision], title: str, unit: str, width: int = 80) -> Group:
     """Policies side by side: one column per policy, one row per quantity."""
     design = get_design(decisions[0].design)
     per_table = max(1, (width - 22) // 15)
-    parts = [decisions[i : i + per_table] for i in range(0, len(decisions), per_table)]
+    parts = [list(decisions[i : i + per_table]) for i in range(0, len(decisions), per_table)]
     tables = [_compare_part(part, design, title if i == 0 else "") for i, part in enumerate(parts)]
     tables[-1].caption = f"Costs in {unit or 'the scenario unit'} (k = thousand, M = million)."
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
-    shown = rules.console_rule(best.rule, "Loss-optimal decision rule") if best is not None else Group()
+    shown = rule_words.console_rule(best.rule, "Loss-optimal decision rule") if best is not None else Group()
     return Group(*tables, shown, Panel(Group(*_notes(decisions)), border_style="dim"))
 
 
@@ -138,8 +142,8 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
         t.add_column(d.title, justify="right", min_width=9, no_wrap=False)
     rows: list[tuple[str, Any]] = [
         ("meets the constraints", lambda d: Text("yes", style="green") if d.feasible else Text("no", style="red")),
-        ("alpha, nominal", rules.nominal_text),
-        ("alpha, attained", lambda d: fmt(rules.attained(d), 3)),
+        ("alpha, nominal", rule_words.nominal_text),
+        ("alpha, attained", lambda d: fmt(rule_words.attained(d), 3)),
         ("beta (averaged)", lambda d: fmt(d.beta, 3)),
         ("power at design effect", lambda d: fmt(d.power_at_design_effect, 3)),
         (f"{design.size_name} per group", lambda d: fmt(d.n_per_group)),
@@ -147,6 +151,7 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
         ("expected loss", lambda d: fmt_compact(d.expected_loss)),
         ("regret", lambda d: fmt_compact(d.regret)),
         ("P(harm | negative)", lambda d: fmt(d.p_harm_given_negative, 3)),
+        ("P(harm | positive)", lambda d: fmt(d.p_harm_given_positive, 3)),
         (f"{design.effect_name} detected at 80%", lambda d: fmt(d.detectable_effect, 3)),
         ("implied cost ratio", lambda d: fmt(d.implied_cost_ratio, 3)),
     ]
@@ -155,18 +160,21 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
     return t
 
 
-def _notes(decisions: list[Decision]) -> list[Text]:
+def _notes(decisions: Sequence[Decision]) -> list[Text]:
     notes = [Text(f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
                   f"{fmt(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
                   "which its alpha would minimise expected loss for its size. Regret is the extra "
-                  "expected loss over the loss-optimal choice.", style="dim")]
+                  "expected loss over the best of all actions (a study, or flagging or clearing now).",
+                  style="dim")]
+    if isinstance(decisions, Comparison):
+        notes.insert(0, Text(best_action(decisions), style="bold"))
     for d in decisions:
         if not d.feasible:
             notes.append(Text(f"{d.title}: {d.reason}.", style="red"))
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
-        notes.append(Text(f"Loss-optimal: {best.recommendation}", style="bold"))
-    notes += rules.decision_notes(decisions)
+        notes.append(Text(f"Loss-optimal: {recommendation(best)}", style="bold"))
+    notes += rule_words.decision_notes(list(decisions))
     notes.append(Text(CAUTION, style="dim italic"))
     return notes
 
@@ -178,7 +186,7 @@ def audit_table(a: Audit, unit: str) -> Group:
     t.add_column("quantity", style="bold")
     t.add_column("value", overflow="fold")
     t.add_row("test", a.method)
-    for label, value in rules.alpha_rows(a):
+    for label, value in rule_words.alpha_rows(a):
         t.add_row(label, value)
     t.add_row(f"power against {design.effect_name} {fmt(a.effect)}", fmt(a.power))
     t.add_row(design.size_name, fmt(a.n_per_group))
@@ -198,6 +206,6 @@ def audit_table(a: Audit, unit: str) -> Group:
     notes = [Text(a.rules_out, style="bold")]
     notes += [Text(line) for line in audit_words.explanations(a)]
     notes += [Text(f"Note: {w}", style="yellow") for w in a.warnings]
-    notes += rules.decision_notes([a])
+    notes += rule_words.decision_notes([a])
     notes.append(Text(CAUTION, style="dim italic"))
-    return Group(t, rules.console_rule(a.rule), Panel(Group(*notes), border_style="dim"))
+    return Group(t, rule_words.console_rule(a.rule), Panel(Group(*notes), border_style="dim"))
