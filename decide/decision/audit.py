@@ -61,6 +61,9 @@ class Audit(PlainData):
     ``implied_missed_hazard`` and ``implied_false_alarm`` are in the unit of
     ``per_subject``.  ``detectable_effects`` maps a power to the smallest
     effect detected with it (``None`` where none up to the cap is).
+    ``rule`` is the protocol's test in counts; ``prior`` the effect prior as
+    entered (``None`` for a point); ``losses`` the protocol judged by its
+    own costs (``None`` when none were given).
     """
 
     design: str
