@@ -42,7 +42,7 @@ from ..engine import exact as _exact
 from ..engine import normal as _normal
 from ..engine.power import choose_exact
 from ..engine.study import Setting
-from .prior import SEARCH_PANELS
+from .prior import SEARCH_PANELS, TRUNCATION_NOTED_ABOVE
 from .problem import Problem
 
 #: Rows of the weight matrix: cost-weighted, prior-averaged, at the design effect.
@@ -62,7 +62,9 @@ class LossModel:
     cost-weighted sums over the prior (row ``MISSED``, applied to miss
     probabilities), prior averages (``AVERAGE``) and values at the design
     effect (``DESIGN``).  ``expected_missed`` is ``E[M(effect)]``, integrated
-    to :data:`SETTLE_TOL`.
+    to :data:`SETTLE_TOL`.  Every expectation is over the effect under harm,
+    the prior truncated to ratios above 1 (:class:`~decide.decision.prior.EffectPrior`);
+    ``notes`` says so when that leaves out more than 1 % of the stated prior.
     """
 
     problem: Problem
@@ -70,6 +72,7 @@ class LossModel:
     effects: FloatArray
     weights: FloatArray
     expected_missed: float
+    notes: tuple[str, ...] = ()
 
     @property
     def flag_now(self) -> float:
@@ -138,7 +141,19 @@ def build_model(problem: Problem) -> LossModel:
         x, v = model.prior_nodes(panels)
         return np.array([np.dot(v, problem.consequences.missed_cost(x))])
 
-    return LossModel(problem, model.setting, effects, weights, float(_refine(expected)[0]))
+    return LossModel(
+        problem, model.setting, effects, weights, float(_refine(expected)[0]), _truncation_notes(problem)
+    )
+
+
+def _truncation_notes(problem: Problem) -> tuple[str, ...]:
+    share = problem.effect.truncated_share
+    if problem.effect.is_point or share <= TRUNCATION_NOTED_ABOVE:
+        return ()
+    return (
+        f"the effect prior puts {100 * share:.3g} % of its mass at or below a ratio of 1, which is no harm: "
+        "the effect under harm is taken as the prior above 1, rescaled to sum to 1",
+    )
 
 
 def _refine(integral: Callable[[int], FloatArray]) -> FloatArray:

@@ -663,7 +663,7 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
     beta = 1 - accurate.power
     neg = p.p_harm * beta + (1 - p.p_harm) * (1 - c.attained)
     pos = p.p_harm * accurate.power + (1 - p.p_harm) * c.attained
-    warns = _approximation_notes(model, n, exact)
+    warns = [*model.notes, *_approximation_notes(model, n, exact)]
     if exact:
         found = _implied_ratio_exact(model, n, c)
         rng = None if found is None else found[0]
