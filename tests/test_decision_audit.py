@@ -10,8 +10,10 @@ Outside checks:
   condition, identity), so the implied ratio ``M/F`` follows, again from
   finite differences of ``decide.power.power``;
 * for the exact SIR test the implied ratios are those for which the
-  protocol's critical count is the Neyman-Pearson count (identity, see
-  ``test_decision_closed_form.py``);
+  protocol's critical count is the count the Neyman-Pearson lemma gives for
+  the weighted losses (Neyman, J. and Pearson, E. S. (1933). On the problem
+  of the most efficient tests of statistical hypotheses. *Phil. Trans. R.
+  Soc. A* 231, 289-337; identity, computed in the test);
 * detectable effects have the stated power by ``decide.power.power``;
 * ``P(harm | negative)`` by Bayes' rule.
 """

@@ -2,7 +2,7 @@
 
 Each reported number is recomputed in the test from its definition:
 
-* ``loss_parts`` add up to ``expected_loss``;
+* ``expected_loss`` is the sum of the three parts, each recomputed here:
 * ``missed = p E[beta(theta) M(theta)]`` and
   ``false_alarm = (1 - p) alpha_attained F``, the power and attained alpha
   taken from ``decide.power.power`` (a path separate from the optimiser's);
@@ -126,9 +126,10 @@ def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> N
         ref = recompute(problem, dec)
         parts = dec.loss_parts
         assert parts is not None and set(parts) == {"missed", "false_alarm", "study"}
-        assert sum(parts.values()) == pytest.approx(dec.expected_loss, rel=1e-12)
         # the engine neglects count tails below 1e-12 (decide.power), hence the abs terms
         scale = ref["clear_now"] / problem.p_harm + problem.consequences.false_alarm  # E[M] + F
+        total = ref["missed"] + ref["false_alarm"] + ref["study"]
+        assert dec.expected_loss == pytest.approx(total, rel=1e-9, abs=1e-11 * scale)
         assert parts["missed"] == pytest.approx(ref["missed"], rel=1e-9, abs=1e-11 * scale)
         assert parts["false_alarm"] == pytest.approx(ref["false_alarm"], rel=1e-9, abs=1e-11 * scale)
         assert parts["study"] == pytest.approx(ref["study"], rel=1e-12)
@@ -136,7 +137,9 @@ def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> N
         assert dec.attained_alpha == pytest.approx(ref["attained"], rel=1e-9, abs=1e-12)
         assert dec.beta == pytest.approx(ref["beta"], rel=1e-9, abs=1e-12)
         assert dec.no_study == pytest.approx({"flag_now": ref["flag_now"], "clear_now": ref["clear_now"]}, rel=1e-12)
-        assert dec.net_benefit == pytest.approx(min(ref["flag_now"], ref["clear_now"]) - dec.expected_loss, rel=1e-9)
+        assert dec.net_benefit == pytest.approx(
+            min(ref["flag_now"], ref["clear_now"]) - total, rel=1e-9, abs=1e-11 * scale
+        )
         assert dec.p_harm_given_negative == pytest.approx(ref["given_negative"], rel=1e-8)
         assert dec.p_harm_given_positive == pytest.approx(ref["given_positive"], rel=1e-8)
         says_no_study = "No study is worth its cost" in dec.recommendation
@@ -161,7 +164,11 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
     assert dec.no_study == pytest.approx({"flag_now": flag, "clear_now": clear})
     assert dec.feasible
     assert dec.expected_loss > 5e5 > min(flag, clear)
-    assert dec.net_benefit == pytest.approx(min(flag, clear) - dec.expected_loss)
+    # the loss of the chosen test recomputed from its definition, power from decide.power.power
+    r = power("cohort-rate", dec.alpha, dec.n_per_group, 2.0, 1e-3, allocation=1.0, years=5.0, test="normal")
+    loss = 0.3 * (1 - float(r.power)) * 1e6 + 0.7 * float(r.attained_alpha) * 1e6 + 5e5 + 5.0 * dec.n_total
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-9)
+    assert dec.net_benefit == pytest.approx(min(flag, clear) - loss, rel=1e-9)
     assert dec.net_benefit < 0
     assert dec.recommendation.startswith("No study is worth its cost")
     assert "clear now" in dec.recommendation  # clearing costs 3e5, flagging 7e5

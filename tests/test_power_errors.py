@@ -88,7 +88,9 @@ def test_power_rejects_bad_arrays() -> None:
 @pytest.mark.parametrize(
     ("design", "changes", "match"),
     [
-        # a size beyond the cap, normal and exact
+        # a size beyond the cap, normal and exact; the normal size is statsmodels' (0.15):
+        # samplesize_proportions_2indep_onetail(diff=0.01, prop2=0.01, power=0.8, ratio=1,
+        #     alpha=0.05, alternative="larger") = 1825.899..., rounded up to a whole subject
         ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100}, r"^n_per_group: the normal test needs 1,826"),
         ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100, "test": "exact"},
          r"^n_per_group: no size up to the cap of 100 reaches power 0\.8"),

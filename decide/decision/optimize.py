@@ -718,6 +718,9 @@ def optimize(problem: Problem) -> Decision:
 
     Examples
     --------
+    A usage example on an invented problem, not a check (the tests check
+    decisions against brute-force minima, closed forms and scipy quadrature):
+
     >>> from decide.decision.problem import Problem, Study, Consequences
     >>> from decide.decision.prior import EffectPrior
     >>> prob = Problem(Study("reference-rate", 2e-4, years=5.0), EffectPrior.point(2.0), 0.3,
