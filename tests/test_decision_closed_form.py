@@ -102,15 +102,17 @@ def test_normal_fixed_size_alpha_is_the_bayes_critical_value(
     alpha = stats.norm.sf(z)
     assert dec.test == "normal"
     assert dec.n_per_group == n
-    assert dec.alpha == pytest.approx(alpha, rel=1e-6, abs=0)
-    assert dec.attained_alpha == pytest.approx(alpha, rel=1e-6, abs=0)
-    assert 1 - dec.power == pytest.approx(stats.norm.cdf(z - d), rel=1e-6, abs=0)
+    # measured 3.2e-8: the loss is flat at its minimum, so the optimal z is found to about 1e-8; five times
+    assert dec.alpha == pytest.approx(alpha, rel=2e-7, abs=0)
+    assert dec.attained_alpha == pytest.approx(alpha, rel=2e-7, abs=0)
+    assert 1 - dec.power == pytest.approx(stats.norm.cdf(z - d), rel=2e-7, abs=0)
     loss = p * M * stats.norm.cdf(z - d) + (1 - p) * F * alpha + 1.0 * n
     assert dec.expected_loss == pytest.approx(loss, rel=1e-9)
     # the defining property: phi(z* - d) / phi(z*) = k
     k = (1 - p) * F / (p * M)
     z_dec = stats.norm.isf(dec.alpha)
-    assert stats.norm.pdf(z_dec - d) / stats.norm.pdf(z_dec) == pytest.approx(k, rel=1e-5)
+    # measured 5.7e-8; about five times
+    assert stats.norm.pdf(z_dec - d) / stats.norm.pdf(z_dec) == pytest.approx(k, rel=3e-7)
 
 
 def marginal_value(n: float, p: float, F: float, M: float, sir: float, baseline: float, years: float) -> float:
@@ -152,7 +154,8 @@ def test_joint_optimum_meets_the_envelope_condition(
     assert abs(root - n) <= 1.0
     # alpha at that n is the fixed-n Bayes critical value
     z = bayes_z(p, F, M, shift(n, baseline, years, sir))
-    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-6, abs=0)
+    # measured 1.7e-8 (z found to about 1e-8 on a flat loss); about five times
+    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-7, abs=0)
 
 
 @pytest.mark.parametrize(

@@ -230,7 +230,8 @@ def test_more_likely_than_not_is_the_equal_cost_bayes_test(p: float) -> None:
     dec = decide_policy(reference_normal(p, n), POLICIES["more-likely-than-not"])
     d = 2 * math.sqrt(n * 5 * 1e-3) * (math.sqrt(2.0) - 1)
     z = (math.log((1 - p) / p) + d * d / 2) / d
-    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-6, abs=0)
+    # measured 1.9e-8 (z found to about 1e-8 on a flat loss); about five times
+    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-7, abs=0)
     # flagging then means the posterior probability of harm is above one half
     assert dec.p_harm_given_positive > 0.5 > dec.p_harm_given_negative
 
@@ -276,8 +277,9 @@ def test_precautionary_alpha_is_the_solver_alpha_for_95_percent_power() -> None:
         test="normal",
     )
     # point effect: beta = 0.05 <= alpha, so the power target alone sets alpha
-    assert dec.alpha == pytest.approx(sol.alpha, rel=1e-7)
-    assert dec.beta == pytest.approx(0.05, rel=1e-7)
+    # measured 1.4e-15: rounding only
+    assert dec.alpha == pytest.approx(sol.alpha, rel=1e-12)
+    assert dec.beta == pytest.approx(0.05, rel=1e-12)
 
 
 def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: pytest.MonkeyPatch) -> None:
