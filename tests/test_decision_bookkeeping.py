@@ -204,6 +204,15 @@ def test_two_sided_probabilities_stay_probabilities() -> None:
     dec = optimize(prob)
     for value in (dec.alpha, dec.attained_alpha, dec.beta, dec.power, dec.power_at_design_effect):
         assert 0.0 <= value <= 1.0
+    # the same test through decide.power.power, and its loss from the definition
+    with pytest.warns(ApproximationWarning):  # 2.5 expected cases per group
+        r = power("cohort-rate", dec.alpha, 500, 1.5, 1e-3, allocation=1.0, years=5.0, sides=2, test="normal")
+    assert dec.alpha > 0.99 and dec.attained_alpha == pytest.approx(float(r.attained_alpha), rel=1e-12)
+    assert dec.beta == pytest.approx(1 - float(r.power), rel=1e-6, abs=1e-15)
+    loss = 0.9 * 1e6 * (1 - float(r.power)) + 0.1 * 1e6 * float(r.attained_alpha) + 1.0 * 1000
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-12)
+    # flagging always (alpha -> 1) costs (1 - p) F plus the study: nothing does better here
+    assert dec.expected_loss == pytest.approx(0.1 * 1e6 + 1000, rel=1e-11)
 
 
 def test_seeded_simulation_of_the_decision_process_agrees_with_expected_loss() -> None:
