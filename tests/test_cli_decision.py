@@ -57,7 +57,7 @@ COMPARE_KEYS = DECISION_KEYS | {
 }
 
 
-def run(*args: str) -> Any:
+def run(*args: str | Path) -> Any:
     return CliRunner().invoke(app, [str(a) for a in args], env=ENV)
 
 

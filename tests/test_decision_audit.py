@@ -21,6 +21,7 @@ Outside checks:
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import pytest
 from scipy import stats
@@ -38,7 +39,7 @@ NORMAL_PROTOCOLS = [
 ]
 
 
-def kwargs(allocation: float | None, years: float | None) -> dict[str, object]:
+def kwargs(allocation: float | None, years: float | None) -> dict[str, Any]:
     return {"allocation": allocation, "years": years, "test": "normal"}
 
 

@@ -55,13 +55,7 @@ NORMAL_CASES = [
 @pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
 @pytest.mark.parametrize(("design", "baseline", "allocation", "years", "prior", "missed", "n"), NORMAL_CASES)
 def test_normal_optimum_meets_the_first_order_condition(
-    design: str,
-    baseline: float,
-    allocation: float,
-    years: float,
-    prior: EffectPrior,
-    missed: dict[str, float],
-    n: int,
+    design: str, baseline: float, allocation: float, years: float, prior: EffectPrior, missed: dict[str, float], n: int
 ) -> None:
     prob = fixed_size_problem(design, baseline, allocation, years, prior, missed, n)
     dec = optimize(prob)
@@ -126,13 +120,7 @@ EXACT_CASES = [
 
 @pytest.mark.parametrize(("design", "baseline", "allocation", "years", "prior", "missed", "n"), EXACT_CASES)
 def test_exact_optimum_implied_ratio_range_contains_the_stated_ratio(
-    design: str,
-    baseline: float,
-    allocation: float,
-    years: float,
-    prior: EffectPrior,
-    missed: dict[str, float],
-    n: int,
+    design: str, baseline: float, allocation: float, years: float, prior: EffectPrior, missed: dict[str, float], n: int
 ) -> None:
     prob = fixed_size_problem(design, baseline, allocation, years, prior, missed, n, test="exact")
     dec = optimize(prob)

@@ -292,7 +292,7 @@ def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: p
     answer = solve_size(prob, 0.8)  # 133 cases
     real = OPTIMIZE_MODULE.exact_batches
 
-    def guarded(model, n):  # type: ignore[no-untyped-def]
+    def guarded(model, n: int):  # type: ignore[no-untyped-def]
         # A search near the answer is fine; exact power at 10,000 times it is what exhausts memory.
         top = float(np.max(n))
         assert top <= 10_000 * answer, f"exact power requested at {top:.3g} per group"

@@ -134,8 +134,14 @@ def test_point_prior_is_one_node() -> None:
 
 
 def fixed_size_problem(
-    design: str, baseline: float, allocation: float, years: float,
-    prior: EffectPrior, missed: dict[str, float], test: str, n: int,
+    design: str,
+    baseline: float,
+    allocation: float,
+    years: float,
+    prior: EffectPrior,
+    missed: dict[str, float],
+    test: str,
+    n: int,
 ) -> Problem:
     return helpers.fixed_size_problem(design, baseline, allocation, years, prior, missed, n, test=test)
 

@@ -72,7 +72,9 @@ def _uncorrected_size(p1: float, p0: float, r: float, alpha: float, beta: float,
         (0.30, 2.0, 3.0, 0.05, 0.20, 2),
     ],
 )
-def test_continuity_corrected_size_formula(p0, rr, r, alpha, beta, sides) -> None:
+def test_continuity_corrected_size_formula(
+    p0: float, rr: float, r: float, alpha: float, beta: float, sides: int
+) -> None:
     # Casagrande, Pike & Smith (1978) Biometrics 34:483-486 (r = 1) and
     # Fleiss, Tytun & Ury (1980) Biometrics 36:343-346 (unequal groups):
     # n_cc = n/4 * (1 + sqrt(1 + 2(r+1)/(r n |d|)))^2, computed here.
@@ -131,7 +133,9 @@ def test_schlesselman_worked_example() -> None:
     [(1.5, 0.05, 0.20, 1), (2.0, 0.05, 0.10, 1), (3.0, 0.01, 0.20, 1), (1.2, 0.05, 0.20, 2), (5.0, 0.05, 0.5, 2)],
 )
 @pytest.mark.parametrize(("baseline", "years"), [(1e-3, 1.0), (2e-5, 7.5)])
-def test_square_root_expected_cases(sir, alpha, beta, sides, baseline, years) -> None:
+def test_square_root_expected_cases(
+    sir: float, alpha: float, beta: float, sides: int, baseline: float, years: float
+) -> None:
     # Breslow & Day vol. II (1987) ch. 7, square-root form (from memory):
     # E = (z_a + z_b)^2 / (4 (sqrt(SIR) - 1)^2), computed here.
     expected = (Z(1 - alpha / sides) + Z(1 - beta)) ** 2 / (4 * (np.sqrt(sir) - 1) ** 2)
@@ -140,7 +144,7 @@ def test_square_root_expected_cases(sir, alpha, beta, sides, baseline, years) ->
     assert n * years * baseline == pytest.approx(expected, rel=1e-10)
 
 
-def _scipy_poisson_test(expected: np.ndarray, sir: np.ndarray, alpha: np.ndarray):
+def _scipy_poisson_test(expected: np.ndarray, sir: np.ndarray, alpha: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Critical count c = min{c : P(Pois(E) >= c) <= alpha}; power P(Pois(SIR*E) >= c)."""
     c = np.arange(0, 400)
     upper = stats.poisson.sf(c[None, :] - 1, expected[:, None])

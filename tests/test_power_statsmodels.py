@@ -44,9 +44,9 @@ def _cases(seed: int, k: int) -> dict[str, np.ndarray]:
 
 def _p1(design: str, baseline: np.ndarray, effect: np.ndarray) -> np.ndarray:
     if design == "cohort-risk":
-        return effect * baseline
+        return np.asarray(effect * baseline)
     odds = effect * baseline / (1 - baseline)  # case-control: exposure among cases
-    return odds / (1 + odds)
+    return np.asarray(odds / (1 + odds))
 
 
 @pytest.mark.parametrize("sides", [1, 2])
