@@ -82,6 +82,7 @@ def test_implied_missed_hazard_from_the_marginal_power_of_a_subject(
     ratio = (1 - p) * float(hi.attained_alpha - lo.attained_alpha) / (p * float(hi.power - lo.power))
     # measured 3.9e-8 (the audit's own step in z of 1e-5); about five times
     assert a.implied_cost_ratio == pytest.approx(ratio, rel=2e-7)
+    assert a.implied_false_alarm is not None and a.implied_missed_hazard is not None
     assert a.implied_false_alarm == pytest.approx(a.implied_missed_hazard / ratio, rel=2e-7)
 
 
@@ -161,12 +162,15 @@ def test_exact_audit_detectable_effects_and_implied_ratio_range() -> None:
     assert a.implied_cost_ratio_range == pytest.approx(expected, rel=1e-12)
     # the smallest effect detected with each power: exact power is continuous and rising in the SIR
     for level, found in a.detectable_effects.items():
+        assert found is not None
         # measured 3.9e-8 (the root's tolerance in the effect); about five times
         assert stats.poisson.sf(c - 1, found * E) == pytest.approx(float(level), rel=2e-7)
 
 
 def test_exactly_one_of_power_and_size() -> None:
-    common = {"baseline": 1e-3, "alpha": 0.05, "effect": 2.0, "p_harm": 0.2, "per_subject": 10.0, "years": 5.0}
+    common: dict[str, Any] = {
+        "baseline": 1e-3, "alpha": 0.05, "effect": 2.0, "p_harm": 0.2, "per_subject": 10.0, "years": 5.0
+    }
     with pytest.raises(DecideError, match="exactly one of power and n_per_group"):
         audit("cohort-rate", power=0.8, n_per_group=1000, **common)
     with pytest.raises(DecideError, match="exactly one of power and n_per_group"):
@@ -175,7 +179,7 @@ def test_exactly_one_of_power_and_size() -> None:
 
 @pytest.mark.parametrize(("key", "value"), [("p_harm", 1.0), ("p_harm", 0.0), ("per_subject", -1.0)])
 def test_audit_rejects_bad_judgments(key: str, value: float) -> None:
-    args = {
+    args: dict[str, Any] = {
         "baseline": 1e-3,
         "alpha": 0.05,
         "effect": 2.0,
@@ -203,6 +207,7 @@ def test_continuity_corrected_audit_detects_with_the_stated_power() -> None:
     )
     assert a.test == "normal-cc"
     for level, found in a.detectable_effects.items():
+        assert found is not None
         r = power("cohort-risk", 0.05, 3000, found, 0.01, test="normal", continuity=True)
         # measured 6.7e-16: rounding only
         assert float(r.power) == pytest.approx(float(level), rel=1e-12)

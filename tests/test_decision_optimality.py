@@ -61,6 +61,7 @@ def test_normal_optimum_meets_the_first_order_condition(
     dec = optimize(prob)
     assert dec.test == "normal" and dec.n_per_group == n
     a = dec.alpha
+    assert a is not None
     assert 1e-4 < a < 0.5  # interior
     # the optimiser minimises the loss under its search rule (with a panel edge at the
     # derived cost's kink); the condition holds for that rule's weights
@@ -92,6 +93,7 @@ def test_continuity_corrected_optimum_weighs_the_attained_alpha() -> None:
     dec = optimize(prob)
     assert dec.test == "normal-cc"
     a = dec.alpha
+    assert a is not None and dec.attained_alpha is not None
     h = 1e-4 * a
     up = power("cohort-risk", a + h, 1500, 2.0, 0.01, test="normal", continuity=True)
     down = power("cohort-risk", a - h, 1500, 2.0, 0.01, test="normal", continuity=True)
@@ -130,6 +132,7 @@ def test_exact_optimum_implied_ratio_range_contains_the_stated_ratio(
     effects, weights = prior.nodes()
     stated = float(np.sum(weights * prob.consequences.missed_cost(effects))) / prob.consequences.false_alarm
     assert lo * (1 - 1e-9) <= stated <= hi * (1 + 1e-9)
+    assert dec.implied_cost_ratio is not None
     assert lo <= dec.implied_cost_ratio <= hi
 
 
@@ -155,6 +158,7 @@ def test_bundled_scenarios_loss_optimal_choice_implies_the_stated_ratio(name: st
     dec = optimize(prob)
     assert dec.feasible
     if dec.test == "exact":
+        assert dec.implied_cost_ratio_range is not None
         lo, hi = dec.implied_cost_ratio_range
         assert lo * (1 - 1e-9) <= dec.stated_cost_ratio <= hi * (1 + 1e-9)
     else:

@@ -24,6 +24,7 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import Any
 
 import decision_helpers as helpers
 import numpy as np
@@ -152,7 +153,8 @@ def quad_loss(problem: Problem, dec: Decision) -> tuple[float, float]:
     d = get_design(s.design)
     prior = problem.effect
     n = dec.n_per_group
-    kw = {
+    assert n is not None and dec.attained_alpha is not None
+    kw: dict[str, Any] = {
         "allocation": s.allocation if d.allocation_name else None,
         "years": s.years if d.uses_years else None,
         "sides": s.sides,
@@ -168,17 +170,19 @@ def quad_loss(problem: Problem, dec: Decision) -> tuple[float, float]:
         def pw(t: float) -> float:
             return float(stats.poisson.sf(c - 1, t * expected))
     else:
-        attained = float(power(s.design, dec.alpha, n, prior.median, s.baseline, **kw).attained_alpha)
+        alpha = dec.alpha
+        assert alpha is not None
+        attained = float(power(s.design, alpha, n, prior.median, s.baseline, **kw).attained_alpha)
 
         def pw(t: float) -> float:
-            return float(power(s.design, dec.alpha, n, t, s.baseline, **kw).power)
+            return float(power(s.design, alpha, n, t, s.baseline, **kw).power)
 
     # the effect under harm: the lognormal truncated to ratios above 1, renormalised
     ref = stats.lognorm(s=prior.log_sd, scale=prior.median)
     cost = problem.consequences
 
     def integrand(t: float) -> float:
-        return (1 - pw(t)) * float(cost.missed_cost(np.array(t))) * ref.pdf(t) / ref.sf(1.0)
+        return (1 - pw(t)) * float(cost.missed_cost(np.array(t))) * float(ref.pdf(t) / ref.sf(1.0))
 
     lo, hi = max(1.0, prior.quantile(1e-13)), prior.quantile(1 - 1e-13)
     value, err = integrate.quad(integrand, lo, hi, limit=400, epsabs=0, epsrel=1e-11)
@@ -190,7 +194,7 @@ def quad_loss(problem: Problem, dec: Decision) -> tuple[float, float]:
 
 
 # design, baseline, allocation, years, prior, missed cost, test, n
-AGREE = [
+AGREE: list[Any] = [
     ("cohort-risk", 0.01, 2.0, 1.0, EffectPrior.from_interval(1.5, 4.0, 0.9), CONSTANT, "normal", 2000),
     ("case-control", 0.1, 4.0, 1.0, EffectPrior.from_interval(1.5, 4.0, 0.9), CONSTANT, "normal", 200),
     ("reference-rate", 1e-3, 1.0, 5.0, EffectPrior.from_interval(1.3, 3.0, 0.8), CONSTANT, "exact", 2000),
@@ -205,7 +209,7 @@ AGREE = [
 # Cases that once failed and are kept as checks: a derived cost's kink at effect 1 inside
 # the prior, and a power curve rising from 0 to 1 within a small part of a wide prior
 # (an earlier fixed 64-node Gauss-Hermite rule was off by up to 4.6 % in the missed part).
-ONCE_FAILED = [
+ONCE_FAILED: list[Any] = [
     pytest.param(
         "case-control",
         0.1,
@@ -261,6 +265,7 @@ def test_expected_loss_matches_quad_over_the_lognormal_density(
     missed_part, loss = quad_loss(prob, dec)
     # measured: at most 1.2e-12 apart (the exact engine's neglected count tails); the
     # decision settles its integrals to 1e-9, so allow about eight times the measured gap
+    assert dec.loss_parts is not None
     assert dec.loss_parts["missed"] == pytest.approx(missed_part, rel=1e-11)
     assert dec.expected_loss == pytest.approx(loss, rel=1e-11)
 
@@ -271,6 +276,7 @@ def test_bundled_water_supply_expected_loss_matches_quad() -> None:
     dec = optimize(prob)
     missed_part, loss = quad_loss(prob, dec)
     # measured: 4e-16 apart; the same allowance as the cases above
+    assert dec.loss_parts is not None
     assert dec.loss_parts["missed"] == pytest.approx(missed_part, rel=1e-11)
     assert dec.expected_loss == pytest.approx(loss, rel=1e-11)
 
