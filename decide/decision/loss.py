@@ -32,12 +32,13 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import NDArray
 from scipy import special
 
-from ..designs._base import FloatArray
+from ..designs._base import FloatArray, NormalMoments
 from ..engine import exact as _exact
 from ..engine import normal as _normal
 from ..engine.power import choose_exact
@@ -112,6 +113,13 @@ class LossModel:
         nodes, w = self.problem.effect.nodes(panels, self.kink)
         limit = float(self.setting.design.effect_limit(self.setting.baseline))
         return np.minimum(nodes, limit * (1 - 1e-9)), w
+
+    @cached_property
+    def normal_moments(self) -> tuple[NormalMoments, NormalMoments]:
+        """Moments of the normal statistic at ``effects`` and under no effect (computed once)."""
+        s = self.setting
+        m = s.design.normal_moments(s.baseline, self.effects, s.allocation, s.years, s.continuity)
+        return m, s.design.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity)
 
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
         """Where the test at size ``n`` is exact (see :func:`decide.power.choose_exact`)."""
@@ -210,9 +218,7 @@ class OperatingPoint:
 def normal_at(model: LossModel, n: FloatArray, z: FloatArray) -> Characteristics:
     """Characteristics of the normal test with critical value ``z`` at size ``n``."""
     s = model.setting
-    d = s.design
-    m = d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity)
-    m0 = d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity)
+    m, m0 = model.normal_moments
     nn, zz = np.broadcast_arrays(np.asarray(n, dtype=np.float64), np.asarray(z, dtype=np.float64))
     pw = _normal.power_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights.T
     miss = _normal.miss_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights[MISSED]
