@@ -82,6 +82,23 @@ def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
     return np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
 
 
+def _alt_window(m: Marginal) -> tuple[FloatArray, FloatArray]:
+    """The union of the windows along a trailing axis of effects: (B,) each.
+
+    Binomial counts of fixed trials and Poisson counts are stochastically
+    increasing in their parameter, so each tail quantile is too: the union
+    runs from the low end at the smallest parameter to the high end at the
+    largest, and only those two are computed.
+    """
+    if m.parameter.ndim < 2:
+        return _window(m)
+    rows = np.arange(m.parameter.shape[0])
+    trials = np.broadcast_to(m.trials, m.parameter.shape)
+    ends = np.stack([np.argmin(m.parameter, axis=-1), np.argmax(m.parameter, axis=-1)], axis=1)
+    lo, hi = _window(Marginal(m.family, trials[rows[:, None], ends], m.parameter[rows[:, None], ends]))
+    return lo[:, 0], hi[:, 1]
+
+
 def _pmf(family: str, trials: FloatArray, parameter: FloatArray, x: FloatArray) -> FloatArray:
     if family == "binomial":
         return np.asarray(stats.binom.pmf(x, trials, parameter), dtype=np.float64)
@@ -209,9 +226,9 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     every effect.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
-    hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    lo1 = np.minimum(lo_null, lo_alt)
+    hi1 = np.maximum(hi_null, hi_alt)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -320,8 +337,8 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     (about as many again) and the working copies made along the way.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
