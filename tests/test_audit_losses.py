@@ -8,7 +8,8 @@ Outside checks:
   ``theta`` is ``poisson.sf(c - 1, theta E)``.  The expected loss is then
   ``p M (1 - power) + (1 - p) F attained + per_subject n + fixed``
   (definition), with the lognormal prior integrated by
-  ``scipy.integrate.quad`` against ``scipy.stats.norm.pdf``;
+  ``scipy.integrate.quad`` against ``scipy.stats.norm.pdf`` (conditioned on a
+  ratio above 1, as the effect under harm is);
 * the loss-optimal design's loss is compared with a scan over sizes and
   critical counts of the same closed form;
 * the lognormal prior entered as a central interval reproduces it by
@@ -25,7 +26,7 @@ import pytest
 from rich.console import Console
 from scipy import integrate, stats
 
-from decide.decision.audit import audit
+from decide.decision.audit import Audit, audit
 from decide.decision.prior import EffectPrior
 from decide.errors import DecideError
 from decide.report.audit_words import IMPLIED_MISSED_HAZARD, explanations
@@ -43,7 +44,7 @@ def _critical(expected: float, alpha: float) -> int:
     return c
 
 
-def _protocol(prior: EffectPrior | None = None):
+def _protocol(prior: EffectPrior | None = None) -> Audit:
     return audit("reference-rate", baseline=RATE, alpha=ALPHA, effect=EFFECT, p_harm=P, per_subject=PER,
                  n_per_group=N, years=YEARS, test="exact", missed_hazard=M, false_alarm=F, fixed=FIXED,
                  prior=prior)
@@ -75,9 +76,12 @@ def test_lognormal_prior_loss_matches_quadrature_and_is_echoed_as_entered() -> N
     assert a.prior == "lognormal, median 2.19, 80% between 1.2 and 4"
     e = RATE * N * YEARS
     c = _critical(e, ALPHA)
+    # the effect under harm is the lognormal conditioned on a ratio above 1 (truncated at 1, renormalised)
+    u0 = math.log(1 / prior.median) / prior.log_sd
     miss, _ = integrate.quad(
         lambda u: stats.norm.pdf(u) * stats.poisson.cdf(c - 1, prior.median * math.exp(prior.log_sd * u) * e),
-        -12, 12, epsabs=1e-13, epsrel=1e-11, limit=200)
+        u0, 12, epsabs=1e-13, epsrel=1e-11, limit=200)
+    miss /= stats.norm.sf(u0)
     want = P * M * miss + (1 - P) * F * stats.poisson.sf(c - 1, e) + PER * N + FIXED
     assert a.losses is not None
     assert a.losses.expected_loss == pytest.approx(want, rel=1e-8)
@@ -123,7 +127,7 @@ def test_without_costs_there_is_no_loss_and_the_rule_is_still_stated() -> None:
 # wording
 
 
-def _screen(a, width: int) -> str:
+def _screen(a: Audit, width: int) -> str:
     con = Console(width=width, record=True, color_system=None)
     con.print(audit_table(a, "EUR"))
     text = con.export_text()
@@ -147,7 +151,7 @@ def test_case_control_says_case_and_power_is_stated_as_power() -> None:
 def test_no_note_is_cut_off(width: int) -> None:
     a = _protocol(EffectPrior.from_interval(1.2, 4.0, 0.8))
     shown = _screen(a, width)
-    for note in [a.rules_out, *explanations(a), *(f"Note: {w}" for w in a.warnings)]:
+    for note in [a.rules_out, *explanations(a, "EUR"), *(f"Note: {w}" for w in a.warnings)]:
         assert " ".join(note.split()) in shown
     assert IMPLIED_MISSED_HAZARD.format(unit="exposed subject") in shown
     if width >= 140:  # narrower tables wrap the cell beside its label

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from typing import Any
 
 import numpy as np
 import pytest
@@ -22,7 +23,7 @@ from scipy import special, stats
 from decide import power
 from decide.designs import get_design
 from decide.engine.rule import TABLE_MASS, decision_rule
-from decide.engine.study import check_setting
+from decide.engine.study import Setting, check_setting
 from decide.errors import ApproximationWarning
 
 
@@ -31,7 +32,7 @@ def _half_up(x: float) -> int:
 
 
 def _setting(design: str, baseline: float, allocation: float | None, years: float | None, sides: int = 1,
-             continuity: bool = False):
+             continuity: bool = False) -> Setting:
     return check_setting(design, baseline, allocation, years, sides, "auto", continuity)
 
 
@@ -67,7 +68,7 @@ def test_one_group_two_sided_thresholds(expected: float) -> None:
     c, a = r.flag_at_least, r.flag_at_most
 
     def p(x: int) -> float:  # central two-sided p-value, twice the smaller tail
-        return min(1.0, 2 * min(stats.poisson.sf(x - 1, expected), stats.poisson.cdf(x, expected)))
+        return min(1.0, 2 * min(float(stats.poisson.sf(x - 1, expected)), float(stats.poisson.cdf(x, expected))))
 
     assert c is not None and p(c) <= alpha < p(c - 1)
     if a is None:  # no count is low enough: even 0 is not significant
@@ -109,7 +110,9 @@ def test_shown_cut_off_prefers_the_nominal_alpha_when_it_reproduces_the_rule() -
 @pytest.mark.parametrize("sides", [1, 2])
 @pytest.mark.parametrize(("n", "allocation", "rate", "years", "alpha"),
                          [(2000, 1.0, 1e-3, 5.0, 0.05), (800, 2.0, 5e-4, 4.0, 0.01), (300, 0.5, 2e-3, 3.0, 0.3)])
-def test_cohort_rate_thresholds_against_binomtest(n, allocation, rate, years, alpha, sides) -> None:
+def test_cohort_rate_thresholds_against_binomtest(
+    n: int, allocation: float, rate: float, years: float, alpha: float, sides: int
+) -> None:
     s = _setting("cohort-rate", rate, allocation, years, sides)
     r = decision_rule(s, n, alpha, exact=True, effect=2.0)
     n0 = _half_up(allocation * n)
@@ -125,7 +128,7 @@ def test_cohort_rate_thresholds_against_binomtest(n, allocation, rate, years, al
         def p(x: int, t: int = t) -> float:
             if sides == 1:
                 return float(stats.binomtest(x, t, share, alternative=alternative).pvalue)
-            return min(1.0, 2 * min(stats.binom.sf(x - 1, t, share), stats.binom.cdf(x, t, share)))
+            return min(1.0, 2 * min(float(stats.binom.sf(x - 1, t, share)), float(stats.binom.cdf(x, t, share))))
 
         assert p(c) <= alpha * (1 + 1e-9)
         assert c == 0 or p(c - 1) > alpha
@@ -137,7 +140,9 @@ def test_cohort_rate_thresholds_against_binomtest(n, allocation, rate, years, al
     ("case-control", 60, 1.0, 0.2, 3.0, 0.05),
     ("case-control", 40, 3.0, 0.3, 2.0, 0.01),
 ])
-def test_fisher_thresholds_against_fisher_exact(design, n, allocation, baseline, effect, alpha) -> None:
+def test_fisher_thresholds_against_fisher_exact(
+    design: str, n: int, allocation: float, baseline: float, effect: float, alpha: float
+) -> None:
     s = _setting(design, baseline, allocation, None)
     r = decision_rule(s, n, alpha, exact=True, effect=effect)
     n0 = _half_up(allocation * n)
@@ -170,7 +175,8 @@ def test_totals_carry_the_stated_mass_under_both_hypotheses() -> None:
 # the normal test from counts: brute force
 
 
-def _statistic(design: str, x1, x0, n, n0, baseline, years, continuity):
+def _statistic(design: str, x1: Any, x0: Any, n: float, n0: float, baseline: float, years: float,
+               continuity: bool) -> Any:
     """The normal statistic toward harm, written out from its textbook form."""
     if design == "reference-rate":
         return 2 * (np.sqrt(x1) - np.sqrt(baseline * n * years))
@@ -185,7 +191,8 @@ def _statistic(design: str, x1, x0, n, n0, baseline, years, continuity):
         return (x1 / n - x0 / n0 - cc) / np.sqrt(pooled * (1 - pooled) * (1 / n + 1 / n0))
 
 
-def _brute_false_alarm(design, n, allocation, baseline, years, alpha, continuity=False) -> float:
+def _brute_false_alarm(design: str, n: int, allocation: float, baseline: float, years: float, alpha: float,
+                       continuity: bool = False) -> float:
     z = -special.ndtri(alpha)
     n0 = 0 if design == "reference-rate" else _half_up(allocation * n)
     if design == "reference-rate":
@@ -213,7 +220,10 @@ def _brute_false_alarm(design, n, allocation, baseline, years, alpha, continuity
     ("cohort-risk", 300, 1.5, 0.08, None, 0.025, True),
     ("case-control", 150, 1.0, 0.2, None, 0.05, False),
 ])
-def test_normal_false_alarm_against_brute_force(design, n, allocation, baseline, years, alpha, continuity) -> None:
+def test_normal_false_alarm_against_brute_force(
+    design: str, n: int, allocation: float | None, baseline: float, years: float | None, alpha: float,
+    continuity: bool,
+) -> None:
     want = _brute_false_alarm(design, n, allocation or 1.0, baseline, years or 1.0, alpha, continuity)
     with warnings.catch_warnings():  # few expected cases: the approximation warning is not under test
         warnings.simplefilter("ignore", ApproximationWarning)
@@ -241,7 +251,9 @@ def test_false_alarm_of_exact_tests_is_the_attained_alpha_and_of_huge_studies_no
     ("cohort-risk", 400, 1.0, 0.05, None, 1),
     ("case-control", 150, 2.0, 0.2, None, 2),
 ])
-def test_normal_thresholds_against_the_statistic(design, n, allocation, baseline, years, sides) -> None:
+def test_normal_thresholds_against_the_statistic(
+    design: str, n: int, allocation: float, baseline: float, years: float | None, sides: int
+) -> None:
     alpha = 0.05
     z = -special.ndtri(alpha / sides)
     s = _setting(design, baseline, allocation, years, sides)

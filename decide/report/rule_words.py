@@ -9,7 +9,7 @@ from __future__ import annotations
 from typing import Any
 
 from ..engine.rule import DecisionRule
-from .text import fmt
+from . import numbers as nb
 
 NOMINAL_AND_ATTAINED = (
     "Nominal alpha is the cut-off a p-value is compared with (the study flags when p <= alpha); "
@@ -21,6 +21,9 @@ NORMAL_LOSS_NOTE = (
     "The expected loss of a normal test counts its false alarms at the normal approximation's level "
     "(the nominal alpha); its attained alpha, from the exact distribution of the counts, is shown beside it."
 )
+
+#: Shown where the normal test's real false-alarm probability was not computed.
+NOT_COMPUTED = "not computed (counts too large to lay out)"
 
 #: Columns of (totals, threshold) pairs in a console rule table.
 PAIRS_PER_LINE = 3
@@ -71,7 +74,7 @@ def nominal_text(d: Any) -> str:
     rule = getattr(d, "rule", None)
     if rule is not None:
         return str(rule.cutoff_shown)
-    return fmt(getattr(d, "alpha", None))
+    return nb.probability(getattr(d, "alpha", None))
 
 
 def alpha_rows(d: Any) -> list[tuple[str, str]]:
@@ -83,7 +86,7 @@ def alpha_rows(d: Any) -> list[tuple[str, str]]:
     value = attained(d)
     rows = [(f"alpha, nominal ({sided}; flag when p <= alpha)", nominal_text(d))]
     rows.append(("alpha, attained (real false-alarm probability)",
-                 fmt(value) if value is not None else "not computed (counts too large to lay out)"))
+                 nb.probability(value) if value is not None else NOT_COMPUTED))
     return rows
 
 
