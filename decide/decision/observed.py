@@ -71,22 +71,22 @@ class Counts:
 
 def _whole(key: str, v: float) -> int:
     if v < 0:
-        raise DecideError(f"observed.{key}: must not be negative (got {v:g})", (f"observed.{key}",))
-    if float(v) != int(v):
-        raise DecideError(f"observed.{key}: must be a whole number (got {v:g})", (f"observed.{key}",))
+        raise DecideError(f"observed.{key} must not be negative, but got {v:g}", (f"observed.{key}",))
+    if not np.isfinite(v) or float(v) != int(v):
+        raise DecideError(f"observed.{key} must be a whole number, but got {v:g}", (f"observed.{key}",))
     return int(v)
 
 
 def _positive(key: str, v: float) -> float:
     if not v > 0 or not np.isfinite(v):
-        raise DecideError(f"observed.{key}: must be above 0 (got {v:g})", (f"observed.{key}",))
+        raise DecideError(f"observed.{key} must be above 0, but got {v:g}", (f"observed.{key}",))
     return float(v)
 
 
 def _within(count: str, size: str, x: int, n: float) -> None:
     if x > n:
         raise DecideError(
-            f"observed.{count}: must not exceed observed.{size} ({n:g}) (got {x})", (f"observed.{count}",)
+            f"observed.{count} must not exceed observed.{size} ({n:g}), but got {x}", (f"observed.{count}",)
         )
 
 
