@@ -256,7 +256,7 @@ def evidence(c: Counts) -> Evidence:
     return Evidence(p_upper=upper_tail(c, 1.0), p_lower=lower_tail(c, 1.0), z=z, z_cc=z_cc)
 
 
-def test_verdict(d: Decision, ev: Evidence) -> Verdict | None:
+def policy_verdict(d: Decision, ev: Evidence) -> Verdict | None:
     """Flag or clear under the policy's chosen test and threshold.
 
     Exact test: flag when the exact p-value (one-sided towards harm, or the
@@ -372,7 +372,7 @@ def _detectable_ratio(problem: Problem, c: Counts, alpha: float) -> float | None
 def _policy_verdicts(decisions: Sequence[Decision], ev: Evidence) -> tuple[PolicyVerdict, ...]:
     return tuple(
         PolicyVerdict(policy=d.policy, title=d.title, available=d.feasible, test=d.test, alpha=d.alpha,
-                      attained_alpha=d.attained_alpha, verdict=test_verdict(d, ev))
+                      attained_alpha=d.attained_alpha, verdict=policy_verdict(d, ev))
         for d in decisions
     )
 
@@ -435,7 +435,7 @@ def interpret(
         ci_high=high, p_value=ev.p_upper, p_value_two_sided=min(1.0, 2 * min(ev.p_upper, ev.p_lower)),
         statistic=ev.z, posterior_harm=post.p_harm, loss_flag=loss_flag, loss_clear=loss_clear,
         recommendation="flag" if loss_flag < loss_clear else "clear", verdicts=verdicts,
-        loss_optimal_verdict=None if best is None else test_verdict(best, ev),
+        loss_optimal_verdict=None if best is None else policy_verdict(best, ev),
         excludes_above=high, detectable=_detectable_ratio(problem, c, alpha), detect_alpha=alpha,
         detect_power=DETECT_POWER, prior_harm=problem.p_harm, sides=problem.study.sides,
         warnings=_notes(c),

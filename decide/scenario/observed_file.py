@@ -84,7 +84,9 @@ def counts_from_data(data: dict[str, object], file: str, problem: Problem) -> Co
     model: ObservedFileModel = validate_model(file, data, ObservedFileModel, ScenarioError)
     design = problem.study.design
     if model.design is not None and model.design != design:
-        raise ScenarioError(file, "design", f"the scenario's design is {design} (got {model.design!r})")
+        err = ScenarioError(file, "design", f"the scenario's design is {design} (got {model.design!r})")
+        err.params = (file,)  # a key of this file, not the command-line option of the same name
+        raise err
     try:
         return reader_of(design).read(model.observed.given(), float(problem.study.baseline))
     except DecideError as e:
