@@ -188,3 +188,23 @@ def test_bayes_action_is_the_loss_optimal_exact_test(
         if abs(flag - clear) <= 1e-9 * max(flag, clear):
             continue  # a tie: either action is optimal
         assert policy_verdict(d, evidence(c)) == ("flag" if flag < clear else "clear"), x
+
+
+@pytest.mark.parametrize("prior", [EffectPrior.point(2.0), LOGNORMAL], ids=["point", "lognormal"])
+def test_decisive_data_neither_overflow_nor_underflow(prior: EffectPrior) -> None:
+    study = Study("reference-rate", 3e-5, years=8.0)
+    problem = Problem(study, prior, 0.2, FIXED)
+    # 400 cases where 20 are expected: the likelihood ratio is far beyond the float range
+    high = posterior(problem, read_counts(problem, {"cases": 400, "expected": 20.0}))
+    # no case where 3000 are expected
+    low = posterior(problem, read_counts(problem, {"cases": 0, "expected": 3000.0}))
+    assert high.p_harm == 1.0 and math.isfinite(high.missed_given_harm)
+    if prior.is_point:  # closed form: odds p / (1 - p) times LR = 2**0 exp(-3000)
+        assert low.p_harm == pytest.approx(0.25 * math.exp(-3000.0), abs=0.0) and low.p_harm == 0.0
+    else:
+        # the truncated prior puts density g(0) at log ratio 0, where the likelihood ratio
+        # exp(-E (e**v - 1)) integrates to about 1/E (1 - 1/E): Laplace's method, closed form
+        m, sd = math.log(prior.median), prior.log_sd
+        g0 = stats.norm.pdf(0.0, m, sd) / special.ndtr(m / sd)
+        lr = g0 / 3000.0 * (1 - 1 / 3000.0)
+        assert low.p_harm == pytest.approx(0.25 * lr / (1 + 0.25 * lr), rel=1e-2)

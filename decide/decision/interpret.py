@@ -49,13 +49,23 @@ from scipy import special
 from .._results import PlainData
 from ..designs._base import FloatArray
 from ..engine.exact import REL_TOL
+from ..engine.selection import uses_exact
+from ..engine.study import check_setting
 from ..errors import DecideError
 from .implied import _detectable
-from .observed import Counts, fisher_log_pmf, fisher_support, lower_tail, reader_of, upper_tail
+from .observed import (
+    Counts,
+    fisher_log_pmf,
+    fisher_support,
+    log_likelihood,
+    lower_tail,
+    reader_of,
+    upper_tail,
+)
 from .optimize import Decision, compare
 from .policies import LOSS_OPTIMAL, Policy
-from .problem import Problem
 from .prior import REACH, composite_rule
+from .problem import Problem
 
 Verdict = Literal["flag", "clear"]
 #: Power at which the detectable ratio is reported.
@@ -296,7 +306,8 @@ def _effect_nodes(problem: Problem, c: Counts, panels: int) -> tuple[FloatArray,
     largest value (found on a fine grid), so a sharp likelihood is not missed.
     """
     e = problem.effect
-    limit = float(problem.study.setting().design.effect_limit(problem.study.setting().baseline))
+    setting = problem.study.setting()
+    limit = float(setting.design.effect_limit(setting.baseline))
     lo = max(-REACH, -np.log(e.median) / e.log_sd)
     top = min(REACH + e.log_sd, np.log(limit * (1 - 1e-9) / e.median) / e.log_sd)
     grid = np.linspace(lo, top, 4001)
@@ -312,8 +323,6 @@ def _effect_nodes(problem: Problem, c: Counts, panels: int) -> tuple[FloatArray,
 
 def log_likelihood_ratio(problem: Problem, c: Counts, ratio: FloatArray) -> FloatArray:
     """``log L(ratio) - log L(1)``: the exact (conditional) likelihood at the design's ratio."""
-    from .observed import log_likelihood
-
     reader = reader_of(c.design)
     baseline = float(problem.study.baseline)
     par = reader.to_law(np.asarray(ratio, dtype=np.float64), baseline)
@@ -324,27 +333,30 @@ def posterior(problem: Problem, c: Counts) -> Posterior:
     """``P(harm | data)`` and ``E[M(theta) | data, harm]`` by quadrature over the effect prior.
 
     Point effect: ``p L(theta) / (p L(theta) + (1 - p) L(1))``.  Lognormal:
-    ``L(theta)`` is integrated over the truncated prior, doubling the panels
-    until two results agree to 1e-10.
+    ``L(theta) / L(1)`` is integrated over the truncated prior, doubling the
+    panels until two results agree to 1e-10; sums are kept in logs so that
+    decisive data neither overflow nor underflow.
     """
     p, cost = problem.p_harm, problem.consequences
     if problem.effect.is_point:
         theta = np.array([problem.effect.median])
-        lr = float(np.exp(log_likelihood_ratio(problem, c, theta)[0]))
+        log_ratio = float(log_likelihood_ratio(problem, c, theta)[0])
         missed = float(cost.missed_cost(theta)[0])
     else:
         last = None
         for panels in (32, 64, 128, 256, 512):
             x, w = _effect_nodes(problem, c, panels)
-            weights = w * np.exp(log_likelihood_ratio(problem, c, x))
+            llr = log_likelihood_ratio(problem, c, x)
+            top = float(llr.max())
+            weights = w * np.exp(llr - top)
             now = np.array([weights.sum(), weights @ cost.missed_cost(x)])
             if last is not None and np.all(np.abs(now - last) <= 1e-10 * np.abs(now)):
                 break
             last = now
-        lr, missed = float(now[0]), float(now[1] / now[0]) if now[0] > 0 else 0.0
-    if not np.isfinite(lr):
-        return Posterior(1.0, missed)
-    return Posterior(float(p * lr / (p * lr + (1 - p))), missed)
+        log_ratio = top + float(np.log(now[0]))
+        missed = float(now[1] / now[0])
+    # P(harm | data) = 1 / (1 + (1 - p) / (p LR)), in logs
+    return Posterior(float(special.expit(log_ratio + np.log(p) - np.log1p(-p))), missed)
 
 
 # --------------------------------------------------------------------------
@@ -352,7 +364,12 @@ def posterior(problem: Problem, c: Counts) -> Posterior:
 
 
 def _detectable_ratio(problem: Problem, c: Counts, alpha: float) -> float | None:
-    """The ratio the study as done had :data:`DETECT_POWER` power to detect at ``alpha``."""
+    """The ratio the study as done had :data:`DETECT_POWER` power to detect at ``alpha``.
+
+    The study's test (normal or exact) is chosen by the scenario's rule at
+    the observed size and the design effect.  Person-time is carried as
+    ``10**6`` subjects followed for the matching years.
+    """
     s = problem.study
     if c.law == "poisson":
         n, alloc, years = _PT_SUBJECTS, None, c.size1 / (s.baseline * _PT_SUBJECTS)
@@ -363,8 +380,10 @@ def _detectable_ratio(problem: Problem, c: Counts, alpha: float) -> float | None
         assert c.size0 is not None
         n, alloc, years = int(c.size1), c.size0 / c.size1, None
     try:
+        setting = check_setting(s.design, s.baseline, alloc, years, s.sides, s.test, s.continuity)
+        exact = bool(uses_exact(setting, n, problem.effect.median))
         return _detectable(s.design, float(s.baseline), alloc, years, s.sides, s.continuity,
-                           float(alpha), n, s.test == "exact", DETECT_POWER)
+                           float(alpha), n, exact, DETECT_POWER)
     except DecideError:
         return None
 
@@ -412,6 +431,20 @@ def interpret(
     DecideError
         If a count is negative, not whole, exceeds its group, or is not one
         of the design's; or ``confidence`` is not in (0, 1).
+
+    Examples
+    --------
+    Usage example (an invented cohort against a reference rate, no case where
+    1.5 were expected; a miss costs a hundred false alarms, so flagging still
+    has the smaller expected loss; the numbers are checked in the tests):
+
+    >>> from decide.decision.problem import Problem, Study, Consequences
+    >>> from decide.decision.prior import EffectPrior
+    >>> prob = Problem(Study("reference-rate", 2e-4, years=5.0), EffectPrior.point(2.0), 0.3,
+    ...                Consequences(false_alarm=1e6, per_subject=20.0, missed_hazard=1e8))
+    >>> r = interpret(prob, {"cases": 0, "expected": 1.5})
+    >>> r.ci_low, round(r.excludes_above, 3), r.p_value, round(r.posterior_harm, 4), r.recommendation
+    (0.0, 2.459, 1.0, 0.0873, 'flag')
     """
     if not 0 < confidence < 1:
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))

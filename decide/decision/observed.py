@@ -40,6 +40,8 @@ from ..designs._base import FloatArray
 from ..errors import DecideError
 
 Law = Literal["poisson", "binomial", "fisher"]
+#: Cells (ratios x support) of Fisher's law held in memory at once.
+_CELLS = 2_000_000
 
 
 @dataclass(frozen=True)
@@ -250,8 +252,11 @@ def log_likelihood(c: Counts, parameter: FloatArray) -> FloatArray:
         return np.asarray(coef + special.xlogy(c.x1, share) + special.xlog1py(c.x0, -share), dtype=np.float64)
     x = fisher_support(c)
     with np.errstate(divide="ignore"):
-        lp = fisher_log_pmf(c, np.log(np.where(np.isfinite(par), par, 1e300)))
-    return np.asarray(lp[..., int(c.x1 - x[0])], dtype=np.float64)
+        log_psi = np.log(np.where(np.isfinite(par), par, 1e300)).ravel()
+    at = int(c.x1 - x[0])
+    step = max(1, _CELLS // x.size)  # keep each block of (ratios x support) bounded
+    out = np.concatenate([fisher_log_pmf(c, log_psi[i:i + step])[:, at] for i in range(0, log_psi.size, step)])
+    return np.asarray(out.reshape(par.shape), dtype=np.float64)
 
 
 def upper_tail(c: Counts, parameter: float) -> float:

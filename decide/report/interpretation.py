@@ -40,7 +40,8 @@ def rules_out(r: Interpretation) -> str:
 def power_note(r: Interpretation) -> str:
     """What the study could detect, and the warning against reading 'not significant' as 'safe'."""
     if r.detectable is None:
-        could = f"the study had less than {r.detect_power:.0%} power against every {r.effect_name} in the design's range"
+        could = (f"the study had less than {r.detect_power:.0%} power against every {r.effect_name} "
+                 "in the design's range")
     else:
         could = (f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
                  f"{fmt(r.detectable, 3)} or more (alpha {fmt(r.detect_alpha, 3)})")
@@ -112,7 +113,7 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
     for col in ("policy", "test", "alpha (nominal)", "attained alpha (planned size)", "verdict"):
         v.add_column(col)
     for pv in r.verdicts:
-        verdict = pv.verdict or "no test"
+        verdict: str = pv.verdict or "no test"
         if not pv.available and pv.verdict is not None:
             verdict += " (policy unmet)"
         v.add_row(pv.policy, pv.test or "-", fmt(pv.alpha), fmt(pv.attained_alpha), verdict)
