@@ -382,11 +382,16 @@ def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -
 
 @app.command("schema")
 def schema_command(
-    kind: Annotated[str, typer.Argument(help="scenario or policy.")] = "scenario",
+    kind: Annotated[str, typer.Argument(help="scenario, policy or observed.")] = "scenario",
 ) -> None:
-    """Print the JSON Schema of scenario (or policy) files."""
-    if kind not in ("scenario", "policy"):
-        _fail(f"decide schema: KIND must be scenario or policy, but got {kind!r}", 2)
+    """Print the JSON Schema of scenario (or policy, or observed-data) files."""
+    if kind not in ("scenario", "policy", "observed"):
+        _fail(f"decide schema: KIND must be scenario, policy or observed, but got {kind!r}", 2)
+    if kind == "observed":
+        from .scenario.observed_file import observed_json_schema
+
+        emit_json(observed_json_schema())
+        return
     emit_json(scenario_json_schema() if kind == "scenario" else policy_json_schema())
 
 

@@ -169,3 +169,15 @@ def test_zero_cases_print_no_infinity(tmp_path: Path) -> None:
     out = json.loads(run("interpret", REFERENCE, "--data", str(data), "--json", "--policy", "loss-optimal").stdout)
     expected = 50000.0 * load_scenario(REFERENCE).problem.study.baseline
     assert out["ci_low"] == 0 and out["excludes_above"] == pytest.approx(-math.log(0.025) / expected, rel=1e-12)
+
+
+def test_schema_of_the_data_file_lists_every_designs_keys() -> None:
+    res = run("schema", "observed")
+    assert res.exit_code == 0
+    schema = json.loads(res.stdout)
+    keys = set(schema["$defs"]["ObservedModel"]["properties"])
+    from decide.decision.observed import READERS
+
+    for reader in READERS.values():
+        for key in reader.keys:
+            assert set(key.split(" | ")) <= keys

@@ -20,7 +20,7 @@ design and the counts fit their groups.  Every problem is one line,
 from __future__ import annotations
 
 import os
-from typing import Annotated
+from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -29,7 +29,7 @@ from decide.decision.problem import Problem
 from decide.errors import DecideError
 
 from ._messages import ScenarioError, from_core_error
-from .files import read_toml, validate_model
+from .files import read_toml, toml_json_schema, validate_model
 
 Count = Annotated[int, Field(ge=0, description="A count of subjects or cases (a whole number, 0 or more).")]
 Size = Annotated[float, Field(gt=0, description="A number of subjects or person-years, above 0.")]
@@ -102,3 +102,8 @@ def load_observed(path: str | os.PathLike[str], problem: Problem) -> Counts:
         With the one-line message ``<file>: <key.path>: <reason> (got <value>)``.
     """
     return counts_from_data(read_toml(path), os.fspath(path), problem)
+
+
+def observed_json_schema() -> dict[str, Any]:
+    """The JSON Schema of an observed-data file."""
+    return toml_json_schema(ObservedFileModel)
