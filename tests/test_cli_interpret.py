@@ -181,3 +181,22 @@ def test_schema_of_the_data_file_lists_every_designs_keys() -> None:
     for reader in READERS.values():
         for key in reader.keys:
             assert set(key.split(" | ")) <= keys
+
+
+def test_one_policy_still_gets_the_loss_optimal_reading() -> None:
+    loaded = load_scenario(REFERENCE)
+    policies = load_policies(())
+    obs = {"cases": 5, "expected": 2.0}
+    alone = decide.interpret(loaded.problem, obs, [policies["conventional-science"]])
+    both = decide.interpret(loaded.problem, obs, [policies["conventional-science"], decide.LOSS_OPTIMAL])
+    assert [v.policy for v in alone.verdicts] == ["conventional-science"]
+    assert alone.loss_optimal_verdict == both.loss_optimal_verdict == both.verdicts[1].verdict
+    assert alone.detect_alpha == both.verdicts[1].alpha
+    other = load_scenario(SOLVENT).problem
+    counts = decide.interpret(other, {"cases_exposed": 1, "n_exposed": 9, "cases_unexposed": 2, "n_unexposed": 9})
+    assert counts.design == "cohort-risk"
+    from decide.decision.interpret import read_counts
+
+    with pytest.raises(decide.DecideError, match="^observed: counts of the cohort-risk design, but the scenario"):
+        decide.interpret(loaded.problem, read_counts(other, {"cases_exposed": 1, "n_exposed": 9,
+                                                             "cases_unexposed": 2, "n_unexposed": 9}))

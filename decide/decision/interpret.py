@@ -73,8 +73,9 @@ DETECT_POWER = 0.8
 #: Subjects standing for person-time when a rate study's detectable ratio is solved.
 _PT_SUBJECTS = 10**6
 _METHODS = {
-    "cohort-risk": "exact conditional interval for the odds ratio (Fisher's noncentral hypergeometric), "
-                   "carried to the risk ratio at the scenario's baseline risk; Fisher's exact test",
+    "cohort-risk": "risk ratio of the observed risks; exact conditional interval for the odds ratio (Fisher's "
+                   "noncentral hypergeometric), carried to the risk ratio at the scenario's baseline risk; "
+                   "Fisher's exact test",
     "case-control": "exact conditional interval for the odds ratio (Fisher's noncentral hypergeometric), "
                     "conditional maximum-likelihood estimate; Fisher's exact test",
     "cohort-rate": "exact conditional binomial interval (Clopper-Pearson) for the rate ratio given "
@@ -418,7 +419,9 @@ def interpret(
         a data file, e.g. ``cases_exposed``, ``n_exposed``, ``cases_unexposed``,
         ``n_unexposed`` for ``cohort-risk``).
     policies : sequence of Policy
-        Policies whose verdicts are reported (as in :func:`compare`).
+        Policies whose verdicts are reported (as in :func:`compare`); the
+        loss-optimal policy is always applied for ``loss_optimal_verdict``
+        and ``detect_alpha``.
     confidence : float
         Confidence of the two-sided, equal-tailed interval.
 
@@ -449,16 +452,20 @@ def interpret(
     if not 0 < confidence < 1:
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))
     c = observed if isinstance(observed, Counts) else read_counts(problem, observed)
+    if c.design != problem.study.design:
+        raise DecideError(f"observed: counts of the {c.design} design, but the scenario's design is "
+                          f"{problem.study.design}", ("observed",))
     reader = reader_of(c.design)
     baseline = float(problem.study.baseline)
     ev = evidence(c)
-    comparison = compare(problem, list(policies))
-    verdicts = _policy_verdicts(list(comparison), ev)
+    asked = list(policies)
+    decisions = list(compare(problem, asked + ([] if LOSS_OPTIMAL in asked else [LOSS_OPTIMAL])))
+    verdicts = _policy_verdicts(decisions[: len(asked)], ev)
     post = posterior(problem, c)
     loss_flag = (1 - post.p_harm) * problem.consequences.false_alarm
     loss_clear = post.p_harm * post.missed_given_harm
-    best = next((d for d in comparison if d.policy == LOSS_OPTIMAL.name), None)
-    alpha = best.alpha if best is not None and best.alpha is not None else 0.05
+    best = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
+    alpha = best.alpha if best.alpha is not None else 0.05
     lo_law, hi_law = _law_interval(c, confidence)
     low = float(reader.from_law(np.asarray(lo_law), baseline))
     high = float(reader.from_law(np.asarray(hi_law), baseline)) if np.isfinite(hi_law) else np.inf
@@ -468,7 +475,7 @@ def interpret(
         ci_high=high, p_value=ev.p_upper, p_value_two_sided=min(1.0, 2 * min(ev.p_upper, ev.p_lower)),
         statistic=ev.z, posterior_harm=post.p_harm, loss_flag=loss_flag, loss_clear=loss_clear,
         recommendation="flag" if loss_flag < loss_clear else "clear", verdicts=verdicts,
-        loss_optimal_verdict=None if best is None else policy_verdict(best, ev),
+        loss_optimal_verdict=policy_verdict(best, ev),
         excludes_above=high, detectable=_detectable_ratio(problem, c, alpha), detect_alpha=alpha,
         detect_power=DETECT_POWER, prior_harm=problem.p_harm, sides=problem.study.sides,
         warnings=_notes(c),
