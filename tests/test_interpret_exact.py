@@ -180,3 +180,22 @@ def test_zero_cases_give_one_sided_intervals_and_no_infinite_numbers() -> None:
     # reference rate with no case: Garwood's upper limit, -ln(0.025) / E in closed form
     low, high = _law_interval(ref(0, 2.0), 0.95)
     assert low == 0 and high == pytest.approx(-math.log(0.025) / 2.0, rel=1e-12)
+
+
+@given(
+    law=st.sampled_from(["poisson", "binomial", "fisher"]),
+    x1=st.integers(0, 30), x0=st.integers(0, 30), size=st.floats(0.5, 40.0), tail=st.floats(0.005, 0.2),
+)
+def test_interval_inverts_the_one_sided_test(law: str, x1: int, x0: int, size: float, tail: float) -> None:
+    """The lower limit of the (1 - 2 tail) interval is above 1 exactly when the one-sided p-value is below tail."""
+    if law == "poisson":
+        c = ref(x1, size)
+    elif law == "binomial":
+        c = rate(x1, 1000.0 * size, x0, 1000.0)
+    else:
+        c = cc(x1 + 3 + int(size), x1, x0 + 5, x0)
+    p = evidence(c).p_upper
+    low, high = _law_interval(c, 1 - 2 * tail)
+    assert low <= high
+    if abs(p - tail) > 1e-9 * tail:
+        assert (p < tail) == (low > 1.0), (p, tail, low)
