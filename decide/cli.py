@@ -398,11 +398,11 @@ def interpret_command(
     result = run_api("interpret", lambda: _interpret(loaded.problem, counts, chosen, confidence))
     unit = loaded.currency or ""
     if as_json:
-        text = json.dumps(shown.interpretation_record(result, loaded.title, unit), indent=2) + "\n"
+        text = json_text(shown.interpretation_record(result, loaded.title, unit))
     elif as_markdown:
         text = shown.to_markdown(result, loaded.title, unit)
     else:
-        Console().print(shown.interpretation_table(result, loaded.title, unit))
+        render.make_console().print(shown.interpretation_table(result, loaded.title, unit))
         return
     run_api("interpret", lambda: _emit_text(text, output, force))
 

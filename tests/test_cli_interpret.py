@@ -200,3 +200,16 @@ def test_one_policy_still_gets_the_loss_optimal_reading() -> None:
     with pytest.raises(decide.DecideError, match="^observed: counts of the cohort-risk design, but the scenario"):
         decide.interpret(loaded.problem, read_counts(other, {"cases_exposed": 1, "n_exposed": 9,
                                                              "cases_unexposed": 2, "n_unexposed": 9}))
+
+
+def test_detectable_ratio_of_the_study_as_done_against_scipy() -> None:
+    """Reference rate, exact test: the critical count and the SIR with 80% power from scipy's Poisson law."""
+    from scipy import optimize, stats
+
+    loaded = load_scenario(REFERENCE)
+    r = decide.interpret(loaded.problem, {"cases": 0, "person_years": 71400.0})
+    e = 71400.0 * loaded.problem.study.baseline
+    # scipy 1.17: the smallest c with poisson.sf(c - 1, e) <= alpha, then poisson.sf(c - 1, sir * e) = 0.8
+    c = next(c for c in range(100) if stats.poisson.sf(c - 1, e) <= r.detect_alpha * (1 + 1e-10))
+    sir = optimize.brentq(lambda t: stats.poisson.sf(c - 1, t * e) - 0.8, 1.0, 100.0, xtol=1e-12)
+    assert r.detectable == pytest.approx(sir, rel=1e-6)

@@ -11,7 +11,8 @@ import math
 from typing import Any
 
 from ..decision.interpret import Interpretation
-from .text import CAUTION, fmt, json_safe
+from .numbers import count, for_json, money, number, probability
+from .text import CAUTION, literal, markdown_literal
 
 _ACTION = {"flag": "flag the exposure", "clear": "clear the exposure"}
 
@@ -22,7 +23,12 @@ def _a(name: str) -> str:
 
 
 def _limit(x: float) -> str:
-    return "no upper limit" if not math.isfinite(x) else fmt(x, 3)
+    return "no upper limit" if not math.isfinite(x) else number(x)
+
+
+def _observed(value: float) -> str:
+    """A count as a whole number; person-years and expected counts as quantities."""
+    return count(value) if isinstance(value, int) else number(value)
 
 
 def rules_out(r: Interpretation) -> str:
@@ -32,8 +38,8 @@ def rules_out(r: Interpretation) -> str:
     if not math.isfinite(r.excludes_above):
         return (f"The data set no upper limit on the {name} at {level} confidence: this study cannot "
                 f"exclude any {name}, however large.")
-    return (f"At {level} confidence the data are compatible with {name}s from {fmt(r.ci_low, 3)} to "
-            f"{fmt(r.ci_high, 3)}: this study cannot exclude {_a(name)} of {fmt(r.excludes_above, 3)}; "
+    return (f"At {level} confidence the data are compatible with {name}s from {number(r.ci_low)} to "
+            f"{number(r.ci_high)}: this study cannot exclude {_a(name)} of {number(r.excludes_above)}; "
             f"it rules out only {name}s above that.")
 
 
@@ -44,7 +50,7 @@ def power_note(r: Interpretation) -> str:
                  "in the design's range")
     else:
         could = (f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
-                 f"{fmt(r.detectable, 3)} or more (alpha {fmt(r.detect_alpha, 3)})")
+                 f"{number(r.detectable)} or more (alpha {probability(r.detect_alpha)})")
     if r.p_value > r.detect_alpha:
         return f"A result that is not significant is not evidence of safety: {could}."
     return f"For scale: {could}."
@@ -52,10 +58,10 @@ def power_note(r: Interpretation) -> str:
 
 def bayes_sentence(r: Interpretation, unit: str = "") -> str:
     """The posterior probability of harm and the action of least posterior expected loss."""
-    cost = f" {unit}" if unit else ""
-    return (f"Given the data, the probability of harm is {fmt(r.posterior_harm, 3)} ({fmt(r.prior_harm, 3)} "
-            f"before the study). Expected loss of flagging {fmt(r.loss_flag)}{cost}, of clearing "
-            f"{fmt(r.loss_clear)}{cost}: the loss-minimising action is to {_ACTION[r.recommendation]}."
+    return (f"Given the data, the probability of harm is {probability(r.posterior_harm)} "
+            f"({probability(r.prior_harm)} before the study). Expected loss of flagging "
+            f"{money(r.loss_flag, literal(unit))}, of clearing {money(r.loss_clear, literal(unit))}: "
+            f"the loss-minimising action is to {_ACTION[r.recommendation]}."
             + _disagreement(r))
 
 
@@ -70,9 +76,9 @@ def _disagreement(r: Interpretation) -> str:
 
 def estimate_sentence(r: Interpretation) -> str:
     """The estimate, its interval and the one-sided p-value."""
-    est = "not estimable (no case in the comparison group)" if r.estimate is None else fmt(r.estimate, 3)
-    return (f"{r.effect_name.capitalize()} {est}; {r.confidence:.0%} interval {fmt(r.ci_low, 3)} to "
-            f"{_limit(r.ci_high)}; exact one-sided p-value {fmt(r.p_value, 3)}.")
+    est = "not estimable (no case in the comparison group)" if r.estimate is None else number(r.estimate)
+    return (f"{r.effect_name.capitalize()} {est}; {r.confidence:.0%} interval {number(r.ci_low)} to "
+            f"{_limit(r.ci_high)}; exact one-sided p-value {probability(r.p_value)}.")
 
 
 def interpretation_record(r: Interpretation, title: str = "", unit: str = "") -> dict[str, Any]:
@@ -86,7 +92,7 @@ def interpretation_record(r: Interpretation, title: str = "", unit: str = "") ->
         "posterior": bayes_sentence(r, unit),
     }
     record["caution"] = CAUTION
-    return dict(json_safe(record))
+    return dict(for_json(record))
 
 
 def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
@@ -96,19 +102,20 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
     from rich.table import Table
     from rich.text import Text
 
-    t = Table(title=f"{title}\nObserved data", show_header=False)
+    money_unit = f" ({literal(unit)})" if unit else ""
+    t = Table(title=Text(f"{literal(title)}\nObserved data"), show_header=False)
     t.add_column("quantity", style="bold")
     t.add_column("value")
     for key, value in r.observed.items():
-        t.add_row(key.replace("_", " "), fmt(value))
-    t.add_row(r.effect_name, "not estimable" if r.estimate is None else fmt(r.estimate))
-    t.add_row(f"{r.confidence:.0%} interval (exact)", f"{fmt(r.ci_low)} to {_limit(r.ci_high)}")
-    t.add_row("exact p-value, one-sided (harm)", fmt(r.p_value))
-    t.add_row("posterior probability of harm", f"{fmt(r.posterior_harm)} (prior {fmt(r.prior_harm)})")
-    t.add_row("expected loss of flagging" + (f" ({unit})" if unit else ""), fmt(r.loss_flag))
-    t.add_row("expected loss of clearing" + (f" ({unit})" if unit else ""), fmt(r.loss_clear))
+        t.add_row(key.replace("_", " "), _observed(value))
+    t.add_row(r.effect_name, "not estimable" if r.estimate is None else number(r.estimate))
+    t.add_row(f"{r.confidence:.0%} interval (exact)", f"{number(r.ci_low)} to {_limit(r.ci_high)}")
+    t.add_row("exact p-value, one-sided (harm)", probability(r.p_value))
+    t.add_row("posterior probability of harm", f"{probability(r.posterior_harm)} (prior {probability(r.prior_harm)})")
+    t.add_row("expected loss of flagging" + money_unit, money(r.loss_flag))
+    t.add_row("expected loss of clearing" + money_unit, money(r.loss_clear))
     t.add_row("loss-minimising action", Text(r.recommendation, style="bold"))
-    t.add_row(f"ratio detectable with {r.detect_power:.0%} power", fmt(r.detectable))
+    t.add_row(f"ratio detectable with {r.detect_power:.0%} power", number(r.detectable))
     v = Table(title="Verdict of each policy's test on these data")
     for col in ("policy", "test", "alpha (nominal)", "attained alpha (planned size)", "verdict"):
         v.add_column(col)
@@ -116,7 +123,8 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
         verdict: str = pv.verdict or "no test"
         if not pv.available and pv.verdict is not None:
             verdict += " (policy unmet)"
-        v.add_row(pv.policy, pv.test or "-", fmt(pv.alpha), fmt(pv.attained_alpha), verdict)
+        v.add_row(Text(literal(pv.policy)), pv.test or "-", probability(pv.alpha), probability(pv.attained_alpha),
+                  verdict)
     notes = [Text(s) for s in (estimate_sentence(r), rules_out(r), power_note(r), bayes_sentence(r, unit))]
     notes.append(Text(f"Method: {r.method}. Verdicts apply each policy's test and nominal alpha to these "
                       "data; 'policy unmet' marks a policy whose study the limits did not allow.", style="dim"))
@@ -127,22 +135,23 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
 
 def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
     """The reading as Markdown a board can read, with the caution."""
-    lines = [f"# {title}: observed data", "", "| quantity | value |", "|---|---|"]
+    cur = f" {markdown_literal(unit)}" if unit else ""
+    lines = [f"# {markdown_literal(title)}: observed data", "", "| quantity | value |", "|---|---|"]
     for key, value in r.observed.items():
-        lines.append(f"| {key.replace('_', ' ')} | {fmt(value)} |")
+        lines.append(f"| {key.replace('_', ' ')} | {_observed(value)} |")
     lines += [
-        f"| {r.effect_name} | {'not estimable' if r.estimate is None else fmt(r.estimate)} |",
-        f"| {r.confidence:.0%} interval (exact) | {fmt(r.ci_low)} to {_limit(r.ci_high)} |",
-        f"| exact p-value, one-sided | {fmt(r.p_value)} |",
-        f"| posterior probability of harm | {fmt(r.posterior_harm)} |",
-        f"| expected loss of flagging | {fmt(r.loss_flag)} {unit} |".replace("  |", " |"),
-        f"| expected loss of clearing | {fmt(r.loss_clear)} {unit} |".replace("  |", " |"),
+        f"| {r.effect_name} | {'not estimable' if r.estimate is None else number(r.estimate)} |",
+        f"| {r.confidence:.0%} interval (exact) | {number(r.ci_low)} to {_limit(r.ci_high)} |",
+        f"| exact p-value, one-sided | {probability(r.p_value)} |",
+        f"| posterior probability of harm | {probability(r.posterior_harm)} |",
+        f"| expected loss of flagging | {money(r.loss_flag)}{cur} |",
+        f"| expected loss of clearing | {money(r.loss_clear)}{cur} |",
         f"| loss-minimising action | {r.recommendation} |",
         "", "| policy | test | alpha | attained alpha | verdict |", "|---|---|---|---|---|",
     ]
     for pv in r.verdicts:
-        lines.append(f"| {pv.policy} | {pv.test or '-'} | {fmt(pv.alpha)} | {fmt(pv.attained_alpha)} | "
-                     f"{pv.verdict or 'no test'} |")
+        lines.append(f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {probability(pv.alpha)} | "
+                     f"{probability(pv.attained_alpha)} | {pv.verdict or 'no test'} |")
     lines += ["", estimate_sentence(r), "", rules_out(r), "", power_note(r), "", bayes_sentence(r, unit), "",
               f"Method: {r.method}.", "", f"> {CAUTION}", ""]
     return "\n".join(lines)
