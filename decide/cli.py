@@ -459,7 +459,7 @@ def schema_command(
 ) -> None:
     """Print the JSON Schema of scenario (or policy, or observed-data) files."""
     if kind not in ("scenario", "policy", "observed"):
-        _fail(f"decide schema: KIND must be scenario, policy or observed, but got {kind!r}", 2)
+        _fail(f"decide schema: KIND must be observed, scenario or policy, but got {kind!r}", 2)
     if kind == "observed":
         from .scenario.observed_file import observed_json_schema
 
