@@ -199,3 +199,22 @@ def test_interval_inverts_the_one_sided_test(law: str, x1: int, x0: int, size: f
     assert low <= high
     if abs(p - tail) > 1e-9 * tail:
         assert (p < tail) == (low > 1.0), (p, tail, low)
+
+
+@pytest.mark.parametrize(("x1", "t1", "x0", "t0"), RATE_CASES)
+def test_mid_p_values_against_statsmodels_and_scipy(x1: int, t1: float, x0: int, t0: float) -> None:
+    with warnings.catch_warnings():  # statsmodels divides by a zero rate for its summary ratio only
+        warnings.simplefilter("ignore", RuntimeWarning)
+        # statsmodels 0.15: test_poisson_2indep(x1, t1, x0, t0, method="cond-midp", alternative="larger").pvalue
+        sm = sm_rates.test_poisson_2indep(x1, t1, x0, t0, method="cond-midp", alternative="larger").pvalue
+    assert evidence(rate(x1, t1, x0, t0)).p_mid == pytest.approx(sm, rel=1e-10)
+
+
+@pytest.mark.parametrize(("a", "n1", "b", "n0"), TABLES)
+def test_fisher_and_poisson_mid_p_values_against_scipy(a: int, n1: int, b: int, n0: int) -> None:
+    # scipy 1.17: hypergeom.sf(a, n1 + n0, n1, a + b) + hypergeom.pmf(a, n1 + n0, n1, a + b) / 2
+    want = stats.hypergeom.sf(a, n1 + n0, n1, a + b) + stats.hypergeom.pmf(a, n1 + n0, n1, a + b) / 2
+    assert evidence(risk(a, n1, b, n0)).p_mid == pytest.approx(want, rel=1e-9)
+    # scipy 1.17: poisson.sf(a, 3.5) + poisson.pmf(a, 3.5) / 2
+    want = stats.poisson.sf(a, 3.5) + stats.poisson.pmf(a, 3.5) / 2
+    assert evidence(ref(a, 3.5)).p_mid == pytest.approx(want, rel=1e-10)

@@ -7,8 +7,8 @@ observed counts of its design and returns an :class:`Interpretation`:
   conditional (Clopper-Pearson) for two person-time groups, exact Poisson
   (Garwood) for the reference-rate design, exact conditional (inverting
   Fisher's noncentral hypergeometric law) for two risk groups and for
-  case-control; no mid-p, so the interval inverts the very test the verdicts
-  use.  For the risk ratio of a cohort the odds-ratio interval is carried to
+  case-control.  The interval is not mid-p: it inverts the very test the
+  verdicts use; the one-sided mid-p-value is reported beside the exact one.  For the risk ratio of a cohort the odds-ratio interval is carried to
   the risk-ratio scale at the scenario's baseline risk;
 * the exact one-sided p-value (harm), and the normal statistic of the design;
 * the verdict (flag or clear) under each policy's test and threshold;
@@ -59,6 +59,7 @@ from .observed import (
     fisher_support,
     log_likelihood,
     lower_tail,
+    point_mass,
     reader_of,
     upper_tail,
 )
@@ -90,13 +91,16 @@ class Evidence:
     """What one set of counts says, test by test: the inputs a verdict needs.
 
     ``p_upper`` and ``p_lower`` are the exact one-sided p-values towards
-    harm and away from it; ``z`` is the design's normal statistic (``inf``
+    harm and away from it, ``p_mid`` the one-sided mid-p-value
+    ``P(X > x) + P(X = x) / 2`` (shown beside the exact one; verdicts use
+    the exact one, the test the policies were chosen for); ``z`` is the design's normal statistic (``inf``
     or ``-inf`` where an estimate is infinite or zero), ``z_cc`` the same
     with the continuity correction (two-proportion designs).
     """
 
     p_upper: float
     p_lower: float
+    p_mid: float
     z: float
     z_cc: float
 
@@ -125,16 +129,23 @@ class PolicyVerdict(PlainData):
 class Interpretation(PlainData):
     """A finished study read against a scenario.
 
-    Ratios are in the design's terms (``effect_name``).  ``estimate``,
-    ``ci_low`` and ``ci_high`` are ``None`` where they do not exist (no case
-    at all) and ``ci_high`` is ``inf`` where the data set no upper limit.
-    ``excludes_above`` is ``ci_high``: ratios above it are ruled out at the
-    interval's confidence.  ``posterior_harm`` is ``P(harm | data)``;
-    ``loss_flag`` and ``loss_clear`` the posterior expected losses, and
-    ``recommendation`` the action of the smaller (``clear`` on a tie).
-    ``detectable`` is the ratio the study had ``detect_power`` power to
-    detect at ``detect_alpha`` (the loss-optimal policy's alpha; 0.05 where
-    there is none), ``None`` if no ratio within the design's range.
+    Ratios are in the design's terms (``effect_name``); ``method`` names the
+    interval and test.  ``estimate`` is ``None`` where it is infinite or
+    undefined (no case in the comparison group).  ``ci_low`` and ``ci_high``
+    bound the exact two-sided interval at ``confidence``; ``ci_high`` is
+    ``inf`` where the data set no upper limit (no case in the comparison
+    group, or none at all).  ``excludes_above`` is ``ci_high``: ratios above
+    it are ruled out at that confidence.  ``p_value`` is the exact one-sided
+    p-value (harm), ``p_value_two_sided`` the central two-sided one,
+    ``p_value_mid`` the one-sided mid-p-value, ``statistic`` the design's
+    normal statistic.  ``verdicts`` hold each policy's verdict and
+    ``loss_optimal_verdict`` the loss-optimal policy's.  ``posterior_harm``
+    is ``P(harm | data)`` (``prior_harm`` before); ``loss_flag`` and
+    ``loss_clear`` are the posterior expected losses and ``recommendation``
+    the action of the smaller (``clear`` on a tie).  ``detectable`` is the
+    ratio the study as done had ``detect_power`` power to detect at
+    ``detect_alpha`` (the loss-optimal policy's alpha; 0.05 where it has
+    none), ``None`` if no ratio within the design's range.
     """
 
     design: str
@@ -147,6 +158,7 @@ class Interpretation(PlainData):
     ci_high: float
     p_value: float
     p_value_two_sided: float
+    p_value_mid: float
     statistic: float
     posterior_harm: float
     loss_flag: float
@@ -264,7 +276,9 @@ def _normal_statistics(c: Counts) -> tuple[float, float]:
 def evidence(c: Counts) -> Evidence:
     """Exact p-values and normal statistics of the counts (no effect as the null)."""
     z, z_cc = _normal_statistics(c)
-    return Evidence(p_upper=upper_tail(c, 1.0), p_lower=lower_tail(c, 1.0), z=z, z_cc=z_cc)
+    upper = upper_tail(c, 1.0)
+    return Evidence(p_upper=upper, p_lower=lower_tail(c, 1.0), p_mid=max(0.0, upper - point_mass(c, 1.0) / 2),
+                    z=z, z_cc=z_cc)
 
 
 def policy_verdict(d: Decision, ev: Evidence) -> Verdict | None:
@@ -473,6 +487,7 @@ def interpret(
         design=c.design, effect_name=problem.study.setting().design.effect_name, method=_METHODS[c.design],
         observed=dict(c.values), confidence=confidence, estimate=_estimate(c), ci_low=low,
         ci_high=high, p_value=ev.p_upper, p_value_two_sided=min(1.0, 2 * min(ev.p_upper, ev.p_lower)),
+        p_value_mid=ev.p_mid,
         statistic=ev.z, posterior_harm=post.p_harm, loss_flag=loss_flag, loss_clear=loss_clear,
         recommendation="flag" if loss_flag < loss_clear else "clear", verdicts=verdicts,
         loss_optimal_verdict=policy_verdict(best, ev),

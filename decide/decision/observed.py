@@ -283,3 +283,8 @@ def lower_tail(c: Counts, parameter: float) -> float:
     x = fisher_support(c)
     pmf = np.exp(fisher_log_pmf(c, np.asarray(np.log(parameter))))
     return float(min(1.0, pmf[x <= c.x1].sum()))
+
+
+def point_mass(c: Counts, parameter: float) -> float:
+    """``P(X = x1)`` under the law at ``parameter`` (for the mid-p-value)."""
+    return float(np.exp(log_likelihood(c, np.asarray(parameter))))

@@ -111,6 +111,7 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
     t.add_row(r.effect_name, "not estimable" if r.estimate is None else number(r.estimate))
     t.add_row(f"{r.confidence:.0%} interval (exact)", f"{number(r.ci_low)} to {_limit(r.ci_high)}")
     t.add_row("exact p-value, one-sided (harm)", probability(r.p_value))
+    t.add_row("mid-p-value, one-sided", probability(r.p_value_mid))
     t.add_row("posterior probability of harm", f"{probability(r.posterior_harm)} (prior {probability(r.prior_harm)})")
     t.add_row("expected loss of flagging" + money_unit, money(r.loss_flag))
     t.add_row("expected loss of clearing" + money_unit, money(r.loss_clear))
@@ -143,6 +144,7 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
         f"| {r.effect_name} | {'not estimable' if r.estimate is None else number(r.estimate)} |",
         f"| {r.confidence:.0%} interval (exact) | {number(r.ci_low)} to {_limit(r.ci_high)} |",
         f"| exact p-value, one-sided | {probability(r.p_value)} |",
+        f"| mid-p-value, one-sided | {probability(r.p_value_mid)} |",
         f"| posterior probability of harm | {probability(r.posterior_harm)} |",
         f"| expected loss of flagging | {money(r.loss_flag)}{cur} |",
         f"| expected loss of clearing | {money(r.loss_clear)}{cur} |",
