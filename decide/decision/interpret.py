@@ -8,10 +8,12 @@ observed counts of its design and returns an :class:`Interpretation`:
   (Garwood) for the reference-rate design, exact conditional (inverting
   Fisher's noncentral hypergeometric law) for two risk groups and for
   case-control.  The interval is not mid-p: it inverts the very test the
-  verdicts use; the one-sided mid-p-value is reported beside the exact one.  For the risk ratio of a cohort the odds-ratio interval is carried to
-  the risk-ratio scale at the scenario's baseline risk;
-* the exact one-sided p-value (harm), and the normal statistic of the design;
-* the verdict (flag or clear) under each policy's test and threshold;
+  verdicts use.  For the risk ratio of a cohort the odds-ratio interval is
+  carried to the risk-ratio scale at the scenario's baseline risk;
+* the exact one-sided p-value (harm), the mid-p-value beside it, and the
+  normal statistic of the design;
+* the verdict (flag or clear) under each policy's test and threshold
+  (:func:`policy_verdict`, the one place that applies a policy to data);
 * the posterior probability of harm given the data, under the scenario's
   prior on harm and on the effect (a lognormal effect truncated to ratios
   above 1 and renormalised), with the exact likelihood of
