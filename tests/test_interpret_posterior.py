@@ -32,7 +32,7 @@ FIXED = Consequences(false_alarm=4e6, per_subject=10.0, missed_hazard=3e7)
 DERIVED = Consequences(false_alarm=4e6, per_subject=10.0, exposed_population=5e4, background_rate=2e-4,
                        cost_per_case=2e5, horizon_years=10.0)
 
-CASES = {
+CASES: dict[str, tuple[Study, dict[str, float]]] = {
     "reference-rate": (Study("reference-rate", 3e-5, years=8.0), {"cases": 6, "expected": 2.5}),
     "cohort-rate": (Study("cohort-rate", 4e-4, allocation=2.0, years=6.0),
                     {"cases_exposed": 9, "person_years_exposed": 12000.0, "cases_unexposed": 7,
@@ -123,12 +123,13 @@ def test_posterior_matches_seeded_simulation(design: str) -> None:
     draws = 400_000
     harm = rng.random(draws) < problem.p_harm
     theta = _draw_effects(rng, harm, problem.effect)
+    x: np.ndarray
     if design == "reference-rate":
         x, want = rng.poisson(theta * obs["expected"]), obs["cases"]
     elif design == "cohort-rate":
         t1, t0 = obs["person_years_exposed"], obs["person_years_unexposed"]
-        total = int(obs["cases_exposed"] + obs["cases_unexposed"])
-        x, want = rng.binomial(total, theta * t1 / (theta * t1 + t0)), obs["cases_exposed"]
+        events = int(obs["cases_exposed"] + obs["cases_unexposed"])
+        x, want = rng.binomial(events, theta * t1 / (theta * t1 + t0)), obs["cases_exposed"]
     else:  # given the total exposed, Fisher's noncentral law at the odds ratio
         n1, n0 = int(obs["cases"]), int(obs["controls"])
         total = int(obs["exposed_cases"] + obs["exposed_controls"])
@@ -178,6 +179,7 @@ def test_bayes_action_is_the_loss_optimal_exact_test(
     # where no study is worth its cost the optimiser decides now instead (flagging now is the
     # "always flag" test, which the exact family of attainable levels below 1 does not hold)
     assume(d.action == "study" and d.test == "exact" and d.n_per_group is not None and d.alpha is not None)
+    assert d.n_per_group is not None and d.alpha is not None
     expected = baseline * d.n_per_group * years
     for x in range(0, int(expected * effect + 10 * math.sqrt(expected * effect) + 10)):
         c = read_counts(problem, {"cases": x, "expected": expected})

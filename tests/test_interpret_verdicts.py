@@ -17,7 +17,7 @@ from test_interpret_exact import cc, rate, ref, risk
 
 from decide.decision.interpret import Evidence, evidence, policy_verdict
 from decide.decision.observed import READERS
-from decide.decision.optimize import optimize
+from decide.decision.optimize import Decision, optimize
 from decide.scenario import load_scenario
 
 REPO_SCENARIO = Path(__file__).resolve().parents[1] / "scenarios" / "water-supply-reference.toml"
@@ -56,12 +56,12 @@ def test_no_spread_gives_statistic_zero_and_infinite_ratios_give_infinite_statis
     assert evidence(rate(0, 1e4, 4, 1e4)).z == -math.inf
 
 
-def _decision() -> object:
+def _decision() -> Decision:
     return optimize(load_scenario(REPO_SCENARIO).problem)
 
 
 def test_exact_verdict_flags_at_the_cut_off_and_not_above_it() -> None:
-    d = replace(_decision(), test="exact", alpha=0.05, sides=1)  # type: ignore[type-var]
+    d = replace(_decision(), test="exact", alpha=0.05, sides=1)
     at = Evidence(p_upper=0.05, p_lower=0.99, p_mid=0.03, z=0.0, z_cc=0.0)
     above = replace(at, p_upper=0.05 * (1 + 1e-6))
     assert policy_verdict(d, at) == "flag" and policy_verdict(d, above) == "clear"
@@ -73,7 +73,7 @@ def test_exact_verdict_flags_at_the_cut_off_and_not_above_it() -> None:
 
 
 def test_normal_verdict_compares_the_statistic_with_the_critical_value() -> None:
-    d = replace(_decision(), test="normal", alpha=0.05, sides=1)  # type: ignore[type-var]
+    d = replace(_decision(), test="normal", alpha=0.05, sides=1)
     z = float(-special.ndtri(0.05))  # 1.645, closed form
     ev = Evidence(p_upper=1.0, p_lower=1.0, p_mid=1.0, z=z + 1e-9, z_cc=z - 1e-9)
     assert policy_verdict(d, ev) == "flag"
