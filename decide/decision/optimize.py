@@ -32,6 +32,7 @@ import numpy as np
 
 from .._results import PlainData
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..engine.rule import DecisionRule, decision_rule
 from ..engine.selection import smallest_count
 from .choice import choose_tests
 from .implied import detectable_effect, implied_ratio_exact, implied_ratio_normal
@@ -60,7 +61,11 @@ class Decision(PlainData):
     false-alarm cost at which the chosen alpha would be loss-optimal for the
     chosen size; for an exact test that is a range, ``implied_cost_ratio_range``
     (low, high), and ``implied_cost_ratio`` its geometric middle.
-    ``regret`` is set by :func:`compare`.
+    ``regret`` is set by :func:`compare`.  ``rule`` states the chosen test in
+    counts (:class:`~decide.engine.rule.DecisionRule`); for a normal test
+    ``attained_alpha`` is the normal approximation's level, which the loss
+    uses, and ``rule.false_alarm`` its real false-alarm probability under the
+    exact law of the counts.
     """
 
     policy: str
@@ -95,6 +100,7 @@ class Decision(PlainData):
     implied_cost_ratio_range: tuple[float, float] | None = None
     regret: float | None = None
     warnings: tuple[str, ...] = field(default=())
+    rule: DecisionRule | None = None
 
 
 def _approximation_notes(model: LossModel, n: float, exact: bool) -> list[str]:
@@ -188,9 +194,10 @@ def _study_facts(model: LossModel, policy: Policy, n: float, start: Decision) ->
         p_harm_given_negative=p.p_harm * beta / neg if neg > 0 else None,
         p_harm_given_positive=p.p_harm * accurate.power / pos if pos > 0 else None,
         detectable_effect=detectable_effect(model, c.nominal, n, exact),
-        warnings=tuple(_approximation_notes(model, n, exact)),
+        warnings=(*model.notes, *_approximation_notes(model, n, exact)),
         implied_cost_ratio=ratio,
         implied_cost_ratio_range=ratio_range,
+        rule=decision_rule(model.setting, n, c.nominal, exact=exact, effect=float(model.effects[-1])),
     )
 
 

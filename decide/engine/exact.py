@@ -30,7 +30,7 @@ References
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -62,12 +62,16 @@ class CountGrid:
     alt_exposed : (B, Q, W1) the same under each of ``Q`` effects
     other : (B, W0) probabilities of the comparison count (both hypotheses)
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
+    exposed_counts : (B, W1) the exposed counts of the rows (padding continues past the window)
+    other_counts : (B, W0) the comparison counts of its columns (0 for one group)
     """
 
     null_exposed: FloatArray
     alt_exposed: FloatArray
     other: FloatArray
     p_value: FloatArray
+    exposed_counts: FloatArray
+    other_counts: FloatArray
 
 
 def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
@@ -78,6 +82,23 @@ def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
         lo = stats.poisson.ppf(TAIL, m.parameter)
         hi = stats.poisson.isf(TAIL, m.parameter)
     return np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
+
+
+def _alt_window(m: Marginal) -> tuple[FloatArray, FloatArray]:
+    """The union of the windows along a trailing axis of effects: (B,) each.
+
+    Binomial counts of fixed trials and Poisson counts are stochastically
+    increasing in their parameter, so each tail quantile is too: the union
+    runs from the low end at the smallest parameter to the high end at the
+    largest, and only those two are computed.
+    """
+    if m.parameter.ndim < 2:
+        return _window(m)
+    rows = np.arange(m.parameter.shape[0])
+    trials = np.broadcast_to(m.trials, m.parameter.shape)
+    ends = np.stack([np.argmin(m.parameter, axis=-1), np.argmax(m.parameter, axis=-1)], axis=1)
+    lo, hi = _window(Marginal(m.family, trials[rows[:, None], ends], m.parameter[rows[:, None], ends]))
+    return lo[:, 0], hi[:, 1]
 
 
 def _pmf(family: str, trials: FloatArray, parameter: FloatArray, x: FloatArray) -> FloatArray:
@@ -101,28 +122,19 @@ def _poisson_p(x1: FloatArray, mean: FloatArray, sides: int) -> FloatArray:
     return np.asarray(np.minimum(1.0, 2 * np.minimum(upper, lower))[:, :, None])
 
 
-def _row_tails(
-    x1: FloatArray,
-    x0: FloatArray,
-    hi1: FloatArray,
-    hi0: FloatArray,
-    law: Callable[[FloatArray], _RowLaw],
-    sides: int,
-) -> FloatArray:
-    """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
+def _row_span(
+    t: FloatArray, tvalid: NDArray[np.bool_], law: Callable[[FloatArray], _RowLaw]
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """Null law of ``x1`` given each total ``t`` (B, T), over the span of its mass.
 
-    Each row holds the null distribution of ``x1`` given ``t`` over the span
-    of its mass: 11 standard deviations and 11 counts either side of the mean,
-    where the tails beyond hold less than about 1e-20.  The row is built from
-    the exact ratio of successive probabilities and normalised over that
-    span, which avoids the cancellation of log-factorials of large groups.
-    Grid points below the span get upper p-value 1 (lower 0), points above it
-    upper p-value 0 (lower 1): p-values under about 1e-20 are reported as 0.
+    Each row spans 11 standard deviations and 11 counts either side of the
+    mean, where the tails beyond hold less than about 1e-20.  The row is
+    built from the exact ratio of successive probabilities and normalised
+    over that span, which avoids the cancellation of log-factorials of large
+    groups.  Returns the first and last count of each row (B, T), the counts
+    (B, T, W) and their probabilities (zero on padding).
     """
     reach = 11.0
-    lo1 = x1[:, 0]
-    tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
-    t, tvalid = _axis(tmin, tmax)  # (B, T)
     rows = law(t)
     lo = np.maximum(rows.support_lo, np.floor(rows.mean - reach * rows.sd - reach))
     hi = np.minimum(rows.support_hi, np.ceil(rows.mean + reach * rows.sd + reach))
@@ -136,6 +148,28 @@ def _row_tails(
     logf = np.where(x <= hi[:, :, None], logf, -np.inf)
     f = np.exp(logf - logf.max(axis=2, keepdims=True))
     f /= f.sum(axis=2, keepdims=True)
+    return lo, hi, x, f
+
+
+def _row_tails(
+    x1: FloatArray,
+    x0: FloatArray,
+    hi1: FloatArray,
+    hi0: FloatArray,
+    law: Callable[[FloatArray], _RowLaw],
+    sides: int,
+) -> FloatArray:
+    """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
+
+    The rows come from :func:`_row_span`.  Grid points below the span get
+    upper p-value 1 (lower 0), points above it upper p-value 0 (lower 1):
+    p-values under about 1e-20 are reported as 0.
+    """
+    lo1 = x1[:, 0]
+    tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
+    t, tvalid = _axis(tmin, tmax)  # (B, T)
+    lo, hi, x, f = _row_span(t, tvalid, law)
+    width = x.shape[2]
     b = np.arange(x1.shape[0])[:, None, None]
     row = np.clip((x1[:, :, None] + x0[:, None, :] - tmin[:, None, None]).astype(np.int64), 0, t.shape[1] - 1)
     offset = x1[:, :, None] - lo[b, row]
@@ -207,9 +241,9 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     every effect.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
-    hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    lo1 = np.minimum(lo_null, lo_alt)
+    hi1 = np.maximum(hi_null, hi_alt)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -231,14 +265,55 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     if model.conditional == "poisson":
         assert model.reference_mean is not None
         p = _poisson_p(x1, model.reference_mean, sides)
-    elif model.conditional == "binomial":
-        assert model.share_exposed is not None
-        p = _row_tails(x1, x0, hi1, hi0, _binomial(model.share_exposed), sides)
     else:
-        assert model.n_exposed is not None and model.n_other is not None
-        p = _row_tails(x1, x0, hi1, hi0, _hypergeometric(model.n_exposed, model.n_other), sides)
+        p = _row_tails(x1, x0, hi1, hi0, _conditional_law(model), sides)
     p = np.where(valid1[:, :, None] & valid0[:, None, :], p, np.inf)
-    return CountGrid(null_exposed, alt_exposed, other, p)
+    return CountGrid(null_exposed, alt_exposed, other, p, x1, x0)
+
+
+def _conditional_law(model: CountModel) -> Callable[[FloatArray], _RowLaw]:
+    if model.conditional == "binomial":
+        assert model.share_exposed is not None
+        return _binomial(model.share_exposed)
+    assert model.n_exposed is not None and model.n_other is not None
+    return _hypergeometric(model.n_exposed, model.n_other)
+
+
+def poisson_p_values(counts: FloatArray, mean: FloatArray, sides: int) -> FloatArray:
+    """Exact p-values (B, W) of exposed ``counts`` (B, W) against Poisson means (B,)."""
+    return np.asarray(_poisson_p(counts, mean, sides)[:, :, 0])
+
+
+@dataclass(frozen=True)
+class ConditionalRows:
+    """The null law of the exposed count given each total, for a batch of studies.
+
+    ``counts`` (B, T, W) runs over each row's span (see :func:`_row_span`),
+    ``upper`` and ``lower`` are ``P(x1 >= count | total)`` and
+    ``P(x1 <= count | total)``; ``first`` and ``last`` (B, T) bound the span
+    and ``least`` and ``most`` the counts possible at all given the total.
+    Counts above the span have upper tail below about 1e-20 (taken as 0),
+    counts below it lower tail below that.
+    """
+
+    counts: FloatArray
+    upper: FloatArray
+    lower: FloatArray
+    first: FloatArray
+    last: FloatArray
+    least: FloatArray
+    most: FloatArray
+
+
+def conditional_rows(model: CountModel, totals: FloatArray) -> ConditionalRows:
+    """Conditional tails of the exposed count given ``totals`` (B, T), for the two-group tests."""
+    law = _conditional_law(model)
+    lo, hi, x, f = _row_span(totals, np.ones(totals.shape, dtype=bool), law)
+    support = law(totals)
+    inside = x <= hi[:, :, None]
+    upper = np.where(inside, np.cumsum(f[:, :, ::-1], axis=2)[:, :, ::-1], 0.0)
+    lower = np.where(inside, np.cumsum(f, axis=2), 1.0)
+    return ConditionalRows(x, upper, lower, lo, hi, support.support_lo, support.support_hi)
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
@@ -318,8 +393,8 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     (about as many again) and the working copies made along the way.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
@@ -349,3 +424,91 @@ def chunks(rows: int, cells_per_row: int) -> Iterator[slice]:
     step = max(1, CELL_BUDGET // max(1, cells_per_row))
     for start in range(0, rows, step):
         yield slice(start, min(rows, start + step))
+
+
+def _lowest_per_group(group: IntArray, key: FloatArray, groups: int) -> IntArray:
+    """Index of the member with the smallest ``key`` in each of ``groups`` groups."""
+    order = np.lexsort((key, group))
+    return np.asarray(order[np.searchsorted(group[order], np.arange(groups))], dtype=np.int64)
+
+
+def study_models(members: CountModel, study: IntArray, studies: int) -> CountModel:
+    """One model per study, its effect axis spanning the exposed windows of its members.
+
+    ``members`` holds one row per requested (study, effect) with an effect
+    axis of one; ``study`` numbers each row's study (size, baseline,
+    allocation, years) from 0 to ``studies - 1``.  The model returned holds,
+    per study, the member whose exposed window starts lowest and the member
+    whose window ends highest, so that :func:`build_grid` lays out one window
+    covering every member's.  The rejection region and the comparison count do
+    not depend on the effect, so that one grid serves every member.
+    """
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    lo, hi = _window(alt)
+    ends = np.stack(
+        [_lowest_per_group(study, lo.reshape(-1), studies), _lowest_per_group(study, -hi.reshape(-1), studies)],
+        axis=1,
+    )
+    spans = Marginal(alt.family, np.asarray(trials[ends]), np.asarray(alt.parameter.reshape(-1)[ends]))
+    return replace(take_rows(members, ends[:, 0]), exposed_alt=spans)
+
+
+def _caught(grid: CountGrid, rows: IntArray, alpha: FloatArray) -> FloatArray:
+    """Per exposed count, the comparison-count mass the level-``alpha`` test rejects: (P, W1)."""
+    out = np.empty((rows.size, grid.p_value.shape[1]))
+    for part in chunks(rows.size, grid.p_value.shape[1] * grid.p_value.shape[2]):
+        r = rows[part]
+        reject = grid.p_value[r] <= (alpha[part] * (1 + REL_TOL))[:, None, None]
+        out[part] = np.einsum("pij,pj->pi", reject, grid.other[r])
+    return out
+
+
+def _grouped(label: IntArray, groups: int) -> tuple[IntArray, IntArray]:
+    """Members sorted by ``label`` and where each label's run starts (``groups + 1`` bounds)."""
+    order = np.argsort(label, kind="stable")
+    return order, np.searchsorted(label[order], np.arange(groups + 1))
+
+
+def shared_power(
+    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
+) -> tuple[FloatArray, FloatArray]:
+    """Power and attained size of exact tests, one grid per study shared by its effects and alphas.
+
+    For each distinct (study, alpha) the mass the test rejects is summed over
+    the comparison count once, ``caught(x1) = sum_x0 [p(x1, x0) <= alpha]
+    P(x0)``; the power at each effect is then ``sum_x1 P_effect(x1)
+    caught(x1)`` and the attained size the same sum under no effect.
+    """
+    studies = int(study.max()) + 1
+    model = study_models(members, study, studies)
+    pairs, pair_of = np.unique(np.stack([study.astype(np.float64), alpha]), axis=1, return_inverse=True)
+    pair_of = pair_of.reshape(-1)
+    pair_study = pairs[0].astype(np.int64)
+    groups = list(batches(model))
+    label = np.empty(studies, dtype=np.int64)
+    local = np.empty(studies, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        label[idx], local[idx] = g, np.arange(idx.size)
+    pair_order, pair_bounds = _grouped(label[pair_study], len(groups))
+    member_order, member_bounds = _grouped(label[study], len(groups))
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    parameter = alt.parameter.reshape(-1)
+    out_power, out_size = np.empty(study.size), np.empty(study.size)
+    position = np.empty(pair_study.size, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        grid = build_grid(take_rows(model, idx), sides)
+        these = pair_order[pair_bounds[g] : pair_bounds[g + 1]]
+        position[these] = np.arange(these.size)
+        caught = _caught(grid, local[pair_study[these]], pairs[1][these])
+        size = np.einsum("pi,pi->p", grid.null_exposed[local[pair_study[these]]], caught)
+        mine = member_order[member_bounds[g] : member_bounds[g + 1]]
+        for part in chunks(mine.size, grid.p_value.shape[1]):
+            els = mine[part]
+            x1 = grid.exposed_counts[local[study[els]]]
+            pmf = _pmf(alt.family, trials[els][:, None], parameter[els][:, None], x1)
+            at = position[pair_of[els]]
+            out_power[els] = np.einsum("mi,mi->m", pmf, caught[at])
+            out_size[els] = size[at]
+    return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)
