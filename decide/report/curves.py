@@ -75,7 +75,7 @@ def effect_axis(problem: Problem, decisions: Sequence[Decision]) -> FloatArray:
     top = e.quantile(0.995) if not e.is_point else e.median
     found = [d.detectable_effect for d in decisions if d.detectable_effect is not None]
     top = max([top * 1.3, 1.5, *[1.2 * x for x in found if np.isfinite(x)]])
-    limit = float(problem.study.setting().design.effect_limit(problem.study.baseline))
+    limit = float(problem.study.setting().design.effect_limit(np.asarray(problem.study.baseline, dtype=np.float64)))
     top = min(top, limit * 0.999)
     return np.linspace(1.0, top, CURVE_POINTS)
 

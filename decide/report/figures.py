@@ -64,10 +64,11 @@ def _svg(fig: Any, alt: str) -> str:
 
 def _setup() -> Any:
     import matplotlib
+    from cycler import cycler
 
     matplotlib.use("svg")
     matplotlib.rcParams.update({"svg.hashsalt": "decide", "svg.fonttype": "path", "font.size": 9,
-                                "axes.prop_cycle": matplotlib.cycler(color=PALETTE[1:] + PALETTE[:1])})
+                                "axes.prop_cycle": cycler(color=PALETTE[1:] + PALETTE[:1])})
     import matplotlib.pyplot as plt
 
     return plt

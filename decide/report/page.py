@@ -122,7 +122,7 @@ def chosen(r: ReportResults) -> dict[str, Any]:
         "n_per_group": num("decision.n_per_group", d.n_per_group, "count"),
         "n_total": num("decision.n_total", d.n_total, "count"),
         "size_name": get_design(d.design).size_name,
-        "rule": None if rule is None else str(getattr(rule, "statement", "") or rule),
+        "rule": rule_rows(rule),
         "expected_loss": num("decision.expected_loss", d.expected_loss, "money", cur),
         "missed": num("decision.loss_parts.missed", parts.get("missed"), "money", cur),
         "false_alarm": num("decision.loss_parts.false_alarm", parts.get("false_alarm"), "money", cur),
@@ -133,6 +133,30 @@ def chosen(r: ReportResults) -> dict[str, Any]:
         "net_benefit": num("decision.net_benefit", d.net_benefit, "money", cur),
         "stated_cost_ratio": num("decision.stated_cost_ratio", d.stated_cost_ratio, "number"),
         "warnings": list(d.warnings),
+    }
+
+
+#: Most rows of the rule's threshold table in a report; longer tables show evenly spaced rows.
+RULE_ROWS = 24
+
+
+def rule_rows(rule: Any) -> dict[str, Any] | None:
+    """The decision rule in counts: its sentence, its thresholds by total, and what the table covers."""
+    if rule is None:
+        return None
+    from .rule_words import _coverage, runs, threshold_text, totals_text
+
+    groups = runs(rule)
+    shown = groups
+    if len(groups) > RULE_ROWS:
+        picks = sorted({round(i * (len(groups) - 1) / (RULE_ROWS - 1)) for i in range(RULE_ROWS)})
+        shown = [groups[i] for i in picks]
+    single = None  # one group: the sentence already names the threshold
+    return {
+        "statement": rule.statement, "total_name": rule.total_name or "", "count_name": rule.count_name,
+        "rows": [(totals_text(a, b), threshold_text(up, down)) for a, b, up, down in shown],
+        "thinned": len(shown) < len(groups), "all_rows": len(groups), "single": single,
+        "coverage": _coverage(rule) if groups else "", "cutoff": rule.cutoff_shown,
     }
 
 

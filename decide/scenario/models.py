@@ -509,7 +509,7 @@ class ScenarioModel(BaseModel):
 
     @model_validator(mode="after")
     def _sources_name_inputs(self) -> ScenarioModel:
-        tables = {"study": StudyModel, "effect": EffectModel, "prior": PriorModel,
+        tables: dict[str, type[BaseModel]] = {"study": StudyModel, "effect": EffectModel, "prior": PriorModel,
                   "consequences": ConsequencesModel, "constraints": ConstraintsModel}
         bad = unknown_source_key(self.sources, input_key_paths(tables))
         if bad is not None:

@@ -13,6 +13,7 @@ that names no input of the scenario format is an error naming it.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from pydantic import BaseModel
@@ -24,7 +25,7 @@ NO_SOURCE = "no source given"
 INPUT_TABLES = ("study", "effect", "prior", "consequences", "constraints")
 
 
-def input_key_paths(tables: dict[str, type[BaseModel]]) -> tuple[str, ...]:
+def input_key_paths(tables: Mapping[str, type[BaseModel]]) -> tuple[str, ...]:
     """Every input key path of the scenario format (``prior.p_harm``, ...), in file order."""
     return tuple(f"{t}.{k}" for t in INPUT_TABLES for k in tables[t].model_fields)
 
