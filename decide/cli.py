@@ -530,16 +530,6 @@ def _seed(seed: int | None) -> int:
     return int(np.random.SeedSequence().entropy) % 2**63  # type: ignore[arg-type]
 
 
-def _chosen_policies(command: str, policy: list[str] | None, policy_dir: list[Path] | None) -> list[Any]:
-    known = run_api(command, lambda: load_policies(policy_dir or ()))
-    if not policy:
-        return list(known.values())
-    unknown = [p for p in policy if p not in known]
-    if unknown:
-        _fail(f"decide {command}: --policy must be one of {', '.join(known)}, but got {unknown[0]!r}", 2)
-    return [known[p] for p in dict.fromkeys(policy)]
-
-
 @app.command("sweep")
 def sweep_command(
     scenario: ScenarioPath,
