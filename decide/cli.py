@@ -555,10 +555,9 @@ def _progress(show: bool, what: str) -> Iterator[Callable[[int, int], None] | No
     if not show or not sys.stderr.isatty():
         yield None
         return
-    from rich.console import Console
     from rich.progress import Progress
 
-    with Progress(console=Console(stderr=True), transient=True) as bar:
+    with Progress(console=render.make_console(stderr=True), transient=True) as bar:
         task = bar.add_task(what, total=None)
 
         def update(done: int, total: int) -> None:

@@ -13,7 +13,7 @@ import json
 from pathlib import Path
 
 import pytest
-from typer.testing import CliRunner
+from typer.testing import CliRunner, Result
 
 from decide import optimize
 from decide.decision.inputs import with_value
@@ -26,7 +26,7 @@ SOLVENT = str(REPO / "scenarios" / "solvent-cohort.toml")
 ENV = {"COLUMNS": "100"}
 
 
-def run(*args: str):
+def run(*args: str) -> Result:
     from decide.cli import app
 
     return CliRunner().invoke(app, list(args), env=ENV)

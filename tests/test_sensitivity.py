@@ -20,14 +20,14 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from decide import DecideError, decide_policy, optimize
+from decide import DecideError, Decision, decide_policy, optimize
 from decide.decision.actions import recommended_action
 from decide.decision.batch import batch_optimum
 from decide.decision.inputs import checked_range, default_range, input_names, value_of, with_value
 from decide.decision.loss import build_model
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
-from decide.decision.sensitivity import is_benchmark, least_loss, tornado, two_way
+from decide.decision.sensitivity import Tornado, is_benchmark, least_loss, tornado, two_way
 from decide.scenario import load_policies, load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -35,12 +35,17 @@ MILL = load_scenario(REPO / "scenarios" / "mill-dust-uncertain.toml").problem
 POLICIES = load_policies()
 
 
+def _loss(d: Decision) -> float:
+    assert d.expected_loss is not None
+    return d.expected_loss
+
+
 def _rel(a: float, b: float) -> float:
     return abs(a - b) / max(abs(a), abs(b), 1e-300)
 
 
 @pytest.fixture(scope="module")
-def mill_tornado():
+def mill_tornado() -> Tornado:
     """p_harm and the false-alarm cost over ranges that cross changes of action and of standard."""
     pols = [POLICIES[k] for k in ("conventional-science", "optimal-alpha-fixed-size", "more-likely-than-not",
                                    "loss-optimal")]
@@ -51,19 +56,20 @@ def mill_tornado():
     return tornado(MILL, pols, ranges, names=tuple(ranges))
 
 
-def test_tornado_finds_action_changes(mill_tornado) -> None:
+def test_tornado_finds_action_changes(mill_tornado: Tornado) -> None:
     kinds = {(t.input, t.kind) for r in mill_tornado.rows for t in r.thresholds}
     assert ("prior.p_harm", "action") in kinds and ("consequences.false_alarm", "action") in kinds
     assert [r.swing for r in mill_tornado.rows] == sorted((r.swing for r in mill_tornado.rows), reverse=True)
 
 
-def test_action_thresholds_balance_the_losses_recomputed_by_optimize(mill_tornado) -> None:
+def test_action_thresholds_balance_the_losses_recomputed_by_optimize(mill_tornado: Tornado) -> None:
     found = [t for r in mill_tornado.rows for t in r.thresholds if t.kind == "action"]
     assert found
     for t in found:
         assert t.value is not None
         d = optimize(with_value(MILL, t.input, t.value))
         flag, clear = d.no_study["flag_now"], d.no_study["clear_now"]
+        assert d.expected_loss is not None
         pair = (d.expected_loss, min(flag, clear)) if "study" in (t.below, t.above) else (flag, clear)
         assert _rel(*pair) < 1e-6, (t, pair)
         below = recommended_action(optimize(with_value(MILL, t.input, t.value * (1 - 1e-5))))
@@ -71,28 +77,28 @@ def test_action_thresholds_balance_the_losses_recomputed_by_optimize(mill_tornad
         assert (below, above) == (t.below, t.above)
 
 
-def test_policy_thresholds_balance_the_losses_recomputed_by_decide_policy(mill_tornado) -> None:
+def test_policy_thresholds_balance_the_losses_recomputed_by_decide_policy(mill_tornado: Tornado) -> None:
     found = [t for r in mill_tornado.rows for t in r.thresholds if t.kind == "policy" and t.value is not None]
     assert found
     for t in found:
         assert t.value is not None
-        losses = {}
+        losses: dict[str, dict[str, float]] = {}
         for side, x in (("at", t.value), ("below", t.value * (1 - 1e-5)), ("above", t.value * (1 + 1e-5))):
             prob = with_value(MILL, t.input, x)
-            losses[side] = {k: decide_policy(prob, POLICIES[k]).expected_loss for k in (t.below, t.above)}
+            losses[side] = {k: _loss(decide_policy(prob, POLICIES[k])) for k in (t.below, t.above)}
         assert _rel(losses["at"][t.below], losses["at"][t.above]) < 1e-6
         assert losses["below"][t.below] < losses["below"][t.above]
         assert losses["above"][t.above] < losses["above"][t.below]
 
 
-def test_no_change_is_reported_as_none(mill_tornado) -> None:
+def test_no_change_is_reported_as_none(mill_tornado: Tornado) -> None:
     narrow = tornado(MILL, (), {"study.baseline": checked_range(MILL, "study.baseline", 1.1e-3, 1.3e-3)},
                      names=("study.baseline",))
     assert narrow.rows[0].thresholds == ()
     assert narrow.rows[0].low.action == narrow.rows[0].high.action == "study"
 
 
-def test_end_points_match_optimize(mill_tornado) -> None:
+def test_end_points_match_optimize(mill_tornado: Tornado) -> None:
     for r in mill_tornado.rows:
         for e in (r.low, r.high):
             d = optimize(with_value(MILL, r.input, e.value))

@@ -9,6 +9,7 @@ sec. 2.3.3; from memory).
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
 
@@ -19,7 +20,14 @@ from scipy import stats
 from decide import DecideError, decide_policy, optimize
 from decide.decision.policies import Policy
 from decide.decision.problem import Constraints
-from decide.decision.uncertainty import BetaInput, LognormalInput, draw_inputs, probabilistic
+from decide.decision.uncertainty import (
+    BetaInput,
+    Distribution,
+    LognormalInput,
+    Probabilistic,
+    draw_inputs,
+    probabilistic,
+)
 from decide.scenario import ScenarioError, load_policies, load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -66,7 +74,7 @@ def test_beta_draws_match_scipy_quantiles() -> None:
 
 def test_degenerate_distributions_give_the_deterministic_optimum() -> None:
     c = MILL.consequences
-    inputs = {"prior.p_harm": BetaInput.from_mean_sd(MILL.p_harm, 0.0),
+    inputs: dict[str, Distribution] = {"prior.p_harm": BetaInput.from_mean_sd(MILL.p_harm, 0.0),
               "consequences.false_alarm": LognormalInput.from_interval(c.false_alarm, c.false_alarm, 0.9, "f")}
     r = probabilistic(MILL, inputs, 50, seed=3, policies=POLICIES)
     d = optimize(MILL)
@@ -83,12 +91,12 @@ def test_degenerate_distributions_give_the_deterministic_optimum() -> None:
 
 
 @pytest.fixture(scope="module")
-def draws_result():
+def draws_result() -> Probabilistic:
     assert LOADED.model.uncertainty is not None
     return probabilistic(MILL, LOADED.model.uncertainty.to_inputs(), 400, seed=2026, policies=POLICIES)
 
 
-def test_same_seed_same_numbers(draws_result) -> None:
+def test_same_seed_same_numbers(draws_result: Probabilistic) -> None:
     assert LOADED.model.uncertainty is not None
     again = probabilistic(MILL, LOADED.model.uncertainty.to_inputs(), 400, seed=2026, policies=POLICIES)
     assert again.to_dict() == draws_result.to_dict()
@@ -96,7 +104,7 @@ def test_same_seed_same_numbers(draws_result) -> None:
     assert other.evpi != draws_result.evpi
 
 
-def test_evpi_and_regret_are_ordered(draws_result) -> None:
+def test_evpi_and_regret_are_ordered(draws_result: Probabilistic) -> None:
     r = draws_result
     assert r.evpi >= 0
     # committing to the central optimum can do no better than the averaged-loss design
@@ -106,7 +114,7 @@ def test_evpi_and_regret_are_ordered(draws_result) -> None:
     assert max(r.policy_least_loss_probability.values()) > 0
 
 
-def test_averaged_loss_of_a_fixed_design_matches_decide_policy_draw_by_draw(draws_result) -> None:
+def test_averaged_loss_of_a_fixed_design_matches_decide_policy_draw_by_draw(draws_result: Probabilistic) -> None:
     """The central optimum's average loss, recomputed draw by draw with a fixed-alpha, fixed-size policy."""
     r = draws_result
     assert LOADED.model.uncertainty is not None
@@ -146,7 +154,7 @@ def test_averaged_loss_of_a_fixed_design_matches_decide_policy_draw_by_draw(draw
         (lambda: LognormalInput.from_interval(1.0, 2.0, 1.0, "consequences.false_alarm"), "level must be"),
     ],
 )
-def test_impossible_parameters_raise(make, match: str) -> None:
+def test_impossible_parameters_raise(make: Callable[[], object], match: str) -> None:
     with pytest.raises(DecideError, match=match):
         make()
 

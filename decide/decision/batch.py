@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from ..designs._base import FloatArray
+from ..designs._base import FloatArray, NormalMoments
 from ..engine import normal as _normal
 from .loss import MISSED, Z_RANGE, LossModel, bisect_decreasing, normal_at
 
@@ -109,9 +109,31 @@ def _z_bounds(model: LossModel, n: FloatArray) -> tuple[FloatArray, FloatArray]:
     return lo, hi
 
 
+def _moments(model: LossModel) -> tuple[NormalMoments, NormalMoments]:
+    """Moments of the statistic under the model's effects and under no effect (computed once per model)."""
+    key = id(model)
+    if _MOMENTS.get(key, (None,))[0] is not model:
+        s = model.setting
+        d = s.design
+        _MOMENTS.clear()
+        _MOMENTS[key] = (model,
+                         d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity),
+                         d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity))
+    _, m, m0 = _MOMENTS[key]
+    return m, m0
+
+
+_MOMENTS: dict[int, tuple[LossModel, NormalMoments, NormalMoments]] = {}
+
+
 def _error_loss(model: LossModel, a_miss: FloatArray, a_fa: FloatArray, n: FloatArray, z: FloatArray) -> FloatArray:
-    c = normal_at(model, n, z)
-    return np.asarray(a_miss * c.missed + a_fa * c.attained)
+    """``a_miss * E[M (1 - P)] + a_fa * attained`` of the normal test (as :func:`normal_at`, moments reused)."""
+    m, m0 = _moments(model)
+    sides = model.setting.sides
+    nn, zz = np.broadcast_arrays(np.asarray(n, dtype=np.float64), np.asarray(z, dtype=np.float64))
+    miss = _normal.miss_at_z(m, nn[..., None], zz[..., None], sides) @ model.weights[MISSED]
+    attained = _normal.power_at_z(m0, nn[..., None], zz[..., None], sides)[..., 0]
+    return np.asarray(a_miss * miss + a_fa * attained)
 
 
 def _best_z(

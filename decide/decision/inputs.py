@@ -88,7 +88,9 @@ def expected_missed_cost(problem: Problem) -> float:
     A given missed-hazard cost is constant.  A derived one is ``k * (effect - 1)``
     above 1, whose mean under a lognormal prior with log-median ``mu`` and
     log-scale ``s`` is ``k * (exp(mu + s**2/2) Phi(mu/s + s) - Phi(mu/s))``
-    (the expectation of a call payoff with strike 1; Black and Scholes 1973).
+    (the expectation of a call payoff with strike 1; Black and Scholes 1973),
+    divided by the prior's mass above 1 (the effect under harm is the prior
+    truncated at 1).
     """
     c = problem.consequences
     if c.missed_hazard is not None:
@@ -100,7 +102,8 @@ def expected_missed_cost(problem: Problem) -> float:
     if e.is_point:
         return k * max(e.median - 1.0, 0.0)
     mu, s = math.log(e.median), e.log_sd
-    return float(k * (math.exp(mu + s * s / 2) * special.ndtr(mu / s + s) - special.ndtr(mu / s)))
+    excess = math.exp(mu + s * s / 2) * special.ndtr(mu / s + s) - special.ndtr(mu / s)
+    return float(k * excess / (1 - e.truncated_share))  # the effect under harm is above 1
 
 
 def value_of(problem: Problem, name: str) -> float:

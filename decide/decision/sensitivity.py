@@ -404,11 +404,15 @@ def least_loss(losses: dict[str, float]) -> str | None:
 
 
 def _policy_gap(
-    problem: Problem, name: str, pair: Sequence[Policy], central: dict[str, Decision], first: str, second: str
+    problem: Problem, name: str, pair: Sequence[Policy], central: dict[str, Decision], first: str, second: str,
+    seen: dict[float, dict[str, float]],
 ) -> Callable[[float], float]:
+    """The two standards' loss difference at each input value (kept in ``seen`` by value)."""
+
     def diff(x: float) -> float:
-        ls = policy_losses(problem, name, x, pair, central)
-        return float(ls[first] - ls[second])
+        if x not in seen:
+            seen[x] = policy_losses(problem, name, x, pair, central)
+        return float(seen[x][first] - seen[x][second])
 
     return diff
 
@@ -434,11 +438,14 @@ def policy_thresholds(
             out.append(Threshold(name, "policy", None, left, right, None, (a, b)))
             continue
 
-        root = _settle_root(_policy_gap(problem, name, pair, central, left, right), a, b, None)
+        seen: dict[float, dict[str, float]] = {a: losses[i], b: losses[i + 1]}
+        gap = _policy_gap(problem, name, pair, central, left, right, seen)
+        root = _settle_root(gap, a, b, None)
         if root is None:
             out.append(Threshold(name, "policy", None, left, right, None, (a, b)))
             continue
-        at = policy_losses(problem, name, root, pair, central)
+        gap(root)
+        at = seen[root]
         out.append(Threshold(name, "policy", root, left, right, (at[left], at[right]), (a, b)))
     return tuple(out)
 

@@ -105,7 +105,10 @@ def _effects(problem: Problem, rng: np.random.Generator, size: int) -> FloatArra
     e = problem.effect
     if e.is_point:
         return np.full(size, e.median)
-    theta = e.median * np.exp(e.log_sd * rng.standard_normal(size))
+    # the effect under harm is the lognormal prior truncated at 1: inverse CDF above Phi(at_one)
+    floor = float(stats.norm.cdf(-np.log(e.median) / e.log_sd))
+    u = stats.norm.ppf(floor + (1 - floor) * rng.uniform(size=size))
+    theta = e.median * np.exp(e.log_sd * u)
     if problem.study.design == "cohort-risk":  # the exposed risk stays below 1 (prior mass beyond < 1e-6)
         theta = np.minimum(theta, (1 - 1e-12) / problem.study.baseline)
     return np.asarray(theta)

@@ -18,7 +18,7 @@ from rich.text import Text
 from ..decision.sensitivity import EndPoint, Tornado, TwoWay
 from ..decision.simulate import Check, Simulation
 from ..decision.uncertainty import Probabilistic
-from .text import CAUTION, fmt, fmt_compact, json_safe
+from .text import CAUTION, fmt, fmt_compact, json_safe, literal
 
 _ACTION_LETTER = {"study": "S", "flag-now": "F", "clear-now": "C", "not-available": "-"}
 
@@ -42,7 +42,7 @@ def _end(e: EndPoint) -> str:
 def tornado_tables(t: Tornado, unit: str = "") -> Group:
     """The one-way table (inputs by swing) and the break-even values beneath."""
     cost = f" ({unit})" if unit else ""
-    head = Table(title=f"{t.title}\nOne-way sensitivity of the loss-optimal choice", show_lines=True)
+    head = Table(title=f"{literal(t.title)}\nOne-way sensitivity of the loss-optimal choice", show_lines=True)
     head.add_column("input", overflow="fold")
     for col in ("range", f"swing in loss{cost}", "at the low end", "at the high end"):
         head.add_column(col)
@@ -74,20 +74,21 @@ def two_way_tables(w: TwoWay) -> Group:
     for title, cells in (("recommended action (S study, F flag now, C clear now)", w.action),
                          ("loss-optimal attained alpha", w.attained_alpha),
                          ("loss-optimal size per group", w.n_per_group)):
-        t = Table(title=f"{w.title}\n{title}", box=None, pad_edge=False)
+        t = Table(title=f"{literal(w.title)}\n{title}", box=None, pad_edge=False)
         t.add_column(f"{w.y} \\ {w.x}", style="bold")
         for x in w.x_values:
-            t.add_column(fmt_compact(x, 2), justify="right")
+            t.add_column(fmt(x, 2), justify="right")
         for y, row in zip(w.y_values, cells, strict=True):
-            t.add_row(fmt_compact(y, 3), *(_ACTION_LETTER.get(c, str(c)) if isinstance(c, str)
-                                            else fmt_compact(c, 2) for c in row))
+            t.add_row(fmt(y, 3), *(_ACTION_LETTER.get(c, str(c)) if isinstance(c, str)
+                                            else fmt(c, 2) for c in row))
         maps.append(t)
     return Group(*maps, Text(f"Method: {w.method}.", style="dim"), _caution())
 
 
 def probabilistic_tables(p: Probabilistic, unit: str = "") -> Group:
     """Quantiles of the optimum, action and policy probabilities, averaged-loss design, regret, EVPI."""
-    inputs = Table(title=f"{p.title}\nProbabilistic inputs ({p.draws:,} draws, seed {p.seed})", show_header=False)
+    inputs = Table(title=f"{literal(p.title)}\nProbabilistic inputs ({p.draws:,} draws, seed {p.seed})",
+                   show_header=False)
     inputs.add_column("input", style="bold")
     inputs.add_column("distribution")
     for k, v in p.inputs.items():
@@ -129,7 +130,7 @@ def _check_row(c: Check) -> list[str]:
 
 def simulation_table(s: Simulation, unit: str = "") -> Group:
     """Simulated against analytic false-alarm probability, power and loss."""
-    t = Table(title=f"{s.title}\nSimulated check of the {s.policy} design: {s.studies:,} studies under each "
+    t = Table(title=f"{literal(s.title)}\nSimulated check of the {s.policy} design: {s.studies:,} studies under each "
                     f"hypothesis, seed {s.seed}")
     for col in ("quantity", "simulated", "95% interval", "analytic", "standard error", "within 4 SE"):
         t.add_column(col)
