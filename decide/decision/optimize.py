@@ -35,7 +35,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .._results import PlainData
-from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign
 from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
@@ -351,7 +351,7 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) 
             a = float(cand[j - 1]) if j > 0 else a
         else:
             a = float(cand[-1])
-    span = EVERY_SIZE["one-group" if model.setting.design.allocation_name is None else "two-group"]
+    span = EVERY_SIZE["one-group" if model.setting.design.groups == 1 else "two-group"]
     early_sizes = np.arange(lo, b) if b - lo <= span else np.arange(max(lo, b - 64), b)
     if early_sizes.size:
         early = choose_tests(model, policy, early_sizes).meets_rules
@@ -370,7 +370,7 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     """
     if policy.alpha_rule != "fixed" or policy.power is None or policy.alpha is None:
         return None, OK
-    if model.setting.design.allocation_name is not None:
+    if model.setting.design.groups != 1:
         return None, OK  # two-group designs barely saw-tooth; the general search is faster
     from ..engine.solve import solve
 
@@ -566,7 +566,7 @@ def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float 
     study = model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)
     return _detectable_effect(
-        s.design.name,
+        s.design,
         study.baseline,
         allocation,
         years,
@@ -580,7 +580,7 @@ def _detectable(model: LossModel, alpha: float, n: float, exact: bool) -> float 
 
 @lru_cache(maxsize=256)
 def _detectable_effect(
-    design: str,
+    design: StudyDesign,
     baseline: float,
     allocation: float | None,
     years: float | None,
@@ -670,12 +670,12 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         point = None
         if rng is not None:
             point = ratio_point(rng)
-        test, method = "exact", d.exact_method
+        test, method = "exact", d.exact_method + d.describe_settings()
     else:
         rng = None
         point = _implied_ratio_normal(model, n, float(ch.z[0]))
         test = "normal-cc" if model.setting.continuity else "normal"
-        method = d.normal_method + (", continuity-corrected" if model.setting.continuity else "")
+        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if model.setting.continuity else "")
     net = best_none - loss
     if feasible and net <= 0:
         rec = (f"No study is worth its cost under {policy.title.lower()}: {better} now "

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .._checks import non_negative, open_unit, positive
-from ..designs import get_design
+from ..designs import StudyDesign, get_design
 from ..designs._base import FloatArray
 from ..engine.study import Setting, check_setting
 from ..errors import DecideError
@@ -22,7 +22,7 @@ from .prior import EffectPrior
 class Study:
     """The study design and how it is analysed."""
 
-    design: str
+    design: str | StudyDesign
     baseline: float
     allocation: float = 1.0
     years: float = 1.0
@@ -32,11 +32,12 @@ class Study:
 
     def setting(self) -> Setting:
         d = get_design(self.design)
+        allocation, years = d.applicable(self.allocation, self.years)
         return check_setting(
             d,
             self.baseline,
-            None if d.allocation_name is None else self.allocation,
-            self.years if d.uses_years else None,
+            allocation,
+            years,
             self.sides,
             self.test,
             self.continuity,
@@ -168,7 +169,7 @@ class Problem:
         if top >= limit:
             raise DecideError(
                 f"effect: the effect must stay below {limit:g} for baseline {self.study.baseline:g} "
-                f"(the exposed risk must stay below 1), but the effect reaches {top:g}",
+                f"({setting.design.effect_limit_reason}), but the effect reaches {top:g}",
                 ("effect",),
             )
         cons, cost = self.constraints, self.consequences
@@ -213,8 +214,9 @@ class Problem:
             ("cost of a false alarm", f"{c.false_alarm:g}"),
             ("study cost", f"{c.per_subject:g} per subject + {c.fixed:g} fixed"),
         ]
-        if d.allocation_name is not None:
+        if d.groups == 2 and d.allocation_name is not None:
             rows.insert(2, (d.allocation_name, f"{self.study.allocation:g}"))
+        rows[1:1] = [(key, f"{value:g}") for key, value in d.setting_values().items()]
         if d.uses_years:
             rows.insert(2, ("follow-up years per subject", f"{self.study.years:g}"))
         k = self.constraints

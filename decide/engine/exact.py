@@ -1,7 +1,8 @@
 """Exact power by summing over the counts a study can produce.
 
-Every exact test here sees at most two independent counts: the exposed count
-``x1`` and a comparison count ``x0`` (absent for a one-group design).  Each
+Every exact test here sees at most two counts: the exposed count ``x1`` and
+a comparison count ``x0`` (absent for a one-group design), either independent
+or two cells of one multinomial over matched sets (``CountModel.units``).  Each
 count's distribution is truncated to the window outside of which its tail
 mass is below :data:`TAIL`, so the neglected mass is below ``4 * TAIL``
 (about 1e-12) in all.  On the grid of ``(x1, x0)`` pairs the engine computes
@@ -62,12 +63,40 @@ class CountGrid:
     alt_exposed : (B, Q, W1) the same under each of ``Q`` effects
     other : (B, W0) probabilities of the comparison count (both hypotheses)
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
+    null_joint : (B, W1, W0) or None
+        Where the two counts are not independent, the probability of each
+        pair under no effect (then the three arrays above are only the
+        marginals of the counts under no effect, and use :func:`null_mass`
+        and :func:`split_mass` for masses) ...
+    alt_joint : (B, Q, W1, W0) or None
+        ... and under each effect.
     """
 
     null_exposed: FloatArray
     alt_exposed: FloatArray
     other: FloatArray
     p_value: FloatArray
+    null_joint: FloatArray | None = None
+    alt_joint: FloatArray | None = None
+
+
+def null_mass(grid: CountGrid) -> FloatArray:
+    """Probability of each count pair under no effect, (B, W1, W0)."""
+    if grid.null_joint is not None:
+        return grid.null_joint
+    return np.asarray(grid.null_exposed[:, :, None] * grid.other[:, None, :])
+
+
+def split_mass(grid: CountGrid, reject: NDArray[np.bool_]) -> tuple[FloatArray, FloatArray]:
+    """Mass of the rejected and of the kept pairs under each effect, (B, Q) each."""
+    if grid.alt_joint is not None:
+        return (
+            np.einsum("bqij,bij->bq", grid.alt_joint, reject),
+            np.einsum("bqij,bij->bq", grid.alt_joint, ~reject),
+        )
+    caught = np.einsum("bij,bj->bi", reject, grid.other)
+    kept = np.einsum("bij,bj->bi", ~reject, grid.other)
+    return np.einsum("bqi,bi->bq", grid.alt_exposed, caught), np.einsum("bqi,bi->bq", grid.alt_exposed, kept)
 
 
 def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
@@ -199,6 +228,38 @@ def _binomial(share: FloatArray) -> Callable[[FloatArray], _RowLaw]:
     return law
 
 
+def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
+    """The comparison count's window, under no effect and under every effect."""
+    assert model.other is not None
+    lo0, hi0 = _window(model.other)
+    if model.other_alt is not None:
+        lo_alt, hi_alt = _window(model.other_alt)
+        lo0, hi0 = np.minimum(lo0, lo_alt.min(axis=-1)), np.maximum(hi0, hi_alt.max(axis=-1))
+    return lo0, hi0
+
+
+def _multinomial_joint(model: CountModel, x1: FloatArray, x0: FloatArray) -> tuple[FloatArray, FloatArray]:
+    """Pair probabilities of two cells of one multinomial over ``model.units``.
+
+    ``P(x1, x0) = Bin(x1; n, p1) * Bin(x0; n - x1, p0 / (1 - p1))``, under no
+    effect (B, W1, W0) and under each effect (B, Q, W1, W0).
+    """
+    assert model.units is not None and model.other is not None
+    alt_other = model.other if model.other_alt is None else model.other_alt
+
+    def joint(p1: FloatArray, p0: FloatArray, a: FloatArray, b: FloatArray) -> FloatArray:
+        n = model.units.reshape(model.units.shape + (1,) * (p1.ndim - 1 + 2))
+        p1, p0 = p1[..., None, None], p0[..., None, None]
+        rest = np.maximum(n - a[..., :, None], 0.0)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            pair = stats.binom.pmf(a[..., :, None], n, p1) * stats.binom.pmf(b[..., None, :], rest, p0 / (1 - p1))
+        return np.asarray(np.where((a[..., :, None] + b[..., None, :] <= n) & np.isfinite(pair), pair, 0.0))
+
+    null = joint(model.exposed_null.parameter, model.other.parameter, x1, x0)
+    alt = joint(model.exposed_alt.parameter, alt_other.parameter, x1[:, None, :], x0[:, None, :])
+    return null, alt
+
+
 def build_grid(model: CountModel, sides: int) -> CountGrid:
     """Lay out the count pairs of a batch of studies and their p-values.
 
@@ -225,7 +286,7 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
         other = np.ones_like(x0)
     else:
         o = model.other
-        lo0, hi0 = _window(o)
+        lo0, hi0 = _x0_window(model)
         x0, valid0 = _axis(lo0, hi0)
         other = _pmf(o.family, o.trials[:, None], o.parameter[:, None], x0) * valid0
     if model.conditional == "poisson":
@@ -237,16 +298,19 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     else:
         assert model.n_exposed is not None and model.n_other is not None
         p = _row_tails(x1, x0, hi1, hi0, _hypergeometric(model.n_exposed, model.n_other), sides)
-    p = np.where(valid1[:, :, None] & valid0[:, None, :], p, np.inf)
-    return CountGrid(null_exposed, alt_exposed, other, p)
+    valid = valid1[:, :, None] & valid0[:, None, :]
+    p = np.where(valid, p, np.inf)
+    if model.units is None:
+        return CountGrid(null_exposed, alt_exposed, other, p)
+    null_joint, alt_joint = _multinomial_joint(model, x1, x0)
+    return CountGrid(null_exposed, alt_exposed, other, p, null_joint * valid, alt_joint * valid[:, None])
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
     """Power (B, Q) and attained size (B,) of the level-``alpha`` tests."""
     reject = grid.p_value <= (alpha * (1 + REL_TOL))[:, None, None]
-    caught = np.einsum("bij,bj->bi", reject, grid.other)
-    power = np.einsum("bqi,bi->bq", grid.alt_exposed, caught)
-    size = np.einsum("bi,bi->b", grid.null_exposed, caught)
+    power, _ = split_mass(grid, reject)
+    size = np.einsum("bij,bij->b", null_mass(grid), reject)
     return np.minimum(power, 1.0), np.minimum(size, 1.0)
 
 
@@ -276,9 +340,12 @@ def rejection_path(grid: CountGrid, weights: FloatArray) -> RejectionPath:
     p = grid.p_value.reshape(nb, -1)
     order = np.argsort(p, axis=1, kind="stable")
     p_sorted = np.take_along_axis(p, order, axis=1)
-    null = (grid.null_exposed[:, :, None] * grid.other[:, None, :]).reshape(nb, -1)
-    alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
-    alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
+    null = null_mass(grid).reshape(nb, -1)
+    if grid.alt_joint is not None:
+        alt = np.einsum("kq,bqij->bkij", weights, grid.alt_joint).reshape(nb, weights.shape[0], -1)
+    else:
+        alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
+        alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
     null_c = np.cumsum(np.take_along_axis(null, order, axis=1), axis=1)
     alt_sorted = np.take_along_axis(alt, order[:, None, :], axis=2)
     alt_c = np.cumsum(alt_sorted, axis=2)
@@ -308,6 +375,8 @@ def take_rows(model: CountModel, idx: NDArray[np.int64]) -> CountModel:
         _take(model.n_other, idx),
         _take(model.share_exposed, idx),
         _take(model.reference_mean, idx),
+        None if model.other_alt is None else _take_marginal(model.other_alt, idx),
+        _take(model.units, idx),
     )
 
 
@@ -323,7 +392,7 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
-        lo0, hi0 = _window(model.other)
+        lo0, hi0 = _x0_window(model)
         w0 = hi0 - lo0 + 1
     effects = model.exposed_alt.parameter.shape[-1] if model.exposed_alt.parameter.ndim == 2 else 1
     return np.asarray(w1 * w0 * (8 + effects) + 64, dtype=np.int64)

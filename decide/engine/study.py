@@ -41,12 +41,13 @@ def check_setting(
     d = get_design(design)
     b = _checks.as_float_array("baseline", baseline)
     d.check_baseline(b)
-    if d.allocation_name is None:
+    if d.groups == 1:
         if allocation is not None and np.any(np.asarray(allocation) != 1):
             raise DecideError(f"allocation does not apply to the {d.name} design (one group only)")
         alloc = np.ones(())
     else:
         alloc = _checks.positive("allocation", 1.0 if allocation is None else allocation)
+        d.check_allocation(alloc)
     if not d.uses_years:
         if years is not None and np.any(np.asarray(years) != 1):
             raise DecideError(
@@ -62,6 +63,8 @@ def check_setting(
             f"continuity correction applies to the two-proportion designs, not to {d.name}",
             ("continuity",),
         )
+    if t == "exact" and not d.exact_offered(alloc).all():
+        raise DecideError(f"test: exact is not offered here: {d.no_exact_reason}", ("test",))
     return Setting(d, b, alloc, yrs, s, t, bool(continuity))
 
 
@@ -75,7 +78,7 @@ def check_effect(setting: Setting, effect: ArrayLike) -> FloatArray:
         i = np.flatnonzero(bad)[0]
         raise DecideError(
             f"effect must be below {lb.flat[i]:g} for baseline {bb.flat[i]:g} "
-            f"(the exposed risk must stay below 1), but got {eb.flat[i]:g}",
+            f"({setting.design.effect_limit_reason}), but got {eb.flat[i]:g}",
             ("effect", "baseline"),
         )
     return e

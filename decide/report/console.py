@@ -43,7 +43,7 @@ def solution_table(s: Solution) -> Group:
         row("size where power stays above target", fmt(s.n_stable))
     row("subjects in all", fmt(s.n_total))
     row(d.baseline_name, fmt(s.baseline))
-    if d.allocation_name is not None:
+    if d.groups == 2 and d.allocation_name is not None:
         row(d.allocation_name, fmt(s.allocation))
     if d.uses_years:
         row("follow-up years per subject", fmt(s.years))

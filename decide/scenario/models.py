@@ -29,7 +29,7 @@ turns it into the one-line message.
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal
+from typing import TYPE_CHECKING, Annotated, Any, Literal
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
@@ -38,8 +38,12 @@ from pydantic_core import PydanticCustomError
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import DESIGNS, get_design
+from decide.errors import DecideError
 
-DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
+if TYPE_CHECKING:
+    DesignName = str
+else:  # the designs' names, read from the registry
+    DesignName = Literal[tuple(DESIGNS)]
 TestName = Literal["normal", "exact", "auto"]
 
 #: Marks "no value to show" in a rule error.
@@ -66,33 +70,34 @@ class StudyModel(BaseModel):
     model_config = _config("[study]")
 
     design: DesignName = Field(
-        description=(
-            "The study design. cohort-risk: exposed and unexposed cohorts compared by the "
-            "risk of disease over follow-up (risk ratio). cohort-rate: exposed and unexposed "
-            "cohorts compared by incidence per person-year (rate ratio). reference-rate: one "
-            "exposed cohort against a known reference rate (standardised incidence ratio). "
-            "case-control: cases and controls compared by exposure (odds ratio)."
-        )
+        description="The study design. "
+        + " ".join(f"{name}: {d.title}." for name, d in DESIGNS.items())
     )
     baseline: Annotated[
         float,
         Field(
             gt=0,
-            description=(
-                "The baseline, by design. cohort-risk: risk of disease over the whole follow-up "
-                "among the unexposed (a probability). cohort-rate: incidence rate per "
-                "person-year among the unexposed. reference-rate: reference incidence rate per "
-                "person-year. case-control: proportion exposed among controls (a probability)."
-            ),
+            description="The baseline, by design. "
+            + " ".join(f"{name}: {d.baseline_name}." for name, d in DESIGNS.items()),
         ),
     ]
     allocation: Annotated[
         float | None,
         Field(
             gt=0,
-            description=(
-                "Unexposed subjects per exposed subject (cohort designs) or controls per case "
-                "(case-control). Default 1. Not for reference-rate, which has one group."
+            description="By design (default 1): "
+            + " ".join(f"{name}: {d.allocation_name}." for name, d in DESIGNS.items() if d.groups == 2)
+            + " Not for one-group designs ("
+            + _designs_where(lambda x: x.groups == 1)
+            + ").",
+        ),
+    ] = None
+    design_settings: Annotated[
+        dict[str, float] | None,
+        Field(
+            description="Settings of the design itself (default none). "
+            + " ".join(
+                f"{name}: {key}, {text}." for name, d in DESIGNS.items() for key, text in d.settings.items()
             ),
         ),
     ] = None
@@ -135,13 +140,20 @@ class StudyModel(BaseModel):
     @model_validator(mode="after")
     def _keys_fit_design(self) -> StudyModel:
         d = get_design(self.design)
-        if self.allocation is not None and d.allocation_name is None:
+        if self.allocation is not None and d.groups == 1:
             raise rule_error(
                 "allocation",
                 f"does not apply to the {d.name} design (one group only); it applies to "
-                + _designs_where(lambda x: x.allocation_name is not None),
+                + _designs_where(lambda x: x.groups == 2),
                 self.allocation,
             )
+        try:
+            d.configure(self.design_settings or {})
+        except DecideError as exc:
+            key = exc.params[0] if exc.params else "design_settings"
+            reason = str(exc).removeprefix(key).lstrip(": ").split(", but got")[0]
+            value = (self.design_settings or {}).get(key.rpartition(".")[2], NO_VALUE)
+            raise rule_error(key, reason, value) from None
         if self.years is not None and not d.uses_years:
             raise rule_error(
                 "years",
@@ -160,7 +172,7 @@ class StudyModel(BaseModel):
 
     def to_study(self) -> Study:
         return Study(
-            design=self.design,
+            design=get_design(self.design).configure(self.design_settings) if self.design_settings else self.design,
             baseline=self.baseline,
             allocation=1.0 if self.allocation is None else self.allocation,
             years=1.0 if self.years is None else self.years,
