@@ -91,7 +91,7 @@ def test_bundled_scenario_loads_and_says_it_is_invented(path: Path) -> None:
 
 def test_bundled_scenarios_cover_every_design_a_prior_and_a_derived_cost() -> None:
     loaded = [load_scenario(p) for p in SCENARIOS]
-    assert {s.problem.study.design for s in loaded} == set(DESIGNS)
+    assert {s.problem.study.setting().design.name for s in loaded} == set(DESIGNS)
     assert any(not s.problem.effect.is_point for s in loaded)
     assert any(s.problem.consequences.is_derived for s in loaded)
 
