@@ -119,7 +119,7 @@ class MatchedCaseControl(StudyDesign):
     exact_method = "exact McNemar test, binomial on the discordant pairs"
     effect_limit_reason = "with a correlation phi of exposure within sets the odds ratio must stay below 1/phi**2"
     no_exact_reason = (
-        "the exact conditional test is offered for 1:1 matching only (allocation 1); with more "
+        "exact power is offered for 1:1 matching only (one control per case); with more "
         "controls per case Dupont's normal method runs"
     )
     settings = {"correlation": "correlation of exposure between a case and a matched control, in [0, 1)"}
