@@ -1,0 +1,337 @@
+"""The 1:M matched case-control design against outside checks.
+
+Sources of the expected values, named beside each check:
+
+* the matched-pairs size formula (Miettinen 1968, as given by Schlesselman
+  1982, *Case-Control Studies*, Oxford University Press, sec. 6.6), coded
+  here from the discordant-pair probabilities; Dupont's (1988) method reduces
+  to it for one control per case and no correlation;
+* the relative efficiency ``2M/(M+1)`` of M controls per case against one,
+  for odds ratios near 1 (Ury, H. K. 1975, *Biometrics* 31, 643-649;
+  Miettinen, O. S. 1969, *Biometrics* 25, 339-355), reached by Dupont's
+  sizes in the limit;
+* ``scipy.stats.binomtest`` and ``statsmodels.stats.contingency_tables.mcnemar``
+  for the exact McNemar p-values;
+* brute-force enumeration of every pair of discordant counts, weighted by
+  ``scipy.stats.multinomial``, for exact power;
+* seeded simulations of matched sets, subject by subject.
+
+Dupont's paper presents its results as graphs; no tabulated value was
+re-read for these tests, so none is quoted.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import cache
+
+import numpy as np
+import pytest
+from scipy import stats
+from statsmodels.stats.contingency_tables import mcnemar
+
+from decide import power, solve
+from decide.designs import DESIGNS, get_design
+from decide.designs.matched_case_control import MatchedCaseControl
+from decide.engine import exact as _exact
+from decide.engine.solve import normal_size
+from decide.engine.study import check_setting
+from decide.errors import ApproximationWarning, DecideError
+
+MATCHED = "matched-case-control"
+
+
+def p_cases(odds_ratio: float, p0: float) -> float:
+    """Exposure prevalence among cases for an odds ratio (Schlesselman 1982, eq. 6.2)."""
+    odds = odds_ratio * p0 / (1 - p0)
+    return odds / (1 + odds)
+
+
+def discordant(p0: float, odds_ratio: float, phi: float) -> tuple[float, float]:
+    """Probabilities of a pair with only the case / only the control exposed.
+
+    Dupont's (1988) model for one control per case, written out here: the
+    control is exposed with probability p0+ (case exposed) or p0- (case
+    unexposed); a pair is discordant with probability t1 and, given that,
+    the case is the exposed one with probability OR / (1 + OR).
+    """
+    p1 = p_cases(odds_ratio, p0)
+    q0, q1 = 1 - p0, 1 - p1
+    plus = p0 + phi * math.sqrt(q1 * p0 * q0 / p1)
+    minus = p0 - phi * math.sqrt(p1 * p0 * q0 / q1)
+    t1 = p1 * (1 - plus) + q1 * minus
+    return t1 * odds_ratio / (1 + odds_ratio), t1 / (1 + odds_ratio)
+
+
+# --------------------------------------------------------------------------
+# the normal method
+
+
+@pytest.mark.parametrize(
+    ("p0", "odds_ratio", "alpha", "target"),
+    [(0.3, 2.0, 0.05, 0.9), (0.4, 2.5, 0.05, 0.8), (0.6, 1.5, 0.01, 0.95), (0.2, 0.5, 0.05, 0.8)],
+)
+def test_pairs_reduce_to_the_discordant_pair_formula(p0, odds_ratio, alpha, target) -> None:
+    # Schlesselman (1982) sec. 6.6: discordant pairs
+    #   m = (z_{a/2}/2 + z_b*sqrt(P(1-P)))**2 / (P - 1/2)**2,  P = OR/(1+OR),
+    # and pairs m / (p0*q1 + p1*q0).
+    big_p = odds_ratio / (1 + odds_ratio)
+    p1 = p_cases(odds_ratio, p0)
+    z = stats.norm.ppf
+    m = (z(1 - alpha / 2) / 2 + z(target) * math.sqrt(big_p * (1 - big_p))) ** 2 / (big_p - 0.5) ** 2
+    want = m / (p0 * (1 - p1) + p1 * (1 - p0))
+    setting = check_setting(MATCHED, p0, 1.0, None, 2, "normal", False)
+    got = float(normal_size(setting, np.asarray(alpha), np.asarray(target), np.asarray(odds_ratio)))
+    assert got == pytest.approx(want, rel=1e-12)
+    if odds_ratio > 1:
+        s = solve(MATCHED, baseline=p0, effect=odds_ratio, alpha=alpha, power=target, sides=2, test="normal")
+        assert s.n_per_group == math.ceil(want - 1e-9)
+        assert s.n_total == 2 * s.n_per_group
+
+
+@pytest.mark.parametrize("controls", [2, 3, 5, 10])
+@pytest.mark.parametrize("p0", [0.1, 0.4])
+def test_efficiency_of_more_controls_near_no_effect(controls, p0) -> None:
+    # Ury (1975), Miettinen (1969): M controls per case are worth 2M/(M+1)
+    # times one control per case as the odds ratio tends to 1 (no correlation).
+    # At OR 1.0001 the gap from the limit is of order 1e-4.
+    def size(m: int) -> float:
+        setting = check_setting(MATCHED, p0, float(m), None, 1, "normal", False)
+        return float(normal_size(setting, np.asarray(0.05), np.asarray(0.8), np.asarray(1.0001)))
+
+    assert size(1) / size(controls) == pytest.approx(2 * controls / (controls + 1), rel=1e-3)
+
+
+def test_correlation_within_sets_costs_sets() -> None:
+    # Dupont (1988), abstract and discussion: size grows with the correlation.
+    sizes = [
+        solve(MatchedCaseControl(phi), baseline=0.2, effect=2.0, alpha=0.05, power=0.8,
+              allocation=2, test="normal").n_per_group
+        for phi in (0.0, 0.1, 0.2, 0.4)
+    ]
+    assert sizes == sorted(sizes) and sizes[0] < sizes[-1]
+
+
+def test_set_probabilities_against_simulated_sets() -> None:
+    # Simulate 1:3 matched sets subject by subject under Dupont's model
+    # (case exposed with p1; each control, given the case, with p0+ or p0-)
+    # and compare the share of sets with m exposed, the correlation of case
+    # and control exposure and the control prevalence with the model.
+    rng = np.random.default_rng(20261202)
+    p0, odds_ratio, phi, big_m, sets = 0.25, 2.5, 0.3, 3, 400_000
+    p1 = p_cases(odds_ratio, p0)
+    plus = p0 + phi * math.sqrt((1 - p1) * p0 * (1 - p0) / p1)
+    minus = p0 - phi * math.sqrt(p1 * p0 * (1 - p0) / (1 - p1))
+    case = rng.random(sets) < p1
+    controls = rng.random((sets, big_m)) < np.where(case, plus, minus)[:, None]
+    m = case + controls.sum(axis=1)
+    from decide.designs.matched_case_control import set_probabilities
+
+    t, _, _ = set_probabilities(np.asarray(p0), np.asarray(odds_ratio), np.asarray(float(big_m)), phi)
+    seen = np.bincount(m, minlength=big_m + 2)[1 : big_m + 1] / sets
+    se = np.sqrt(t[:big_m] * (1 - t[:big_m]) / sets)
+    assert np.all(np.abs(seen - t[:big_m]) < 4 * se)
+    assert np.corrcoef(case, controls[:, 0])[0, 1] == pytest.approx(phi, abs=4 / math.sqrt(sets))
+    assert controls.mean() == pytest.approx(p0, abs=4 * math.sqrt(p0 * (1 - p0) / (sets * big_m)))
+
+
+def _score_test_power(p0, odds_ratio, big_m, n, alpha, reps, seed) -> tuple[float, float]:
+    """Seeded simulation of the test Dupont's power formula approximates.
+
+    Each replicate draws ``n`` matched sets subject by subject (no
+    correlation), counts the exposed subjects ``m`` of each set and rejects
+    when sum(case exposed - m/(M+1)) / sqrt(sum m(M+1-m)/(M+1)**2) exceeds
+    z_alpha.  Returns the rejection rate and its standard error.
+    """
+    rng = np.random.default_rng(seed)
+    p1 = p_cases(odds_ratio, p0)
+    hits = 0
+    for _ in range(reps // 500):
+        case = rng.random((500, n)) < p1
+        m = case + (rng.random((500, n, big_m)) < p0).sum(axis=2)
+        score = (case - m / (big_m + 1)).sum(axis=1)
+        var = (m * (big_m + 1 - m)).sum(axis=1) / (big_m + 1) ** 2
+        hits += int(np.sum(score > stats.norm.isf(alpha) * np.sqrt(var)))
+    rate = hits / reps
+    return rate, math.sqrt(rate * (1 - rate) / reps)
+
+
+@pytest.mark.parametrize(("big_m", "n"), [(1, 400), (4, 250)])
+def test_normal_power_against_simulated_score_test(big_m, n) -> None:
+    # With hundreds of informative sets the normal approximation is close:
+    # measured, formula minus simulation is +0.0044 (2.5 standard errors of
+    # 20,000 replicates, 0.0018) for 1:1 and -0.0009 for 1:4; the check
+    # allows 4 standard errors (about 0.007).
+    got = power(MATCHED, 0.05, n, 1.6, 0.3, allocation=big_m, test="normal")
+    rate, se = _score_test_power(0.3, 1.6, big_m, n, 0.05, 20_000, seed=7 + big_m)
+    assert float(got.power) == pytest.approx(rate, abs=4 * se)
+
+
+# --------------------------------------------------------------------------
+# the exact McNemar test
+
+
+def _pair_axes(design, n: int, p0: float, odds_ratio: float):
+    model = design.count_model(
+        np.array([float(n)]), np.array([p0]), np.array([[odds_ratio]]), np.ones(1), np.ones(1)
+    )
+    lo1, hi1 = _exact._window(model.exposed_null)
+    lo_alt, hi_alt = _exact._window(model.exposed_alt)
+    x1 = np.arange(min(lo1[0], lo_alt.min()), max(hi1[0], hi_alt.max()) + 1)
+    lo0, hi0 = _exact._x0_window(model)
+    x0 = np.arange(lo0[0], hi0[0] + 1)
+    return model, x1.astype(int), x0.astype(int)
+
+
+@pytest.mark.parametrize("sides", [1, 2])
+def test_mcnemar_p_values_against_scipy_and_statsmodels(sides) -> None:
+    design = get_design(MATCHED)
+    model, x1, x0 = _pair_axes(design, 60, 0.3, 2.5)
+    p = _exact.build_grid(model, sides).p_value[0]
+    checked = 0
+    for i, b in enumerate(x1):
+        for j, c in enumerate(x0):
+            if b + c == 0 or b + c > 60:
+                continue
+            if sides == 1:
+                # scipy.stats.binomtest(b, b + c, 0.5, alternative="greater").pvalue
+                want = stats.binomtest(int(b), int(b + c), 0.5, alternative="greater").pvalue
+            else:
+                # mcnemar([[0, b], [c, 0]], exact=True).pvalue: twice the smaller binomial tail
+                want = mcnemar(np.array([[0, b], [c, 0]]), exact=True).pvalue
+                assert stats.binomtest(int(b), int(b + c), 0.5).pvalue == pytest.approx(want, rel=1e-12)
+            if want > 1e-18:
+                assert p[i, j] == pytest.approx(want, rel=1e-9), (b, c)
+            checked += 1
+    assert checked > 500
+
+
+@cache
+def _mcnemar_p(b: int, c: int, sides: int) -> float:
+    if b + c == 0:
+        return 1.0
+    upper = stats.binomtest(b, b + c, 0.5, alternative="greater").pvalue
+    if sides == 1:
+        return float(upper)
+    return float(mcnemar(np.array([[0, b], [c, 0]]), exact=True).pvalue)
+
+
+def brute_force_mcnemar(n, p0, odds_ratio, phi, alpha, sides) -> tuple[float, float]:
+    """Power and attained alpha by enumerating every (b, c), b + c <= n."""
+    out = []
+    for effect in (odds_ratio, 1.0):
+        pb, pc = discordant(p0, effect, phi)
+        law = stats.multinomial(n, [pb, pc, 1 - pb - pc])
+        total = 0.0
+        for b in range(n + 1):
+            for c in range(n + 1 - b):
+                if _mcnemar_p(b, c, sides) <= alpha * (1 + 1e-10):
+                    total += law.pmf([b, c, n - b - c])
+        out.append(total)
+    return out[0], out[1]
+
+
+@pytest.mark.parametrize(
+    ("n", "p0", "odds_ratio", "phi", "sides"),
+    [
+        (30, 0.2, 3.0, 0.0, 1),
+        (30, 0.2, 3.0, 0.0, 2),
+        (45, 0.4, 2.0, 0.2, 1),
+        (45, 0.4, 2.0, 0.2, 2),
+        (20, 0.1, 5.0, 0.0, 1),
+        (35, 0.5, 0.4, 0.1, 2),  # protective: only a two-sided test sees it
+    ],
+)
+def test_exact_power_against_brute_force(n, p0, odds_ratio, phi, sides) -> None:
+    alphas = (0.01, 0.05, 0.1)
+    got = power(MatchedCaseControl(phi), alphas, n, odds_ratio, p0, sides=sides, test="exact")
+    assert got.exact.all()
+    for i, alpha in enumerate(alphas):
+        want_power, want_size = brute_force_mcnemar(n, p0, odds_ratio, phi, alpha, sides)
+        assert got.power[i] == pytest.approx(want_power, rel=1e-9, abs=1e-12)
+        assert got.attained_alpha[i] == pytest.approx(want_size, rel=1e-9, abs=1e-12)
+        assert got.attained_alpha[i] <= alpha
+
+
+def test_no_correlation_pairs_are_independent_case_and_control() -> None:
+    # With phi = 0 Dupont's discordant probabilities are p1*q0 and q1*p0.
+    p0, odds_ratio = 0.3, 2.2
+    p1 = p_cases(odds_ratio, p0)
+    assert discordant(p0, odds_ratio, 0.0) == pytest.approx((p1 * (1 - p0), (1 - p1) * p0), rel=1e-14)
+
+
+def test_exact_power_against_simulated_pairs() -> None:
+    # 40,000 studies of 80 pairs drawn subject by subject; each is tested
+    # with the exact McNemar test (binomial tail from scipy).
+    rng = np.random.default_rng(11)
+    n, p0, odds_ratio, alpha, reps = 80, 0.15, 3.0, 0.05, 40_000
+    p1 = p_cases(odds_ratio, p0)
+    case = rng.random((reps, n)) < p1
+    control = rng.random((reps, n)) < p0
+    b = (case & ~control).sum(axis=1)
+    c = (~case & control).sum(axis=1)
+    pvalue = stats.binom.sf(b - 1, b + c, 0.5)  # P(Bin(b + c, 1/2) >= b)
+    rate = float(np.mean(pvalue <= alpha))
+    se = math.sqrt(rate * (1 - rate) / reps)
+    got = power(MATCHED, alpha, n, odds_ratio, p0, test="exact")
+    assert float(got.power) == pytest.approx(rate, abs=4 * se)
+
+
+def test_exact_size_solve_reaches_the_target_and_is_the_first() -> None:
+    s = solve(MATCHED, baseline=0.1, effect=4.0, alpha=0.05, power=0.8, test="exact")
+    assert s.test == "exact" and s.power >= 0.8
+    sizes = np.arange(1, s.n_per_group + 1)
+    pw = power(MATCHED, 0.05, sizes, 4.0, 0.1, test="exact").power
+    assert pw[-1] >= 0.8 and not (pw[:-1] >= 0.8).any()
+    want, _ = brute_force_mcnemar(s.n_per_group, 0.1, 4.0, 0.0, 0.05, 1)
+    assert s.power == pytest.approx(want, rel=1e-9)
+
+
+# --------------------------------------------------------------------------
+# what the design accepts, and what auto and exact do
+
+
+def test_more_controls_run_the_normal_method_and_say_why() -> None:
+    with pytest.warns(ApproximationWarning, match=r"as few as 2 expected.*1:1 matching only"):
+        s = solve(MATCHED, baseline=0.05, effect=3.0, alpha=0.05, n_per_group=40, allocation=3)
+    assert s.test == "normal" and "1:1 matching only" in s.test_reason
+    with pytest.raises(DecideError, match=r"^test: exact is not offered here: exact power is offered for 1:1"):
+        solve(MATCHED, baseline=0.05, effect=3.0, alpha=0.05, n_per_group=40, allocation=3, test="exact")
+    with pytest.warns(ApproximationWarning, match="1:1 matching only"):
+        power(MATCHED, 0.05, 10, 3.0, 0.05, allocation=2)
+    pairs = solve(MATCHED, baseline=0.05, effect=3.0, alpha=0.05, n_per_group=40)
+    assert pairs.test == "exact" and pairs.method.endswith("exact McNemar test, binomial on the discordant pairs")
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "message"),
+    [
+        ({"allocation": 2.5}, r"^allocation \(controls per case\) must be a whole number from 1 to 10 .* got 2\.5"),
+        ({"allocation": 11}, r"^allocation .* got 11"),
+        ({"allocation": 0.5}, r"^allocation .* got 0\.5"),
+        ({"baseline": 1.2}, r"^baseline must be strictly between 0 and 1"),
+        ({"years": 2.0}, r"^years does not apply to the matched-case-control design"),
+        ({"continuity": True}, r"^continuity correction applies to the two-proportion designs"),
+    ],
+)
+def test_bad_settings_are_refused(kwargs, message) -> None:
+    args = {"baseline": 0.2, "effect": 2.0, "alpha": 0.05, "power": 0.8} | kwargs
+    with pytest.raises(DecideError, match=message):
+        solve(MATCHED, **args)
+
+
+def test_correlation_setting_and_its_effect_limit() -> None:
+    with pytest.raises(DecideError, match=r"^design_settings.correlation must be at least 0 and below 1"):
+        get_design(MATCHED).configure({"correlation": 1.0})
+    with pytest.raises(DecideError, match=r"^design_settings.rho: the matched-case-control design has no such"):
+        get_design(MATCHED).configure({"rho": 0.1})
+    with pytest.raises(DecideError, match=r"^design_settings.correlation: the cohort-risk design has no such"):
+        get_design("cohort-risk").configure({"correlation": 0.1})
+    d = get_design(MATCHED).configure({"correlation": 0.25})
+    assert d == MatchedCaseControl(0.25) and hash(d) == hash(MatchedCaseControl(0.25))
+    assert d != DESIGNS[MATCHED]
+    # p0- = p0 - phi*sqrt(p0*q0*p1/q1) >= 0 exactly while OR <= 1/phi**2 = 16
+    with pytest.raises(DecideError, match=r"effect must be below 16 .*1/phi\*\*2"):
+        solve(d, baseline=0.2, effect=16.0, alpha=0.05, power=0.8)
+    s = solve(d, baseline=0.2, effect=15.0, alpha=0.05, power=0.8)
+    assert s.method.endswith("correlation 0.25")
