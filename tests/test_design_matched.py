@@ -22,21 +22,28 @@ re-read for these tests, so none is quoted.
 
 from __future__ import annotations
 
+import json
 import math
 from functools import cache
+from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
 from scipy import stats
 from statsmodels.stats.contingency_tables import mcnemar
+from typer.testing import CliRunner
 
 from decide import power, solve
+from decide.cli import app
+from decide.decision.optimize import optimize
 from decide.designs import DESIGNS, get_design
 from decide.designs.matched_case_control import MatchedCaseControl
 from decide.engine import exact as _exact
 from decide.engine.solve import normal_size
 from decide.engine.study import check_setting
 from decide.errors import ApproximationWarning, DecideError
+from decide.scenario import load_scenario
 
 MATCHED = "matched-case-control"
 
@@ -335,3 +342,124 @@ def test_correlation_setting_and_its_effect_limit() -> None:
         solve(d, baseline=0.2, effect=16.0, alpha=0.05, power=0.8)
     s = solve(d, baseline=0.2, effect=15.0, alpha=0.05, power=0.8)
     assert s.method.endswith("correlation 0.25")
+
+
+# --------------------------------------------------------------------------
+# Dupont's power written out term by term, for any M and correlation
+
+
+def dupont_power(p0: float, odds_ratio: float, big_m: int, phi: float, n: int, alpha: float, sides: int) -> float:
+    """Dupont (1988) power, coded here from scipy's binomial pmf, set type by set type."""
+    p1 = p_cases(odds_ratio, p0)
+    q0, q1 = 1 - p0, 1 - p1
+    plus = p0 + phi * math.sqrt(q1 * p0 * q0 / p1)
+    minus = p0 - phi * math.sqrt(p1 * p0 * q0 / q1)
+    mean = var0 = var1 = 0.0
+    for m in range(1, big_m + 1):
+        t = p1 * stats.binom.pmf(m - 1, big_m, plus) + q1 * stats.binom.pmf(m, big_m, minus)
+        e = m * odds_ratio / (m * odds_ratio + big_m - m + 1)
+        mean += t * (e - m / (big_m + 1))
+        var0 += t * m * (big_m - m + 1) / (big_m + 1) ** 2
+        var1 += t * e * (1 - e)
+    z = stats.norm.isf(alpha / sides)
+    out = stats.norm.cdf((math.sqrt(n) * mean - z * math.sqrt(var0)) / math.sqrt(var1))
+    if sides == 2:
+        out += stats.norm.cdf((-math.sqrt(n) * mean - z * math.sqrt(var0)) / math.sqrt(var1))
+    return float(out)
+
+
+@pytest.mark.parametrize(
+    ("p0", "odds_ratio", "big_m", "phi", "n", "sides"),
+    [
+        (0.2, 2.0, 1, 0.0, 150, 1),
+        (0.2, 2.0, 3, 0.2, 120, 1),
+        (0.05, 3.0, 10, 0.0, 300, 1),
+        (0.5, 1.5, 5, 0.4, 400, 2),
+        (0.3, 0.5, 2, 0.1, 300, 2),
+    ],
+)
+def test_normal_power_is_duponts_formula(p0, odds_ratio, big_m, phi, n, sides) -> None:
+    got = power(MatchedCaseControl(phi), 0.05, n, odds_ratio, p0, allocation=big_m, sides=sides, test="normal")
+    assert float(got.power) == pytest.approx(dupont_power(p0, odds_ratio, big_m, phi, n, 0.05, sides), rel=1e-12)
+    assert float(got.attained_alpha) == pytest.approx(0.05, rel=1e-12)
+
+
+# --------------------------------------------------------------------------
+# the design in the decision layer, the scenario files and the command line
+
+REPO = Path(__file__).resolve().parents[1]
+BUNDLED = REPO / "scenarios" / "quillmere-matched.toml"
+
+
+def run(*args: str) -> Any:
+    return CliRunner().invoke(app, [str(a) for a in args], env={"COLUMNS": "100"})
+
+
+def test_bundled_scenario_optimum_uses_the_exact_test_and_brute_force_agrees() -> None:
+    loaded = load_scenario(BUNDLED)
+    setting = loaded.problem.study.setting()
+    assert setting.design == MatchedCaseControl(0.1) and float(setting.allocation) == 1.0
+    d = optimize(loaded.problem)
+    assert d.feasible and d.test == "exact" and d.method.endswith("correlation 0.1")
+    want_power, want_size = brute_force_mcnemar(d.n_per_group, 0.06, 3.0, 0.1, d.alpha, 1)
+    assert d.power_at_design_effect == pytest.approx(want_power, rel=1e-9)
+    assert d.attained_alpha == pytest.approx(want_size, rel=1e-9)
+    assert d.n_total == 2 * d.n_per_group
+
+
+def test_one_to_three_variant_through_compare_and_optimize(tmp_path: Path) -> None:
+    text = BUNDLED.read_text(encoding="utf-8").replace("allocation = 1.0", "allocation = 3.0")
+    path = tmp_path / "three.toml"
+    path.write_text(text, encoding="utf-8")
+    res = run("compare", path, "--json")
+    assert res.exit_code == 0, res.output
+    rows = json.loads(res.stdout)
+    feasible = [r for r in rows if r["feasible"]]
+    assert feasible and all(r["test"] == "normal" for r in feasible)
+    assert all(r["n_total"] == 4 * r["n_per_group"] for r in feasible)
+    best = min(r["expected_loss"] for r in feasible)
+    optimum = json.loads(run("optimize", path, "--json").stdout)
+    assert optimum["expected_loss"] == pytest.approx(best, rel=1e-9)
+    # its power at the design effect is Dupont's, coded above
+    want = dupont_power(0.06, 3.0, 3, 0.1, optimum["n_per_group"], optimum["alpha"], 1)
+    assert optimum["power_at_design_effect"] == pytest.approx(want, rel=1e-9)
+
+
+def test_scenario_refuses_bad_design_settings(tmp_path: Path) -> None:
+    cases = [
+        ("correlation = 0.1", "correlation = 1.5", "study.design_settings.correlation", "at least 0 and below 1"),
+        ("correlation = 0.1", "rho = 0.1", "study.design_settings.rho", "no such setting"),
+        ("allocation = 1.0", "allocation = 1.5", "study.allocation", "whole number from 1 to 10"),
+    ]
+    for old, new, key, reason in cases:
+        path = tmp_path / "bad.toml"
+        path.write_text(BUNDLED.read_text(encoding="utf-8").replace(old, new), encoding="utf-8")
+        res = run("optimize", path)
+        assert res.exit_code == 2, res.output
+        line = res.stderr.strip()
+        assert "\n" not in line and f"bad.toml: {key}: " in line and reason in line, line
+
+
+def test_solve_and_audit_on_the_command_line() -> None:
+    res = run("solve", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
+              "--power", 0.8, "--allocation", 2, "--design-setting", "correlation=0.2", "--json")
+    assert res.exit_code == 0, res.output
+    s = json.loads(res.stdout)
+    assert s["method"].endswith("(Dupont 1988), correlation 0.2")
+    assert dupont_power(0.2, 2.0, 2, 0.2, s["n_per_group"], 0.05, 1) >= 0.8
+    assert dupont_power(0.2, 2.0, 2, 0.2, s["n_per_group"] - 1, 0.05, 1) < 0.8
+    res = run("audit", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
+              "--power", 0.8, "--p-harm", 0.2, "--per-subject", 100, "--allocation", 2,
+              "--design-setting", "correlation=0.2", "--json")
+    assert res.exit_code == 0, res.output
+    a = json.loads(res.stdout)
+    assert a["n_per_group"] == s["n_per_group"] and a["n_total"] == 3 * a["n_per_group"]
+    # at a loss-optimal size one more set costs what it saves: M = cost * 3 / (p_harm * dPower/dn)
+    n = a["n_per_group"]
+    slope = (dupont_power(0.2, 2.0, 2, 0.2, n + 1, 0.05, 1) - dupont_power(0.2, 2.0, 2, 0.2, n - 1, 0.05, 1)) / 2
+    assert a["implied_missed_hazard"] == pytest.approx(100 * 3 / (0.2 * slope), rel=1e-4)
+    bad = run("solve", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
+              "--power", 0.8, "--design-setting", "correlation")
+    assert bad.exit_code == 2 and bad.stderr.strip() == (
+        "decide solve: --design-setting must be KEY=VALUE with a number, but got 'correlation'"
+    )
