@@ -214,8 +214,8 @@ class Problem:
             ("cost of a false alarm", f"{c.false_alarm:g}"),
             ("study cost", f"{c.per_subject:g} per subject + {c.fixed:g} fixed"),
         ]
-        if d.groups == 2 and d.allocation_name is not None:
-            rows.insert(2, (d.allocation_name, f"{self.study.allocation:g}"))
+        if d.groups == 2:
+            rows.insert(2, (str(d.allocation_name), f"{self.study.allocation:g}"))
         rows[1:1] = [(key, f"{value:g}") for key, value in d.setting_values().items()]
         if d.uses_years:
             rows.insert(2, ("follow-up years per subject", f"{self.study.years:g}"))

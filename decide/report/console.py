@@ -43,8 +43,8 @@ def solution_table(s: Solution) -> Group:
         row("size where power stays above target", fmt(s.n_stable))
     row("subjects in all", fmt(s.n_total))
     row(d.baseline_name, fmt(s.baseline))
-    if d.groups == 2 and d.allocation_name is not None:
-        row(d.allocation_name, fmt(s.allocation))
+    if d.groups == 2:
+        row(str(d.allocation_name), fmt(s.allocation))
     if d.uses_years:
         row("follow-up years per subject", fmt(s.years))
     for name, value in s.expected_cases.items():
