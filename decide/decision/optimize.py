@@ -675,7 +675,8 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         rng = None
         point = _implied_ratio_normal(model, n, float(ch.z[0]))
         test = "normal-cc" if model.setting.continuity else "normal"
-        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if model.setting.continuity else "")
+        method = d.normal_method + d.describe_settings()
+        method += ", continuity-corrected" if model.setting.continuity else ""
     net = best_none - loss
     if feasible and net <= 0:
         rec = (f"No study is worth its cost under {policy.title.lower()}: {better} now "

@@ -163,6 +163,7 @@ class StudyDesign(ABC):
 
         Only called for two-group designs; any positive ratio by default.
         """
+        return None
 
     def exact_offered(self, allocation: FloatArray) -> NDArray[np.bool_]:
         """Where the design has an exact test (everywhere by default)."""

@@ -245,10 +245,11 @@ def _multinomial_joint(model: CountModel, x1: FloatArray, x0: FloatArray) -> tup
     effect (B, W1, W0) and under each effect (B, Q, W1, W0).
     """
     assert model.units is not None and model.other is not None
+    units = model.units
     alt_other = model.other if model.other_alt is None else model.other_alt
 
     def joint(p1: FloatArray, p0: FloatArray, a: FloatArray, b: FloatArray) -> FloatArray:
-        n = model.units.reshape(model.units.shape + (1,) * (p1.ndim - 1 + 2))
+        n = units.reshape(units.shape + (1,) * (p1.ndim - 1 + 2))
         p1, p0 = p1[..., None, None], p0[..., None, None]
         rest = np.maximum(n - a[..., :, None], 0.0)
         with np.errstate(invalid="ignore", divide="ignore"):
