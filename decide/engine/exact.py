@@ -32,6 +32,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from typing import TypeVar
 
 import numpy as np
 from numpy.typing import NDArray
@@ -51,6 +52,7 @@ ALPHA_FLOOR = 1e-15
 CELL_BUDGET = 4_000_000
 
 IntArray = NDArray[np.int64]
+_Number = TypeVar("_Number", np.float64, np.int64)
 
 
 @dataclass(frozen=True)
@@ -241,24 +243,48 @@ def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
 def _multinomial_joint(model: CountModel, x1: FloatArray, x0: FloatArray) -> tuple[FloatArray, FloatArray]:
     """Pair probabilities of two cells of one multinomial over ``model.units``.
 
-    ``P(x1, x0) = Bin(x1; n, p1) * Bin(x0; n - x1, p0 / (1 - p1))``, under no
-    effect (B, W1, W0) and under each effect (B, Q, W1, W0).
+    With cell probabilities ``p1`` and ``p0``, the pair total ``d = x1 + x0``
+    is ``Bin(n, t)`` with ``t = p1 + p0`` and, given it, ``x1`` is
+    ``Bin(d, p1 / t)``: ``P(x1, x0) = Bin(d; n, t) * C(d, x1) * s**x1 *
+    (1 - s)**x0``.  The first factor comes from scipy's binomial pmf over the
+    totals (1-D), the binomial coefficient from log-gamma values of counts no
+    larger than the totals, so no log-factorial of ``n`` enters a difference.  Returns
+    the pairs' probabilities under no effect (B, W1, W0) and under each
+    effect (B, Q, W1, W0).
     """
     assert model.units is not None and model.other is not None
-    units = model.units
+    n = model.units
     alt_other = model.other if model.other_alt is None else model.other_alt
+    lo = x1[:, 0] + x0[:, 0]
+    d = np.arange(x1.shape[1] + x0.shape[1] - 1, dtype=np.float64) + lo[:, None]  # (B, WD)
+    at = (x1[:, :, None] + x0[:, None, :] - lo[:, None, None]).astype(np.int64).reshape(n.size, -1)
+    shape = (x1.shape[1], x0.shape[1])
+    coefficient = (
+        np.take_along_axis(special.gammaln(d + 1), at, axis=1).reshape((n.size, *shape))
+        - special.gammaln(x1 + 1)[:, :, None]
+        - special.gammaln(x0 + 1)[:, None, :]
+    )
 
-    def joint(p1: FloatArray, p0: FloatArray, a: FloatArray, b: FloatArray) -> FloatArray:
-        n = units.reshape(units.shape + (1,) * (p1.ndim - 1 + 2))
-        p1, p0 = p1[..., None, None], p0[..., None, None]
-        rest = np.maximum(n - a[..., :, None], 0.0)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            pair = stats.binom.pmf(a[..., :, None], n, p1) * stats.binom.pmf(b[..., None, :], rest, p0 / (1 - p1))
-        return np.asarray(np.where((a[..., :, None] + b[..., None, :] <= n) & np.isfinite(pair), pair, 0.0))
+    def lift(a: NDArray[_Number], extra: int) -> NDArray[_Number]:
+        """``a`` with ``extra`` axes after the batch axis (for the effects)."""
+        return a.reshape(a.shape[:1] + (1,) * extra + a.shape[1:])
 
-    null = joint(model.exposed_null.parameter, model.other.parameter, x1, x0)
-    alt = joint(model.exposed_alt.parameter, alt_other.parameter, x1[:, None, :], x0[:, None, :])
-    return null, alt
+    def joint(p1: FloatArray, p0: FloatArray) -> FloatArray:
+        """(B, W1, W0) for one cell probability per study, (B, Q, W1, W0) for (B, Q)."""
+        extra = p1.ndim - 1
+        t = p1 + p0
+        share = np.where(t > 0, p1 / np.where(t > 0, t, 1.0), 0.5)[..., None, None]
+        with np.errstate(divide="ignore"):
+            # pmf (not logpmf): scipy's binomial pmf is accurate for large n
+            total = np.log(stats.binom.pmf(lift(d, extra), lift(n, extra + 1), t[..., None]))
+            log_p = np.take_along_axis(total, lift(at, extra), axis=-1).reshape(total.shape[:-1] + shape)
+            log_p += lift(coefficient, extra)
+            log_p += lift(x1, extra)[..., :, None] * np.log(share) + lift(x0, extra)[..., None, :] * np.log1p(-share)
+        return np.asarray(np.exp(log_p))
+
+    return joint(model.exposed_null.parameter, model.other.parameter), joint(
+        model.exposed_alt.parameter, alt_other.parameter
+    )
 
 
 def build_grid(model: CountModel, sides: int) -> CountGrid:
