@@ -216,7 +216,7 @@ class Problem:
         ]
         if d.groups == 2:
             rows.insert(2, (str(d.allocation_name), f"{self.study.allocation:g}"))
-        rows[1:1] = [(key, f"{value:g}") for key, value in d.setting_values().items()]
+        rows[1:1] = [(f"design setting: {key}", f"{value:g}") for key, value in d.setting_values().items()]
         if d.uses_years:
             rows.insert(2, ("follow-up years per subject", f"{self.study.years:g}"))
         k = self.constraints
