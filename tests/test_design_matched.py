@@ -3,7 +3,8 @@
 Sources of the expected values, named beside each check:
 
 * the matched-pairs size formula (Miettinen 1968, as given by Schlesselman
-  1982, *Case-Control Studies*, Oxford University Press, sec. 6.6), coded
+  1982, *Case-Control Studies*, Oxford University Press, ch. 6; section
+  from memory), coded
   here from the discordant-pair probabilities; Dupont's (1988) method reduces
   to it for one control per case and no correlation;
 * the relative efficiency ``2M/(M+1)`` of M controls per case against one,
@@ -49,7 +50,7 @@ MATCHED = "matched-case-control"
 
 
 def p_cases(odds_ratio: float, p0: float) -> float:
-    """Exposure prevalence among cases for an odds ratio (Schlesselman 1982, eq. 6.2)."""
+    """Exposure prevalence among cases for an odds ratio (Schlesselman 1982, ch. 6)."""
     odds = odds_ratio * p0 / (1 - p0)
     return odds / (1 + odds)
 
@@ -79,7 +80,7 @@ def discordant(p0: float, odds_ratio: float, phi: float) -> tuple[float, float]:
     [(0.3, 2.0, 0.05, 0.9), (0.4, 2.5, 0.05, 0.8), (0.6, 1.5, 0.01, 0.95), (0.2, 0.5, 0.05, 0.8)],
 )
 def test_pairs_reduce_to_the_discordant_pair_formula(p0, odds_ratio, alpha, target) -> None:
-    # Schlesselman (1982) sec. 6.6: discordant pairs
+    # Schlesselman (1982) ch. 6: discordant pairs
     #   m = (z_{a/2}/2 + z_b*sqrt(P(1-P)))**2 / (P - 1/2)**2,  P = OR/(1+OR),
     # and pairs m / (p0*q1 + p1*q0).
     big_p = odds_ratio / (1 + odds_ratio)
