@@ -3,10 +3,9 @@
 Sources of the expected values, named beside each check:
 
 * the matched-pairs size formula (Miettinen 1968, as given by Schlesselman
-  1982, *Case-Control Studies*, Oxford University Press, ch. 6; section
-  from memory), coded
-  here from the discordant-pair probabilities; Dupont's (1988) method reduces
-  to it for one control per case and no correlation;
+  1982, *Case-Control Studies*, Oxford University Press, ch. 6, from
+  memory), coded here from the discordant-pair probabilities; Dupont's (1988)
+  method reduces to it for one control per case and no correlation;
 * the relative efficiency ``2M/(M+1)`` of M controls per case against one,
   for odds ratios near 1 (Ury, H. K. 1975, *Biometrics* 31, 643-649;
   Miettinen, O. S. 1969, *Biometrics* 25, 339-355), reached by Dupont's
@@ -17,8 +16,10 @@ Sources of the expected values, named beside each check:
   ``scipy.stats.multinomial``, for exact power;
 * seeded simulations of matched sets, subject by subject.
 
-Dupont's paper presents its results as graphs; no tabulated value was
-re-read for these tests, so none is quoted.
+Dupont's paper presents its results as graphs and worked examples; none of
+its values could be re-read for these tests, so none is quoted: his method
+is instead coded term by term here (``dupont_power``), checked against the
+two limits above and against simulated sets.
 """
 
 from __future__ import annotations
