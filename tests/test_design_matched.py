@@ -32,6 +32,8 @@ from typing import Any
 
 import numpy as np
 import pytest
+from hypothesis import given
+from hypothesis import strategies as st
 from scipy import stats
 from statsmodels.stats.contingency_tables import mcnemar
 from typer.testing import CliRunner
@@ -494,3 +496,35 @@ def test_pair_probabilities_of_large_studies_against_scipy_multinomial(n) -> Non
                     if n <= 20_000:
                         assert mass[i, j] == pytest.approx(law.pmf([b, c, n - b - c]), rel=1e-9)
         assert mass.sum() == pytest.approx(1.0, abs=1e-11)
+
+
+def test_audit_of_a_pair_study_runs_the_exact_test() -> None:
+    res = run("audit", "--design", MATCHED, "--baseline", 0.06, "--effect", 3.0, "--alpha", 0.05,
+              "--n-per-group", 120, "--p-harm", 0.2, "--per-subject", 800,
+              "--design-setting", "correlation=0.1", "--json")
+    assert res.exit_code == 0, res.output
+    a = json.loads(res.stdout)
+    assert a["test"] == "exact" and a["n_total"] == 240
+    want_power, want_size = brute_force_mcnemar(120, 0.06, 3.0, 0.1, 0.05, 1)
+    assert a["power"] == pytest.approx(want_power, rel=1e-9)
+    assert a["attained_alpha"] == pytest.approx(want_size, rel=1e-9)
+
+
+@given(
+    n=st.integers(1, 400),
+    p0=st.floats(0.01, 0.9),
+    odds_ratio=st.floats(0.2, 8.0),
+    phi=st.floats(0.0, 0.3),
+    alpha=st.floats(0.001, 0.3),
+    sides=st.sampled_from([1, 2]),
+)
+def test_exact_attained_alpha_never_exceeds_alpha(n, p0, odds_ratio, phi, alpha, sides) -> None:
+    design = MatchedCaseControl(phi)
+    if odds_ratio >= float(design.effect_limit(np.asarray(p0))):
+        return
+    r = power(design, alpha, n, odds_ratio, p0, sides=sides, test="exact")
+    assert float(r.attained_alpha) <= alpha * (1 + 1e-9)
+    # the two grids differ only in their truncation windows, which leave out
+    # under 4e-13 of mass each (decide.engine.exact.TAIL)
+    at_null = power(design, alpha, n, 1.0, p0, sides=sides, test="exact")
+    assert float(at_null.power) == pytest.approx(float(r.attained_alpha), rel=0, abs=1e-12)
