@@ -158,6 +158,10 @@ class StudyDesign(ABC):
     def __hash__(self) -> int:
         return hash((self.name, tuple(sorted(self.setting_values().items()))))
 
+    def __repr__(self) -> str:
+        values = ", ".join(f"{key}={value!r}" for key, value in self.setting_values().items())
+        return f"{type(self).__name__}({values})"
+
     def check_allocation(self, allocation: FloatArray) -> None:
         """Raise :class:`~decide.errors.DecideError` if the allocation is impossible.
 
