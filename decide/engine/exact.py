@@ -32,7 +32,6 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
-from typing import TypeVar
 
 import numpy as np
 from numpy.typing import NDArray
@@ -52,7 +51,6 @@ ALPHA_FLOOR = 1e-15
 CELL_BUDGET = 4_000_000
 
 IntArray = NDArray[np.int64]
-_Number = TypeVar("_Number", np.float64, np.int64)
 
 
 @dataclass(frozen=True)
@@ -68,10 +66,10 @@ class CountGrid:
     null_joint : (B, W1, W0) or None
         Where the two counts are not independent, the probability of each
         pair under no effect (then the three arrays above are only the
-        marginals of the counts under no effect, and use :func:`null_mass`
-        and :func:`split_mass` for masses) ...
-    alt_joint : (B, Q, W1, W0) or None
-        ... and under each effect.
+        marginals of the counts under no effect, and use :func:`null_mass`,
+        :func:`split_mass` and :func:`rejection_path` for masses) ...
+    alt_joint : PairLaw or None
+        ... and under each effect, computed a few effects at a time.
     """
 
     null_exposed: FloatArray
@@ -79,7 +77,41 @@ class CountGrid:
     other: FloatArray
     p_value: FloatArray
     null_joint: FloatArray | None = None
-    alt_joint: FloatArray | None = None
+    alt_joint: PairLaw | None = None
+
+
+@dataclass(frozen=True)
+class PairLaw:
+    """Probabilities of the count pairs of two multinomial cells, under each of ``Q`` effects.
+
+    ``P_q(x1, x0) = Bin(d; n, t_q) * C(d, x1) * s_q**x1 * (1 - s_q)**x0`` with
+    ``d = x1 + x0`` (see :func:`_pair_law`).  Held in factors, so that the
+    ``(Q, W1, W0)`` array is never built whole: :meth:`mass` gives a few
+    effects at a time.
+    """
+
+    log_total: FloatArray  # (B, Q, W1 + W0 - 1): log Bin(d; n, t_q), d from x1[0] + x0[0] up
+    coefficient: FloatArray  # (B, W1, W0): log C(d, x1), -inf on padding
+    x1: FloatArray  # (B, W1)
+    x0: FloatArray  # (B, W0)
+    log_share: FloatArray  # (B, Q): log s_q
+    log_rest: FloatArray  # (B, Q): log(1 - s_q)
+
+    def mass(self, q: slice) -> FloatArray:
+        """Pair probabilities under the effects ``q``, (B, q, W1, W0)."""
+        w0 = self.coefficient.shape[2]
+        # pair (i, j) has total index i + j: a sliding window over the totals, no copy
+        total = np.lib.stride_tricks.sliding_window_view(self.log_total[:, q], w0, axis=-1)
+        log_p = total + self.coefficient[:, None]
+        log_p += self.x1[:, None, :, None] * self.log_share[:, q, None, None]
+        log_p += self.x0[:, None, None, :] * self.log_rest[:, q, None, None]
+        return np.asarray(np.exp(log_p, out=log_p))
+
+    def slices(self) -> Iterator[slice]:
+        """Effects a few at a time, keeping each :meth:`mass` under :data:`CELL_BUDGET` cells."""
+        step = max(1, CELL_BUDGET // self.coefficient.size)
+        for start in range(0, self.log_total.shape[1], step):
+            yield slice(start, min(self.log_total.shape[1], start + step))
 
 
 def null_mass(grid: CountGrid) -> FloatArray:
@@ -92,10 +124,13 @@ def null_mass(grid: CountGrid) -> FloatArray:
 def split_mass(grid: CountGrid, reject: NDArray[np.bool_]) -> tuple[FloatArray, FloatArray]:
     """Mass of the rejected and of the kept pairs under each effect, (B, Q) each."""
     if grid.alt_joint is not None:
-        return (
-            np.einsum("bqij,bij->bq", grid.alt_joint, reject),
-            np.einsum("bqij,bij->bq", grid.alt_joint, ~reject),
-        )
+        law = grid.alt_joint
+        caught, kept = np.empty(law.log_share.shape), np.empty(law.log_share.shape)
+        for q in law.slices():
+            mass = law.mass(q)
+            caught[:, q] = np.einsum("bqij,bij->bq", mass, reject)
+            kept[:, q] = np.einsum("bqij,bij->bq", mass, ~reject)
+        return caught, kept
     caught = np.einsum("bij,bj->bi", reject, grid.other)
     kept = np.einsum("bij,bj->bi", ~reject, grid.other)
     return np.einsum("bqi,bi->bq", grid.alt_exposed, caught), np.einsum("bqi,bi->bq", grid.alt_exposed, kept)
@@ -240,17 +275,18 @@ def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
     return lo0, hi0
 
 
-def _multinomial_joint(model: CountModel, x1: FloatArray, x0: FloatArray) -> tuple[FloatArray, FloatArray]:
-    """Pair probabilities of two cells of one multinomial over ``model.units``.
+def _pair_law(
+    model: CountModel, x1: FloatArray, x0: FloatArray, valid: NDArray[np.bool_]
+) -> tuple[PairLaw, PairLaw]:
+    """The pair laws of two cells of one multinomial over ``model.units``, no effect and each effect.
 
     With cell probabilities ``p1`` and ``p0``, the pair total ``d = x1 + x0``
     is ``Bin(n, t)`` with ``t = p1 + p0`` and, given it, ``x1`` is
-    ``Bin(d, p1 / t)``: ``P(x1, x0) = Bin(d; n, t) * C(d, x1) * s**x1 *
-    (1 - s)**x0``.  The first factor comes from scipy's binomial pmf over the
-    totals (1-D), the binomial coefficient from log-gamma values of counts no
-    larger than the totals, so no log-factorial of ``n`` enters a difference.  Returns
-    the pairs' probabilities under no effect (B, W1, W0) and under each
-    effect (B, Q, W1, W0).
+    ``Bin(d, s)`` with ``s = p1 / t``: ``P(x1, x0) = Bin(d; n, t) * C(d, x1) *
+    s**x1 * (1 - s)**x0``.  The first factor comes from scipy's binomial pmf
+    over the totals (1-D), the binomial coefficient from log-gamma values of
+    counts no larger than the totals, so no log-factorial of ``n`` enters a
+    difference.
     """
     assert model.units is not None and model.other is not None
     n = model.units
@@ -258,31 +294,23 @@ def _multinomial_joint(model: CountModel, x1: FloatArray, x0: FloatArray) -> tup
     lo = x1[:, 0] + x0[:, 0]
     d = np.arange(x1.shape[1] + x0.shape[1] - 1, dtype=np.float64) + lo[:, None]  # (B, WD)
     at = (x1[:, :, None] + x0[:, None, :] - lo[:, None, None]).astype(np.int64).reshape(n.size, -1)
-    shape = (x1.shape[1], x0.shape[1])
     coefficient = (
-        np.take_along_axis(special.gammaln(d + 1), at, axis=1).reshape((n.size, *shape))
+        np.take_along_axis(special.gammaln(d + 1), at, axis=1).reshape(valid.shape)
         - special.gammaln(x1 + 1)[:, :, None]
         - special.gammaln(x0 + 1)[:, None, :]
     )
+    coefficient = np.where(valid, coefficient, -np.inf)
 
-    def lift(a: NDArray[_Number], extra: int) -> NDArray[_Number]:
-        """``a`` with ``extra`` axes after the batch axis (for the effects)."""
-        return a.reshape(a.shape[:1] + (1,) * extra + a.shape[1:])
-
-    def joint(p1: FloatArray, p0: FloatArray) -> FloatArray:
-        """(B, W1, W0) for one cell probability per study, (B, Q, W1, W0) for (B, Q)."""
-        extra = p1.ndim - 1
+    def law(p1: FloatArray, p0: FloatArray) -> PairLaw:
+        p1, p0 = p1.reshape(n.size, -1), p0.reshape(n.size, -1)  # (B, Q)
         t = p1 + p0
-        share = np.where(t > 0, p1 / np.where(t > 0, t, 1.0), 0.5)[..., None, None]
+        share = np.where(t > 0, p1 / np.where(t > 0, t, 1.0), 0.5)
         with np.errstate(divide="ignore"):
             # pmf (not logpmf): scipy's binomial pmf is accurate for large n
-            total = np.log(stats.binom.pmf(lift(d, extra), lift(n, extra + 1), t[..., None]))
-            log_p = np.take_along_axis(total, lift(at, extra), axis=-1).reshape(total.shape[:-1] + shape)
-            log_p += lift(coefficient, extra)
-            log_p += lift(x1, extra)[..., :, None] * np.log(share) + lift(x0, extra)[..., None, :] * np.log1p(-share)
-        return np.asarray(np.exp(log_p))
+            log_total = np.log(stats.binom.pmf(d[:, None, :], n[:, None, None], t[:, :, None]))
+            return PairLaw(log_total, coefficient, x1, x0, np.log(share), np.log1p(-share))
 
-    return joint(model.exposed_null.parameter, model.other.parameter), joint(
+    return law(model.exposed_null.parameter, model.other.parameter), law(
         model.exposed_alt.parameter, alt_other.parameter
     )
 
@@ -329,8 +357,8 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     p = np.where(valid, p, np.inf)
     if model.units is None:
         return CountGrid(null_exposed, alt_exposed, other, p)
-    null_joint, alt_joint = _multinomial_joint(model, x1, x0)
-    return CountGrid(null_exposed, alt_exposed, other, p, null_joint * valid, alt_joint * valid[:, None])
+    null_law, alt_law = _pair_law(model, x1, x0, valid)
+    return CountGrid(null_exposed, alt_exposed, other, p, null_law.mass(slice(0, 1))[:, 0], alt_law)
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
@@ -369,7 +397,9 @@ def rejection_path(grid: CountGrid, weights: FloatArray) -> RejectionPath:
     p_sorted = np.take_along_axis(p, order, axis=1)
     null = null_mass(grid).reshape(nb, -1)
     if grid.alt_joint is not None:
-        alt = np.einsum("kq,bqij->bkij", weights, grid.alt_joint).reshape(nb, weights.shape[0], -1)
+        alt = np.zeros((nb, weights.shape[0], p.shape[1]))
+        for q in grid.alt_joint.slices():
+            alt += np.einsum("kq,bqij->bkij", weights[:, q], grid.alt_joint.mass(q)).reshape(alt.shape)
     else:
         alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
         alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
