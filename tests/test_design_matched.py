@@ -34,6 +34,7 @@ import numpy as np
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
+from numpy.typing import NDArray
 from scipy import stats
 from statsmodels.stats.contingency_tables import mcnemar
 from typer.testing import CliRunner
@@ -41,7 +42,7 @@ from typer.testing import CliRunner
 from decide import power, solve
 from decide.cli import app
 from decide.decision.optimize import optimize
-from decide.designs import DESIGNS, get_design
+from decide.designs import DESIGNS, CountModel, StudyDesign, get_design
 from decide.designs.matched_case_control import MatchedCaseControl
 from decide.engine import exact as _exact
 from decide.engine.solve import normal_size
@@ -82,7 +83,7 @@ def discordant(p0: float, odds_ratio: float, phi: float) -> tuple[float, float]:
     ("p0", "odds_ratio", "alpha", "target"),
     [(0.3, 2.0, 0.05, 0.9), (0.4, 2.5, 0.05, 0.8), (0.6, 1.5, 0.01, 0.95), (0.2, 0.5, 0.05, 0.8)],
 )
-def test_pairs_reduce_to_the_discordant_pair_formula(p0, odds_ratio, alpha, target) -> None:
+def test_pairs_reduce_to_the_discordant_pair_formula(p0: float, odds_ratio: float, alpha: float, target: float) -> None:
     # Schlesselman (1982) ch. 6: discordant pairs
     #   m = (z_{a/2}/2 + z_b*sqrt(P(1-P)))**2 / (P - 1/2)**2,  P = OR/(1+OR),
     # and pairs m / (p0*q1 + p1*q0).
@@ -102,7 +103,7 @@ def test_pairs_reduce_to_the_discordant_pair_formula(p0, odds_ratio, alpha, targ
 
 @pytest.mark.parametrize("controls", [2, 3, 5, 10])
 @pytest.mark.parametrize("p0", [0.1, 0.4])
-def test_efficiency_of_more_controls_near_no_effect(controls, p0) -> None:
+def test_efficiency_of_more_controls_near_no_effect(controls: int, p0: float) -> None:
     # Ury (1975), Miettinen (1969): M controls per case are worth 2M/(M+1)
     # times one control per case as the odds ratio tends to 1 (no correlation).
     # At OR 1.0001 the gap from the limit is of order 1e-4.
@@ -146,7 +147,9 @@ def test_set_probabilities_against_simulated_sets() -> None:
     assert controls.mean() == pytest.approx(p0, abs=4 * math.sqrt(p0 * (1 - p0) / (sets * big_m)))
 
 
-def _score_test_power(p0, odds_ratio, big_m, n, alpha, reps, seed) -> tuple[float, float]:
+def _score_test_power(
+    p0: float, odds_ratio: float, big_m: int, n: int, alpha: float, reps: int, seed: int
+) -> tuple[float, float]:
     """Seeded simulation of the test Dupont's power formula approximates.
 
     Each replicate draws ``n`` matched sets subject by subject (no
@@ -168,7 +171,7 @@ def _score_test_power(p0, odds_ratio, big_m, n, alpha, reps, seed) -> tuple[floa
 
 
 @pytest.mark.parametrize(("big_m", "n"), [(1, 400), (4, 250)])
-def test_normal_power_against_simulated_score_test(big_m, n) -> None:
+def test_normal_power_against_simulated_score_test(big_m: int, n: int) -> None:
     # With hundreds of informative sets the normal approximation is close:
     # measured, formula minus simulation is +0.0044 (2.5 standard errors of
     # 20,000 replicates, 0.0018) for 1:1 and -0.0009 for 1:4; the check
@@ -182,7 +185,9 @@ def test_normal_power_against_simulated_score_test(big_m, n) -> None:
 # the exact McNemar test
 
 
-def _pair_axes(design, n: int, p0: float, odds_ratio: float):
+def _pair_axes(
+    design: StudyDesign, n: int, p0: float, odds_ratio: float
+) -> tuple[CountModel, NDArray[np.int64], NDArray[np.int64]]:
     model = design.count_model(
         np.array([float(n)]), np.array([p0]), np.array([[odds_ratio]]), np.ones(1), np.ones(1)
     )
@@ -195,7 +200,7 @@ def _pair_axes(design, n: int, p0: float, odds_ratio: float):
 
 
 @pytest.mark.parametrize("sides", [1, 2])
-def test_mcnemar_p_values_against_scipy_and_statsmodels(sides) -> None:
+def test_mcnemar_p_values_against_scipy_and_statsmodels(sides: int) -> None:
     design = get_design(MATCHED)
     model, x1, x0 = _pair_axes(design, 60, 0.3, 2.5)
     p = _exact.build_grid(model, sides).p_value[0]
@@ -227,7 +232,9 @@ def _mcnemar_p(b: int, c: int, sides: int) -> float:
     return float(mcnemar(np.array([[0, b], [c, 0]]), exact=True).pvalue)
 
 
-def brute_force_mcnemar(n, p0, odds_ratio, phi, alpha, sides) -> tuple[float, float]:
+def brute_force_mcnemar(
+    n: int, p0: float, odds_ratio: float, phi: float, alpha: float, sides: int
+) -> tuple[float, float]:
     """Power and attained alpha by enumerating every (b, c), b + c <= n."""
     out = []
     for effect in (odds_ratio, 1.0):
@@ -253,7 +260,7 @@ def brute_force_mcnemar(n, p0, odds_ratio, phi, alpha, sides) -> tuple[float, fl
         (35, 0.5, 0.4, 0.1, 2),  # protective: only a two-sided test sees it
     ],
 )
-def test_exact_power_against_brute_force(n, p0, odds_ratio, phi, sides) -> None:
+def test_exact_power_against_brute_force(n: int, p0: float, odds_ratio: float, phi: float, sides: int) -> None:
     alphas = (0.01, 0.05, 0.1)
     got = power(MatchedCaseControl(phi), alphas, n, odds_ratio, p0, sides=sides, test="exact")
     assert got.exact.all()
@@ -325,8 +332,8 @@ def test_more_controls_run_the_normal_method_and_say_why() -> None:
         ({"continuity": True}, r"^continuity correction applies to the two-proportion designs"),
     ],
 )
-def test_bad_settings_are_refused(kwargs, message) -> None:
-    args = {"baseline": 0.2, "effect": 2.0, "alpha": 0.05, "power": 0.8} | kwargs
+def test_bad_settings_are_refused(kwargs: dict[str, Any], message: str) -> None:
+    args: dict[str, Any] = {"baseline": 0.2, "effect": 2.0, "alpha": 0.05, "power": 0.8} | kwargs
     with pytest.raises(DecideError, match=message):
         solve(MATCHED, **args)
 
@@ -382,7 +389,9 @@ def dupont_power(p0: float, odds_ratio: float, big_m: int, phi: float, n: int, a
         (0.3, 0.5, 2, 0.1, 300, 2),
     ],
 )
-def test_normal_power_is_duponts_formula(p0, odds_ratio, big_m, phi, n, sides) -> None:
+def test_normal_power_is_duponts_formula(
+    p0: float, odds_ratio: float, big_m: int, phi: float, n: int, sides: int
+) -> None:
     got = power(MatchedCaseControl(phi), 0.05, n, odds_ratio, p0, allocation=big_m, sides=sides, test="normal")
     assert float(got.power) == pytest.approx(dupont_power(p0, odds_ratio, big_m, phi, n, 0.05, sides), rel=1e-12)
     assert float(got.attained_alpha) == pytest.approx(0.05, rel=1e-12)
@@ -395,7 +404,7 @@ REPO = Path(__file__).resolve().parents[1]
 BUNDLED = REPO / "scenarios" / "quillmere-matched.toml"
 
 
-def run(*args: str) -> Any:
+def run(*args: object) -> Any:
     return CliRunner().invoke(app, [str(a) for a in args], env={"COLUMNS": "100"})
 
 
@@ -404,7 +413,8 @@ def test_bundled_scenario_optimum_uses_the_exact_test_and_brute_force_agrees() -
     setting = loaded.problem.study.setting()
     assert setting.design == MatchedCaseControl(0.1) and float(setting.allocation) == 1.0
     d = optimize(loaded.problem)
-    assert d.feasible and d.test == "exact" and d.method.endswith("correlation 0.1")
+    assert d.feasible and d.test == "exact" and d.method is not None and d.method.endswith("correlation 0.1")
+    assert d.n_per_group is not None and d.alpha is not None
     want_power, want_size = brute_force_mcnemar(d.n_per_group, 0.06, 3.0, 0.1, d.alpha, 1)
     assert d.power_at_design_effect == pytest.approx(want_power, rel=1e-9)
     assert d.attained_alpha == pytest.approx(want_size, rel=1e-9)
@@ -417,7 +427,7 @@ def test_one_to_three_variant_through_compare_and_optimize(tmp_path: Path) -> No
     path.write_text(text, encoding="utf-8")
     res = run("compare", path, "--json")
     assert res.exit_code == 0, res.output
-    rows = json.loads(res.stdout)
+    rows = json.loads(res.stdout)["policies"]
     feasible = [r for r in rows if r["feasible"]]
     assert feasible and all(r["test"] == "normal" for r in feasible)
     assert all(r["n_total"] == 4 * r["n_per_group"] for r in feasible)
@@ -470,7 +480,7 @@ def test_solve_and_audit_on_the_command_line() -> None:
 
 
 @pytest.mark.parametrize("n", [50, 20_000, 2_000_000])
-def test_pair_probabilities_of_large_studies_against_scipy_multinomial(n) -> None:
+def test_pair_probabilities_of_large_studies_against_scipy_multinomial(n: int) -> None:
     # The engine builds P(b, c) from the binomial total and log-gamma values
     # of the counts.  Outside values at every 7th pair of the grid:
     #   scipy.stats.multinomial(n, [pb, pc, 1 - pb - pc]).pmf([b, c, n - b - c])
@@ -518,7 +528,9 @@ def test_audit_of_a_pair_study_runs_the_exact_test() -> None:
     alpha=st.floats(0.001, 0.3),
     sides=st.sampled_from([1, 2]),
 )
-def test_exact_attained_alpha_never_exceeds_alpha(n, p0, odds_ratio, phi, alpha, sides) -> None:
+def test_exact_attained_alpha_never_exceeds_alpha(
+    n: int, p0: float, odds_ratio: float, phi: float, alpha: float, sides: int
+) -> None:
     design = MatchedCaseControl(phi)
     if odds_ratio >= float(design.effect_limit(np.asarray(p0))):
         return

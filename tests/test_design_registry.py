@@ -26,7 +26,7 @@ PACKAGE = ROOT / "decide"
 def test_command_line_design_choices_are_the_registry() -> None:
     for command in ("solve", "audit"):
         res = CliRunner().invoke(app, [command, "--help"], env={"COLUMNS": "200"})
-        (choices,) = re.findall(r"--design <([^>]*)>", res.stdout)
+        (choices,) = re.findall(r"--design [<\[]([^>\]]*)[>\]]", res.stdout)
         assert choices.split("|") == list(DESIGNS)
     bad = CliRunner().invoke(app, ["solve", "--design", "cohort", "--baseline", "0.1"])
     assert bad.exit_code == 2

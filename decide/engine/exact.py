@@ -31,7 +31,7 @@ References
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -63,11 +63,13 @@ class CountGrid:
     alt_exposed : (B, Q, W1) the same under each of ``Q`` effects
     other : (B, W0) probabilities of the comparison count (both hypotheses)
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
+    exposed_counts : (B, W1) the exposed counts of the rows (padding continues past the window)
     null_joint : (B, W1, W0) or None
         Where the two counts are not independent, the probability of each
-        pair under no effect (then the three arrays above are only the
-        marginals of the counts under no effect, and use :func:`null_mass`,
-        :func:`split_mass` and :func:`rejection_path` for masses) ...
+        pair under no effect (then ``null_exposed``, ``alt_exposed`` and
+        ``other`` are only the marginals of the counts under no effect, and
+        use :func:`null_mass`, :func:`split_mass` and :func:`rejection_path`
+        for masses) ...
     alt_joint : PairLaw or None
         ... and under each effect, computed a few effects at a time.
     """
@@ -76,6 +78,7 @@ class CountGrid:
     alt_exposed: FloatArray
     other: FloatArray
     p_value: FloatArray
+    exposed_counts: FloatArray
     null_joint: FloatArray | None = None
     alt_joint: PairLaw | None = None
 
@@ -144,6 +147,23 @@ def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
         lo = stats.poisson.ppf(TAIL, m.parameter)
         hi = stats.poisson.isf(TAIL, m.parameter)
     return np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
+
+
+def _alt_window(m: Marginal) -> tuple[FloatArray, FloatArray]:
+    """The union of the windows along a trailing axis of effects: (B,) each.
+
+    Binomial counts of fixed trials and Poisson counts are stochastically
+    increasing in their parameter, so each tail quantile is too: the union
+    runs from the low end at the smallest parameter to the high end at the
+    largest, and only those two are computed.
+    """
+    if m.parameter.ndim < 2:
+        return _window(m)
+    rows = np.arange(m.parameter.shape[0])
+    trials = np.broadcast_to(m.trials, m.parameter.shape)
+    ends = np.stack([np.argmin(m.parameter, axis=-1), np.argmax(m.parameter, axis=-1)], axis=1)
+    lo, hi = _window(Marginal(m.family, trials[rows[:, None], ends], m.parameter[rows[:, None], ends]))
+    return lo[:, 0], hi[:, 1]
 
 
 def _pmf(family: str, trials: FloatArray, parameter: FloatArray, x: FloatArray) -> FloatArray:
@@ -270,8 +290,8 @@ def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
     assert model.other is not None
     lo0, hi0 = _window(model.other)
     if model.other_alt is not None:
-        lo_alt, hi_alt = _window(model.other_alt)
-        lo0, hi0 = np.minimum(lo0, lo_alt.min(axis=-1)), np.maximum(hi0, hi_alt.max(axis=-1))
+        lo_alt, hi_alt = _alt_window(model.other_alt)
+        lo0, hi0 = np.minimum(lo0, lo_alt), np.maximum(hi0, hi_alt)
     return lo0, hi0
 
 
@@ -323,9 +343,9 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     every effect.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
-    hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    lo1 = np.minimum(lo_null, lo_alt)
+    hi1 = np.maximum(hi_null, hi_alt)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -356,9 +376,9 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     valid = valid1[:, :, None] & valid0[:, None, :]
     p = np.where(valid, p, np.inf)
     if model.units is None:
-        return CountGrid(null_exposed, alt_exposed, other, p)
+        return CountGrid(null_exposed, alt_exposed, other, p, x1)
     null_law, alt_law = _pair_law(model, x1, x0, valid)
-    return CountGrid(null_exposed, alt_exposed, other, p, null_law.mass(slice(0, 1))[:, 0], alt_law)
+    return CountGrid(null_exposed, alt_exposed, other, p, x1, null_law.mass(slice(0, 1))[:, 0], alt_law)
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
@@ -444,8 +464,8 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     (about as many again) and the working copies made along the way.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
@@ -475,3 +495,125 @@ def chunks(rows: int, cells_per_row: int) -> Iterator[slice]:
     step = max(1, CELL_BUDGET // max(1, cells_per_row))
     for start in range(0, rows, step):
         yield slice(start, min(rows, start + step))
+
+
+def _lowest_per_group(group: IntArray, key: FloatArray, groups: int) -> IntArray:
+    """Index of the member with the smallest ``key`` in each of ``groups`` groups."""
+    order = np.lexsort((key, group))
+    return np.asarray(order[np.searchsorted(group[order], np.arange(groups))], dtype=np.int64)
+
+
+def study_models(members: CountModel, study: IntArray, studies: int) -> CountModel:
+    """One model per study, its effect axis spanning the exposed windows of its members.
+
+    ``members`` holds one row per requested (study, effect) with an effect
+    axis of one; ``study`` numbers each row's study (size, baseline,
+    allocation, years) from 0 to ``studies - 1``.  The model returned holds,
+    per study, the member whose exposed window starts lowest and the member
+    whose window ends highest, so that :func:`build_grid` lays out one window
+    covering every member's.  The rejection region and the comparison count do
+    not depend on the effect, so that one grid serves every member.
+    """
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    lo, hi = _window(alt)
+    ends = np.stack(
+        [_lowest_per_group(study, lo.reshape(-1), studies), _lowest_per_group(study, -hi.reshape(-1), studies)],
+        axis=1,
+    )
+    spans = Marginal(alt.family, np.asarray(trials[ends]), np.asarray(alt.parameter.reshape(-1)[ends]))
+    return replace(take_rows(members, ends[:, 0]), exposed_alt=spans)
+
+
+def _caught(grid: CountGrid, rows: IntArray, alpha: FloatArray) -> FloatArray:
+    """Per exposed count, the comparison-count mass the level-``alpha`` test rejects: (P, W1)."""
+    out = np.empty((rows.size, grid.p_value.shape[1]))
+    for part in chunks(rows.size, grid.p_value.shape[1] * grid.p_value.shape[2]):
+        r = rows[part]
+        reject = grid.p_value[r] <= (alpha[part] * (1 + REL_TOL))[:, None, None]
+        out[part] = np.einsum("pij,pj->pi", reject, grid.other[r])
+    return out
+
+
+def _grouped(label: IntArray, groups: int) -> tuple[IntArray, IntArray]:
+    """Members sorted by ``label`` and where each label's run starts (``groups + 1`` bounds)."""
+    order = np.argsort(label, kind="stable")
+    return order, np.searchsorted(label[order], np.arange(groups + 1))
+
+
+def shared_power(
+    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
+) -> tuple[FloatArray, FloatArray]:
+    """Power and attained size of exact tests, one grid per study shared by its effects and alphas.
+
+    For each distinct (study, alpha) the mass the test rejects is summed over
+    the comparison count once, ``caught(x1) = sum_x0 [p(x1, x0) <= alpha]
+    P(x0)``; the power at each effect is then ``sum_x1 P_effect(x1)
+    caught(x1)`` and the attained size the same sum under no effect.  Where
+    the two counts are not independent (``members.units``), see
+    :func:`_joint_power`.
+    """
+    if members.units is not None:
+        return _joint_power(members, study, alpha, sides)
+    studies = int(study.max()) + 1
+    model = study_models(members, study, studies)
+    pairs, pair_of = np.unique(np.stack([study.astype(np.float64), alpha]), axis=1, return_inverse=True)
+    pair_of = pair_of.reshape(-1)
+    pair_study = pairs[0].astype(np.int64)
+    groups = list(batches(model))
+    label = np.empty(studies, dtype=np.int64)
+    local = np.empty(studies, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        label[idx], local[idx] = g, np.arange(idx.size)
+    pair_order, pair_bounds = _grouped(label[pair_study], len(groups))
+    member_order, member_bounds = _grouped(label[study], len(groups))
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    parameter = alt.parameter.reshape(-1)
+    out_power, out_size = np.empty(study.size), np.empty(study.size)
+    position = np.empty(pair_study.size, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        grid = build_grid(take_rows(model, idx), sides)
+        these = pair_order[pair_bounds[g] : pair_bounds[g + 1]]
+        position[these] = np.arange(these.size)
+        caught = _caught(grid, local[pair_study[these]], pairs[1][these])
+        size = np.einsum("pi,pi->p", grid.null_exposed[local[pair_study[these]]], caught)
+        mine = member_order[member_bounds[g] : member_bounds[g + 1]]
+        for part in chunks(mine.size, grid.p_value.shape[1]):
+            els = mine[part]
+            x1 = grid.exposed_counts[local[study[els]]]
+            pmf = _pmf(alt.family, trials[els][:, None], parameter[els][:, None], x1)
+            at = position[pair_of[els]]
+            out_power[els] = np.einsum("mi,mi->m", pmf, caught[at])
+            out_size[els] = size[at]
+    return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)
+
+
+def _joint_power(
+    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
+) -> tuple[FloatArray, FloatArray]:
+    """Power and attained size where the counts are two cells of one multinomial.
+
+    The pairs' masses then change with the effect on both axes, so each
+    distinct (study, effect) gets its grid, ordered once by p-value; every
+    alpha asked of it is one comparison along that order.
+    """
+    key = np.stack([study.astype(np.float64), members.exposed_alt.parameter.reshape(-1)])
+    _, first, back = np.unique(key, axis=1, return_index=True, return_inverse=True)
+    back = back.reshape(-1)
+    model = take_rows(members, first)
+    out_power, out_size = np.zeros(study.size), np.zeros(study.size)
+    row_of = np.empty(first.size, dtype=np.int64)
+    for idx in batches(model):
+        path = rejection_path(build_grid(take_rows(model, idx), sides), np.ones((1, 1)))
+        row_of[:] = -1
+        row_of[idx] = np.arange(idx.size)
+        mine = np.flatnonzero(row_of[back] >= 0)
+        for part in chunks(mine.size, path.p_value.shape[1]):
+            els = mine[part]
+            rows = row_of[back[els]]
+            k = (path.p_value[rows] <= (alpha[els] * (1 + REL_TOL))[:, None]).sum(axis=1)
+            at = np.maximum(k - 1, 0)
+            out_power[els] = np.where(k > 0, path.weighted[rows, 0, at], 0.0)
+            out_size[els] = np.where(k > 0, path.null[rows, at], 0.0)
+    return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)
