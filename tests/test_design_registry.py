@@ -79,8 +79,8 @@ def _offences(path: Path) -> list[str]:
 
 #: Tables keyed by design name outside ``decide/designs/``, each a table of one
 #: extension per design in its own layer (not a test on a name): the
-#: after-study readers of ``decide interpret``.
-KEYED_TABLES = {"observed.py"}
+#: after-study readers of ``decide interpret`` and the words for their methods.
+KEYED_TABLES = {"observed.py", "interpret.py"}
 
 
 def test_no_code_outside_the_designs_tests_a_design_by_name() -> None:
