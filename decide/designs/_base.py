@@ -125,6 +125,9 @@ class StudyDesign(ABC):
     exact_test: ClassVar[Literal["fisher", "binomial", "poisson"]]
     normal_method: ClassVar[str]
     exact_method: ClassVar[str]
+    #: the count a decision rule in counts is stated in, and the total it is conditional on
+    #: (``None`` for a one-group test)
+    count_words: ClassVar[tuple[str, str | None]] = ("exposed cases", "cases (exposed and unexposed)")
     #: why ``effect_limit`` bounds the effect, in words
     effect_limit_reason: ClassVar[str] = "the exposed risk must stay below 1"
     #: settings of the design itself (name: description), see :meth:`configure`
@@ -244,6 +247,31 @@ class StudyDesign(ABC):
             np.minimum.reduce(list(np.broadcast_arrays(*alt.values()))),
             np.minimum.reduce(list(np.broadcast_arrays(*null.values()))),
         ), dtype=np.float64)
+
+    @abstractmethod
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """The normal test statistic computed from observed counts.
+
+        ``exposed`` is the count the exact test looks at (exposed cases, or
+        exposed cases among cases for case-control), ``other`` the comparison
+        count (ignored by one-group designs); the study is ``n`` exposed
+        subjects (or cases) with its comparison group of
+        :meth:`comparison_size`.  Returns the statistic in null standard
+        errors toward harm and toward protection (they differ only by a
+        continuity correction): the test flags harm when the first reaches
+        the critical value ``z`` (and, two-sided, protection when the second
+        falls to ``-z``).  ``nan`` where the statistic is undefined (no case
+        at all); such counts never flag.
+        """
 
     @abstractmethod
     def count_model(

@@ -47,6 +47,7 @@ class CaseControl(StudyDesign):
     uses_years = False
     binomial_groups = True
     exact_test = "fisher"
+    count_words = ("exposed cases", "exposed subjects (cases and controls)")
     normal_method = "normal approximation, two proportions (Schlesselman form)"
     exact_method = "Fisher's exact test, conditional on the total exposed"
 
@@ -83,6 +84,20 @@ class CaseControl(StudyDesign):
             "unexposed cases": n * (1 - p1),
             "unexposed controls": n0 * (1 - baseline),
         }
+
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        return _two_proportions.normal_statistic(
+            exposed, other, n, self.comparison_size(n, allocation), continuity
+        )
 
     def count_model(
         self,

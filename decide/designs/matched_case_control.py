@@ -115,6 +115,7 @@ class MatchedCaseControl(StudyDesign):
     uses_years = False
     binomial_groups = False
     exact_test = "binomial"
+    count_words = ("pairs with only the case exposed", "discordant pairs")
     normal_method = "normal approximation for matched sets (Dupont 1988)"
     exact_method = "exact McNemar test, binomial on the discordant pairs"
     effect_limit_reason = "with a correlation phi of exposure within sets the odds ratio must stay below 1/phi**2"
@@ -188,6 +189,30 @@ class MatchedCaseControl(StudyDesign):
             "informative sets, case exposed": n * np.sum(t * e, axis=-1),
             "informative sets, case unexposed": n * np.sum(t * (1 - e), axis=-1),
         }
+
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """Dupont's statistic from the discordant pairs of a 1:1 study: McNemar's ``(b - c) / sqrt(b + c)``.
+
+        ``exposed`` pairs with only the case exposed, ``other`` with only the
+        control: the exposed cases minus their expectation given the sets,
+        ``(b - c) / 2``, over its null standard error ``sqrt(b + c) / 2``.
+        ``nan`` with no discordant pair, and for more controls per case,
+        whose statistic needs every set's exposure count.
+        """
+        b, c, m = np.broadcast_arrays(np.asarray(exposed, dtype=np.float64), np.asarray(other, dtype=np.float64),
+                                      np.asarray(allocation, dtype=np.float64))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = np.where((b + c > 0) & (m == 1), (b - c) / np.sqrt(b + c), np.nan)
+        return np.asarray(z), np.asarray(z)
 
     def count_model(
         self,

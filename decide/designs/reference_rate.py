@@ -42,6 +42,7 @@ class ReferenceRate(StudyDesign):
     uses_years = True
     binomial_groups = False
     exact_test = "poisson"
+    count_words = ("cases", None)
     normal_method = "normal approximation, square-root transform of the Poisson count"
     exact_method = "exact Poisson test against the expected count"
 
@@ -73,6 +74,20 @@ class ReferenceRate(StudyDesign):
     ) -> dict[str, FloatArray]:
         expected = baseline * n * years
         return {"exposed cases": effect * expected, "expected at the reference rate": expected}
+
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """``2 * (sqrt(O) - sqrt(E))``, the square-root transform of the observed count."""
+        z = np.asarray(2 * (np.sqrt(exposed) - np.sqrt(baseline * n * years)), dtype=np.float64)
+        return z, z
 
     def count_model(
         self,
