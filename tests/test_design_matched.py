@@ -540,3 +540,40 @@ def test_exact_attained_alpha_never_exceeds_alpha(
     # under 4e-13 of mass each (decide.engine.exact.TAIL)
     at_null = power(design, alpha, n, 1.0, p0, sides=sides, test="exact")
     assert float(at_null.power) == pytest.approx(float(r.attained_alpha), rel=0, abs=1e-12)
+
+
+def test_normal_statistic_from_counts_is_mcnemars() -> None:
+    # statsmodels: mcnemar([[0, b], [c, 0]], exact=False, correction=False).statistic == (b - c)**2 / (b + c)
+    design = get_design(MATCHED)
+    b = np.array([5.0, 12.0, 0.0, 30.0])
+    c = np.array([1.0, 12.0, 4.0, 11.0])
+    up, down = design.normal_statistic(b, c, np.full(4, 100.0), np.full(4, 0.2), np.ones(4), np.ones(4), False)
+    for i in range(4):
+        chi2 = mcnemar(np.array([[0, b[i]], [c[i], 0]]), exact=False, correction=False).statistic
+        assert up[i] ** 2 == pytest.approx(chi2, rel=1e-12) and np.sign(up[i]) == np.sign(b[i] - c[i])
+    assert np.array_equal(up, down)
+    assert np.isnan(design.normal_statistic(b, c, np.full(4, 100.0), np.full(4, 0.2), np.full(4, 2.0),
+                                            np.ones(4), False)[0]).all()
+
+
+def test_real_false_alarm_of_the_normal_pair_test_against_brute_force() -> None:
+    # The normal test flags when (b - c) / sqrt(b + c) >= z_alpha; its real
+    # false-alarm probability sums the multinomial (scipy) over the flagged
+    # (b, c) when the exposure is harmless.
+    from decide.engine.rule import normal_false_alarm
+
+    n, p0, alpha = 40, 0.3, 0.05
+    got = normal_false_alarm(get_design(MATCHED), np.array([alpha]), np.array([float(n)]), np.array([p0]),
+                             np.ones(1), np.ones(1), 1, False)
+    pb, pc = discordant(p0, 1.0, 0.0)
+    law = stats.multinomial(n, [pb, pc, 1 - pb - pc])
+    z = stats.norm.isf(alpha)
+    want = sum(
+        law.pmf([b, c, n - b - c])
+        for b in range(n + 1) for c in range(n + 1 - b)
+        if b + c > 0 and (b - c) / math.sqrt(b + c) >= z
+    )
+    assert float(got[0]) == pytest.approx(want, rel=1e-9)
+    more = normal_false_alarm(get_design(MATCHED), np.array([alpha]), np.array([float(n)]), np.array([p0]),
+                              np.full(1, 3.0), np.ones(1), 1, False)
+    assert np.isnan(more[0])  # not computed without an exact law of the sets
