@@ -27,6 +27,7 @@ from .report import console as render
 from .report import tables
 from .report.text import json_safe
 from .scenario import (
+    ScenarioError,
     load_policies,
     load_scenario,
     policy_json_schema,
@@ -48,6 +49,8 @@ _OPTIONS = {
     "design": "--design",
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
+    "p_harm": "--p-harm",
+    "per_subject": "--per-subject",
 }
 _DEBUG = {"on": False}
 
@@ -98,8 +101,13 @@ def _root(
 
 
 def _option_words(exc: DecideError) -> str:
-    """The error message with the parameters it names spelt as options."""
+    """The error message with the parameters it names spelt as options.
+
+    Errors about a file keep the file's key paths: they name no option.
+    """
     message = str(exc)
+    if isinstance(exc, ScenarioError):
+        return message
     for name in exc.params:
         if name in _OPTIONS:
             message = re.sub(rf"(?<![\w-]){re.escape(name)}(?![\w-])", _OPTIONS[name], message)
@@ -223,7 +231,7 @@ def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
         con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
-        raise typer.Exit(1)
+        _fail(f"decide optimize: cannot be done: {decision.reason}", 1)
 
 
 @app.command("compare")

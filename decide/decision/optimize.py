@@ -54,8 +54,8 @@ from .loss import (
     normal_at,
     settle,
 )
-from .policies import LOSS_OPTIMAL, Policy
-from .problem import Problem
+from .policies import LOSS_OPTIMAL, Policy, check_policies
+from .problem import Problem, check_problem
 
 #: Up to this many sizes below a smallest-for-power answer are all checked.
 EVERY_SIZE = {"one-group": 2_000, "two-group": 500}
@@ -233,6 +233,8 @@ def _largest_affordable(model: LossModel) -> int | None:
     if cons.budget is not None and c.per_subject > 0:
         per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         guess = np.floor((cons.budget - c.fixed) / per) + 2
+        if not guess <= SIZE_CEILING:  # beyond the largest size considered (or inf): that size binds
+            return SIZE_CEILING if top is None else min(top, SIZE_CEILING)
         cand = np.arange(max(1.0, guess - 4), guess + 1)
         fits = cand[model.study_cost(cand) <= cons.budget * (1 + 1e-12)]
         n_budget = int(fits.max()) if fits.size else 0
@@ -476,7 +478,7 @@ class Decision(PlainData):
     detectable_effect: float | None
     implied_cost_ratio: float | None
     implied_cost_ratio_range: tuple[float, float] | None
-    stated_cost_ratio: float
+    stated_cost_ratio: float | None
     regret: float | None = None
     warnings: tuple[str, ...] = field(default=())
 
@@ -630,20 +632,24 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         constraints meets the policy; where a size beyond them would, its
         numbers are still shown.
     """
+    if not isinstance(problem, LossModel):
+        check_problem(problem)
+    check_policies([policy])
     model = problem if isinstance(problem, LossModel) else build_model(problem)
     p = model.problem
     pick = _pick_size(model, policy)
     no_study = {"flag_now": model.flag_now, "clear_now": model.clear_now}
     better = "flag" if model.flag_now < model.clear_now else "clear"
     best_none = min(model.flag_now, model.clear_now)
-    stated = model.expected_missed / p.consequences.false_alarm if p.consequences.false_alarm > 0 else np.inf
+    # no finite ratio when a false alarm costs nothing: None, which the report puts in words
+    stated = model.expected_missed / p.consequences.false_alarm if p.consequences.false_alarm > 0 else None
     d = model.setting.design
     empty = Decision(
         policy.name, policy.title, policy.summary, False, pick.reason, d.name, None, None, None, None,
         None, None, None, p.effect.median, None, None, None, None, no_study, None,
         f"{policy.title} cannot be met: {pick.reason}. Without a study, the better action is to "
         f"{better} now (expected loss {best_none:.4g}).",
-        None, None, None, None, None, float(stated),
+        None, None, None, None, None, stated,
     )
     if pick.n is None:
         return empty
@@ -731,6 +737,8 @@ def optimize(problem: Problem) -> Decision:
 
 def compare(problem: Problem, policies: Sequence[Policy]) -> list[Decision]:
     """Apply each policy; regret is each one's extra loss over the loss-optimal choice."""
+    check_problem(problem)
+    check_policies(policies)
     model = build_model(problem)
     best = decide_policy(model, LOSS_OPTIMAL)
     out = []

@@ -37,6 +37,7 @@ from numpy.typing import NDArray
 from scipy import special, stats
 
 from ..designs._base import CountModel, FloatArray, Marginal
+from ..errors import InfeasibleError
 
 #: Tail mass left out at each end of each count's window.
 TAIL = 1e-13
@@ -48,6 +49,11 @@ REL_TOL = 1e-10
 ALPHA_FLOOR = 1e-15
 #: Rough cap on grid cells held in memory at once.
 CELL_BUDGET = 4_000_000
+#: The most count pairs (times effects) one call may lay out: about 20 floats
+#: of working memory each, so some 320 MB and a few seconds at the limit.
+#: Beyond it :func:`build_grid` raises :class:`~decide.errors.InfeasibleError`
+#: before allocating anything.
+MAX_COUNT_PAIRS = 2_000_000
 
 IntArray = NDArray[np.int64]
 
@@ -199,6 +205,19 @@ def _binomial(share: FloatArray) -> Callable[[FloatArray], _RowLaw]:
     return law
 
 
+def _check_size(w1: FloatArray, w0: FloatArray, alt: FloatArray) -> None:
+    """Refuse, before allocating, a grid beyond :data:`MAX_COUNT_PAIRS`."""
+    effects = alt.shape[-1] if alt.ndim == 2 else 1
+    pairs = float(w1.size * np.max(w1) * np.max(w0) * max(1.0, effects / 4))
+    if not pairs <= MAX_COUNT_PAIRS:
+        raise InfeasibleError(
+            f"the exact test would need {pairs:.3g} count pairs, beyond the limit of "
+            f"{MAX_COUNT_PAIRS:,} that keeps memory and time bounded; use the normal test, "
+            "which agrees closely at counts this large, or ask for a smaller study",
+            (),
+        )
+
+
 def build_grid(model: CountModel, sides: int) -> CountGrid:
     """Lay out the count pairs of a batch of studies and their p-values.
 
@@ -210,6 +229,8 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     lo_alt, hi_alt = _window(model.exposed_alt)
     lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
     hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
+    lo0, hi0 = (np.zeros_like(lo1), np.zeros_like(hi1)) if model.other is None else _window(model.other)
+    _check_size(hi1 - lo1 + 1, hi0 - lo0 + 1, model.exposed_alt.parameter)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -225,7 +246,6 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
         other = np.ones_like(x0)
     else:
         o = model.other
-        lo0, hi0 = _window(o)
         x0, valid0 = _axis(lo0, hi0)
         other = _pmf(o.family, o.trials[:, None], o.parameter[:, None], x0) * valid0
     if model.conditional == "poisson":

@@ -40,9 +40,12 @@ from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
 #: Default cap on the exposed group (or cases) for size solves.
-MAX_N_PER_GROUP = 10**9
-#: Default cap on the effect for effect solves where the design sets none.
-MAX_EFFECT = 1e4
+MAX_N_PER_GROUP = _checks.LARGEST_SIZE
+#: Default cap on the effect for effect solves where the design sets none
+#: (the largest effect decide considers).
+MAX_EFFECT = _checks.EFFECT_RANGE[1]
+#: The largest critical count the one-group exact size search goes to.
+MAX_CRITICAL_COUNT = 2**20
 
 
 @dataclass(frozen=True)
@@ -317,6 +320,12 @@ def _reference_rate_sizes(
             raise InfeasibleError(
                 f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}"
             )
+        if c_max >= MAX_CRITICAL_COUNT:
+            raise InfeasibleError(
+                f"n_per_group: the exact test would need a critical count above {MAX_CRITICAL_COUNT:,}, "
+                "the limit that keeps the search bounded; use the normal test, which agrees closely "
+                "at counts this large"
+            )
         c_max *= 2
     n_first = int(reach[first_ok])
     if fails.size == 0:
@@ -413,13 +422,16 @@ def solve(
     unknown = _only_unknown(
         {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect}
     )
+    alpha, power, effect = (None if v is None else _checks.scalar(k, v)
+                            for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
+    for name, value in (("baseline", baseline), ("allocation", allocation), ("years", years)):
+        if value is not None:
+            _checks.scalar(name, value)
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
-    if setting.baseline.ndim or setting.allocation.ndim or setting.years.ndim:
-        raise DecideError("solve takes single values; use the array functions for sweeps", ())
     check_alpha_power(alpha, power)
     if n_per_group is not None:
-        _checks.whole_at_least_one("n_per_group", n_per_group)
-    cap = int(_checks.whole_at_least_one("max_n_per_group", max_n_per_group))
+        n_per_group = int(_checks.scalar("n_per_group", _checks.whole_at_least_one("n_per_group", n_per_group)))
+    cap = int(_checks.scalar("max_n_per_group", _checks.whole_at_least_one("max_n_per_group", max_n_per_group)))
     if effect is not None:
         check_effect(setting, effect)
         if unknown in ("n_per_group", "alpha") and effect <= 1 and setting.sides == 1:

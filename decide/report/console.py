@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 from rich.console import Group
@@ -13,7 +14,7 @@ from ..decision.audit import Audit
 from ..decision.optimize import Decision
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
-from .text import CAUTION, fmt, fmt_compact
+from .text import CAUTION, fmt, fmt_compact, fmt_ratio
 
 _LABELS = {
     "alpha": "alpha (nominal)",
@@ -100,7 +101,7 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", fmt(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
-    t.add_row("stated cost ratio (miss : false alarm)", fmt(d.stated_cost_ratio))
+    t.add_row("stated cost ratio (miss : false alarm)", fmt_ratio(d.stated_cost_ratio))
     notes = [Text(d.recommendation, style="bold")]
     notes += [Text(f"Warning: {w}", style="yellow") for w in d.warnings]
     notes.append(Text(CAUTION, style="dim italic"))
@@ -111,6 +112,8 @@ def _ratio(d: Decision | Audit) -> str:
     if d.implied_cost_ratio is None:
         return "-"
     rng = d.implied_cost_ratio_range
+    if rng is not None and math.isinf(rng[1]):
+        return f"{fmt(d.implied_cost_ratio)} (range {fmt(rng[0])} upward, no upper bound)"
     if rng is not None and rng[1] > rng[0] * (1 + 1e-6):
         return f"{fmt(d.implied_cost_ratio)} (range {fmt(rng[0])} to {fmt(rng[1])})"
     return fmt(d.implied_cost_ratio)
@@ -152,7 +155,7 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
 
 def _notes(decisions: list[Decision]) -> list[Text]:
     notes = [Text(f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
-                  f"{fmt(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
+                  f"{fmt_ratio(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
                   "which its alpha would minimise expected loss for its size. Regret is the extra "
                   "expected loss over the loss-optimal choice.", style="dim")]
     for d in decisions:
@@ -181,7 +184,9 @@ def audit_table(a: Audit, unit: str) -> Group:
     t.add_row("implied cost of a missed hazard", _money(a.implied_missed_hazard, unit))
     t.add_row("implied cost of a false alarm", _money(a.implied_false_alarm, unit))
     t.add_row("P(harmful | negative result)", fmt(a.p_harm_given_negative))
-    t.add_row("P(harmful | positive result)", fmt(a.p_harm_given_positive))
+    t.add_row("P(harmful | positive result)",
+              "none: a positive result cannot happen" if a.p_harm_given_positive is None
+              else fmt(a.p_harm_given_positive))
     for level, effect in a.detectable_effects.items():
         t.add_row(f"{design.effect_name} detected with power {level}", fmt(effect))
     notes = [Text(a.rules_out, style="bold")]

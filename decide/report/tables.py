@@ -7,7 +7,7 @@ import io
 from typing import Any
 
 from ..decision.optimize import Decision
-from .text import CAUTION, fmt, json_safe
+from .text import CAUTION, fmt, fmt_ratio, json_safe
 
 #: Columns of the flat comparison formats (CSV, Markdown).
 COMPARE_COLUMNS = (
@@ -47,7 +47,7 @@ def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, s
                  fmt(d.expected_loss, 3), fmt(d.regret, 3), fmt(d.p_harm_given_negative, 3),
                  fmt(d.detectable_effect, 3), fmt(d.implied_cost_ratio, 3)]
         lines.append("| " + " | ".join(cells) + " |")
-    lines += ["", f"Stated cost ratio (miss : false alarm): {fmt(decisions[0].stated_cost_ratio)}.", ""]
+    lines += ["", f"Stated cost ratio (miss : false alarm): {fmt_ratio(decisions[0].stated_cost_ratio)}.", ""]
     lines += [f"- **{d.title}**: {d.reason}." for d in decisions if not d.feasible]
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)

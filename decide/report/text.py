@@ -23,8 +23,8 @@ def fmt(value: Any, digits: int = 4) -> str:
     if isinstance(value, float):
         if math.isnan(value):
             return "-"
-        if math.isinf(value):
-            return "inf" if value > 0 else "-inf"
+        if math.isinf(value):  # an unbounded quantity, in words
+            return "unbounded" if value > 0 else "-unbounded"
         if value != 0 and (abs(value) < 1e-3 or abs(value) >= 1e7):
             return f"{value:.{digits - 1}e}"
         if float(value).is_integer() and abs(value) >= 1000:
@@ -33,8 +33,24 @@ def fmt(value: Any, digits: int = 4) -> str:
     return str(value)
 
 
+#: How a ratio that does not exist (a false alarm that costs nothing) is put in words.
+NO_FINITE_RATIO = "none: a false alarm costs nothing"
+
+
+def fmt_ratio(value: float | None) -> str:
+    """A stated cost ratio, or why there is none."""
+    return NO_FINITE_RATIO if value is None else fmt(value)
+
+
 def json_safe(value: Any) -> Any:
-    """Replace non-finite floats by ``None`` so the JSON is standard."""
+    """Replace non-finite floats by ``None`` so the JSON is standard.
+
+    The one JSON representation of a value that is not a finite number is
+    ``null``.  The core never produces NaN; infinity appears only as the
+    open upper end of a range (``implied_cost_ratio_range``: no upper
+    bound), and a quantity that does not exist (the stated cost ratio when
+    a false alarm costs nothing) is ``None`` already.
+    """
     if isinstance(value, float) and not math.isfinite(value):
         return None
     if isinstance(value, dict):

@@ -162,10 +162,10 @@ def from_core_error(
         message = message[len(prefix) :]
     name = err.params[0] if err.params else ""
     key = f"study.{name}" if name in _STUDY_KEYS else name
-    for head in (f"{name}: ", f"{name} must ", f"{name} does "):
-        if name and message.startswith(head):
-            message = message[len(name) :].lstrip(": ")
-            break
+    if name and message.startswith(f"{name}: "):
+        message = message[len(name) + 2 :]
+    elif name and message.startswith(f"{name} "):
+        message = message[len(name) + 1 :]
     match = re.fullmatch(r"(.*), but got (.*)", message, flags=re.DOTALL)
     if match:
         message = f"{match[1]} (got {match[2]})"
