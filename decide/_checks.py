@@ -31,7 +31,7 @@ BASELINE_RATE_RANGE = (1e-12, 1e3)
 #: Unexposed subjects per exposed subject, or controls per case.
 ALLOCATION_RANGE = (1e-2, 1e2)
 #: Follow-up years per subject.
-YEARS_RANGE = (1e-3, 1e3)
+YEARS_RANGE = (1e-6, 1e6)
 #: The effect (risk, rate or odds ratio, SIR).
 EFFECT_RANGE = (1e-4, 1e4)
 #: The largest group size (exposed subjects or cases) considered anywhere.

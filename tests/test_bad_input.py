@@ -16,7 +16,6 @@ All scenarios here are invented.
 from __future__ import annotations
 
 import io
-import json
 import math
 import os
 import re
@@ -323,6 +322,16 @@ CLI_CASES: list[Case] = [
     _scenario_case("zero false-alarm cost, JSON", "optimize",
                    edit(BASE, "false_alarm = 1.0e7", "false_alarm = 0.0"), 0, None, r'"stated_cost_ratio": null',
                    "--json"),
+    _scenario_case("zero false-alarm cost, CSV", "compare",
+                   edit(BASE, "false_alarm = 1.0e7", "false_alarm = 0.0"), 0, None, r"^policy,feasible", "--csv"),
+    _scenario_case("zero false-alarm cost, Markdown", "compare",
+                   edit(BASE, "false_alarm = 1.0e7", "false_alarm = 0.0"), 0, None,
+                   r"Stated cost ratio \(miss : false alarm\): none: a false alarm costs nothing", "--markdown"),
+    _scenario_case("zero false-alarm cost, table", "compare",
+                   edit(BASE, "false_alarm = 1.0e7", "false_alarm = 0.0"), 0, None, r"none: a false alarm costs"),
+    Case("largest counts stay finite", _solve("--baseline", "1e3", "--years", "1e6", "--effect", "1e4",
+                                              "--alpha", "0.05", "--n-per-group", "1000000000", "--json",
+                                              design="cohort-rate"), 0, None, r'"power": 1\.0'),
     _scenario_case("zero costs everywhere", "optimize",
                    edit(edit(edit(BASE, "false_alarm = 1.0e7", "false_alarm = 0.0"),
                              "missed_hazard = 1.0e8", "missed_hazard = 0.0"), "per_subject = 100.0",
@@ -354,7 +363,8 @@ CLI_CASES: list[Case] = [
          r"scenario\.toml: is a file, not a folder", None, {"scenario.toml": BASE}),
     Case("policy dir missing", ("policies", "--policy-dir", "{dir}/absent"), 2, r"absent: no such policy folder"),
     Case("two policies of one name", ("policies", "--policy-dir", "{dir}/one", "--policy-dir", "{dir}/two"), 2,
-         r"two/mine\.toml: a policy named 'mine' already comes from .*one/mine\.toml", None, {"one/mine.toml": POLICY, "two/mine.toml": POLICY}),
+         r"two/mine\.toml: a policy named 'mine' already comes from .*one/mine\.toml", None,
+         {"one/mine.toml": POLICY, "two/mine.toml": POLICY}),
     Case("a policy named like a bundled one", ("policies", "--policy-dir", "{dir}/one"), 2,
          r"one/conventional-science\.toml: a policy named .* already comes from .*conventional-science\.toml",
          None,
@@ -427,9 +437,9 @@ API_CASES: list[tuple[str, Callable[[], Any], str]] = [
      r"^allocation must be"),
     ("power: allocation for one group", lambda: power("reference-rate", 0.05, 100, 3.0, 0.01, allocation=2.0),
      r"^allocation does not apply"),
-    ("solve: array alpha", lambda: solve("cohort-risk", baseline=0.01, alpha=np.array([0.05, 0.1]), power=0.8,
+    ("solve: array alpha", lambda: solve("cohort-risk", baseline=0.01, alpha=np.array([0.05, 0.1]), power=0.8,  # type: ignore[arg-type]
                                          effect=3.0), r"^alpha must be a single number"),
-    ("solve: list size", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, n_per_group=[10, 20],
+    ("solve: list size", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, n_per_group=[10, 20],  # type: ignore[arg-type]
                                        effect=3.0), r"^n_per_group must be a single"),
     ("solve: 400-digit cap", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, power=0.8, effect=3.0,
                                            max_n_per_group=10**400), r"^max_n_per_group must be"),
@@ -445,7 +455,7 @@ API_CASES: list[tuple[str, Callable[[], Any], str]] = [
     ("compare with policy names", lambda: compare(_problem(), ["loss-optimal"]),  # type: ignore[list-item]
      r"^policies must be Policy objects"),
     ("Consequences: horizon as text",
-     lambda: Consequences(false_alarm=1.0, per_subject=1.0, **{**_DERIVED, "horizon_years": "x"}),
+     lambda: Consequences(false_alarm=1.0, per_subject=1.0, **{**_DERIVED, "horizon_years": "x"}),  # type: ignore[arg-type]
      r"^consequences\.horizon_years must be a number"),
     ("Consequences: cost 1e308", lambda: Consequences(false_alarm=1e308, per_subject=1.0, missed_hazard=1.0),
      r"^consequences\.false_alarm must be"),
@@ -572,7 +582,8 @@ def test_policy_file_and_api_give_the_same_reason(tmp_path: Path) -> None:
     with pytest.raises(ScenarioError) as file:
         load_policies([folder])
     api_reason = str(api.value).removeprefix("policy mine: power.target ")
-    assert str(file.value) == f"{folder / 'mine.toml'}: power.target: " + api_reason.replace(", but got ", " (got ") + ")"
+    file_reason = api_reason.replace(", but got ", " (got ") + ")"
+    assert str(file.value) == f"{folder / 'mine.toml'}: power.target: {file_reason}"
 
 
 # --------------------------------------------------------------------------

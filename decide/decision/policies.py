@@ -103,10 +103,10 @@ class Policy:
         def fail(key: str, message: str) -> DecideError:
             return DecideError(f"{where}: {key}{message}", (key,))
 
-        for key, value, rules in (("alpha.rule", self.alpha_rule, ALPHA_RULES),
-                                  ("size.rule", self.size_rule, SIZE_RULES)):
-            if value not in rules:
-                raise fail(key, f" must be one of {', '.join(rules)}, but got {show(value)}")
+        for key, word, rules in (("alpha.rule", self.alpha_rule, ALPHA_RULES),
+                                 ("size.rule", self.size_rule, SIZE_RULES)):
+            if word not in rules:
+                raise fail(key, f" must be one of {', '.join(rules)}, but got {show(word)}")
         self._check_keys(fail)
         for key, value in (("alpha.value", self.alpha), ("power.target", self.power),
                            ("alpha.posterior_threshold", self.posterior_threshold)):
@@ -122,16 +122,16 @@ class Policy:
 
     def _check_keys(self, fail: Callable[[str, str], DecideError]) -> None:
         """Each rule's keys given with it, and only with it."""
-        for key, value, rule, needs in (("alpha.value", self.alpha, self.alpha_rule, "fixed"),
-                                        ("alpha.posterior_threshold", self.posterior_threshold,
-                                         self.alpha_rule, "posterior")):
-            if rule == needs and value is None:
-                raise fail(key, f': is required with rule = "{needs}"')
-            if rule != needs and value is not None:
-                raise fail(key, f': applies to rule = "{needs}" only, not {rule!r}, but got {show(value)}')
+        rule = self.alpha_rule
+        for key, value, wanted in (("alpha.value", self.alpha, "fixed"),
+                                   ("alpha.posterior_threshold", self.posterior_threshold, "posterior")):
+            if rule == wanted and value is None:
+                raise fail(key, f': is required with rule = "{wanted}"')
+            if rule != wanted and value is not None:
+                raise fail(key, f': applies to rule = "{wanted}" only, not {rule!r}, but got {show(value)}')
         if self.power is None:
-            needs = [f"{table}.rule = {rule!r}" for table, rule in (("size", self.size_rule), ("alpha", self.alpha_rule))
-                     if rule in ("smallest-for-power", "for-power")]
+            rules = (("size", self.size_rule), ("alpha", self.alpha_rule))
+            needs = [f"{t}.rule = {r!r}" for t, r in rules if r in ("smallest-for-power", "for-power")]
             if needs:
                 raise fail("power.target", f": is required with {needs[0]}")
 

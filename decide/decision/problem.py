@@ -11,7 +11,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .. import _checks
-from ..designs import get_design
 from ..designs._base import FloatArray
 from ..engine.study import Setting, check_setting
 from ..errors import DecideError

@@ -49,8 +49,8 @@ REL_TOL = 1e-10
 ALPHA_FLOOR = 1e-15
 #: Rough cap on grid cells held in memory at once.
 CELL_BUDGET = 4_000_000
-#: The most count pairs (times effects) one call may lay out: about 20 floats
-#: of working memory each, so some 320 MB and a few seconds at the limit.
+#: The most count pairs one study's grid may hold: about 20 floats of working
+#: memory each, so some 320 MB and a few seconds at the limit.
 #: Beyond it :func:`build_grid` raises :class:`~decide.errors.InfeasibleError`
 #: before allocating anything.
 MAX_COUNT_PAIRS = 2_000_000
@@ -205,10 +205,13 @@ def _binomial(share: FloatArray) -> Callable[[FloatArray], _RowLaw]:
     return law
 
 
-def _check_size(w1: FloatArray, w0: FloatArray, alt: FloatArray) -> None:
-    """Refuse, before allocating, a grid beyond :data:`MAX_COUNT_PAIRS`."""
-    effects = alt.shape[-1] if alt.ndim == 2 else 1
-    pairs = float(w1.size * np.max(w1) * np.max(w0) * max(1.0, effects / 4))
+def _check_size(w1: FloatArray, w0: FloatArray) -> None:
+    """Refuse, before allocating, a study whose grid holds more than :data:`MAX_COUNT_PAIRS`.
+
+    Batches of several studies are kept within :data:`CELL_BUDGET` by
+    :func:`batches`; this bounds the one study a batch always holds.
+    """
+    pairs = float(np.max(w1 * w0))
     if not pairs <= MAX_COUNT_PAIRS:
         raise InfeasibleError(
             f"the exact test would need {pairs:.3g} count pairs, beyond the limit of "
@@ -230,7 +233,7 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
     hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
     lo0, hi0 = (np.zeros_like(lo1), np.zeros_like(hi1)) if model.other is None else _window(model.other)
-    _check_size(hi1 - lo1 + 1, hi0 - lo0 + 1, model.exposed_alt.parameter)
+    _check_size(hi1 - lo1 + 1, hi0 - lo0 + 1)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1

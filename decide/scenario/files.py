@@ -6,7 +6,7 @@ Whatever is wrong with the file (it is missing, it is not TOML, a key is
 unknown, a value has the wrong type or range, the constraints leave no study
 possible) raises :class:`ScenarioError` with a one-line message::
 
-    scenario.toml: consequences.false_alarm: must be >= 0 (got -3)
+    scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)
 
 :func:`scenario_template` gives a commented template that loads as it is;
 :func:`scenario_json_schema` the JSON Schema of the format.

@@ -196,7 +196,9 @@ def builtin_policy_dir() -> Path:
 
 def _policy_files(folder: Path) -> list[Path]:
     if folder.exists() and not folder.is_dir():
-        raise PolicyFileError(os.fspath(folder), "", "is a file, not a folder: --policy-dir takes a folder of policy files")
+        raise PolicyFileError(
+            os.fspath(folder), "", "is a file, not a folder: --policy-dir takes a folder of policy files"
+        )
     if not folder.is_dir():
         raise PolicyFileError(os.fspath(folder), "", "no such policy folder")
     return sorted(
