@@ -22,11 +22,16 @@ from .errors import DecideError
 
 FloatArray = NDArray[np.float64]
 
-#: Probabilities (alpha, power, prior probabilities, risks, prevalences) lie
-#: in ``[SMALLEST_PROBABILITY, 1 - SMALLEST_PROBABILITY]``: closer to 0 or 1
-#: the normal quantiles and exact tails lose their digits.
-SMALLEST_PROBABILITY = 1e-12
-#: Baseline rates per person-year (cohort-rate, reference-rate).
+#: Probabilities a question is asked about (alpha and power of a solve, prior
+#: probabilities, levels) lie in ``[SMALLEST_PROBABILITY, 1 - LARGEST_COMPLEMENT]``:
+#: closer to 0 or 1 the normal quantiles and exact tails lose their digits.
+#: The lower end is the smallest level the exact tests resolve
+#: (``engine.exact.ALPHA_FLOOR``), so any alpha the engine reports is a valid
+#: input again.
+SMALLEST_PROBABILITY = 1e-15
+LARGEST_COMPLEMENT = 1e-12
+#: Baselines: rates per person-year (cohort-rate, reference-rate); risks and
+#: prevalences below 1 from the same lower end.
 BASELINE_RATE_RANGE = (1e-12, 1e3)
 #: Unexposed subjects per exposed subject, or controls per case.
 ALLOCATION_RANGE = (1e-2, 1e2)
@@ -97,17 +102,27 @@ def scalar(name: str, value: Any) -> float:
 
 
 def open_unit(name: str, value: ArrayLike) -> FloatArray:
-    """A probability strictly between 0 and 1, and at least 1e-12 from either end."""
+    """A probability strictly between 0 and 1."""
     arr = as_float_array(name, value)
     bad = (arr <= 0) | (arr >= 1)
     if bad.any():
         raise DecideError(
             f"{name} must be strictly between 0 and 1, but got {_first_bad(arr, bad)}", (name,)
         )
-    near = (arr < SMALLEST_PROBABILITY) | (arr > 1 - SMALLEST_PROBABILITY)
+    return arr
+
+
+def probability(name: str, value: ArrayLike) -> FloatArray:
+    """A probability a question is asked about: from 1e-15 to 1 - 1e-12.
+
+    The array function :func:`decide.power` takes any level in (0, 1), as a
+    curve may; solves, audits, problems and policies take these.
+    """
+    arr = open_unit(name, value)
+    near = (arr < SMALLEST_PROBABILITY) | (arr > 1 - LARGEST_COMPLEMENT)
     if near.any():
         raise DecideError(
-            f"{name} must be between 1e-12 and 1 - 1e-12 (nearer 0 or 1 is beyond what decide "
+            f"{name} must be between 1e-15 and 1 - 1e-12 (nearer 0 or 1 is beyond what decide "
             f"computes reliably), but got {_first_bad(arr, near)}",
             (name,),
         )

@@ -228,7 +228,7 @@ CLI_CASES: list[Case] = [
                 "--allocation", "0.05", "--test", "exact", design="cohort-rate"), 1,
          r"^decide solve: cannot be done: the exact test would need .* count pairs, beyond the limit"),
     Case("bound: smallest alpha exact",
-         _solve("--baseline", "8e-4", "--effect", "3", "--alpha", "1e-12", "--power", "0.8",
+         _solve("--baseline", "8e-4", "--effect", "3", "--alpha", "1e-15", "--power", "0.8",
                 "--test", "exact"), 0, None, r"n_per_group|exposed"),
     Case("bound: exact power on a huge study",
          _solve("--baseline", "0.3", "--effect", "1.01", "--alpha", "0.05", "--n-per-group", "1000000000",

@@ -113,7 +113,7 @@ def audit(
             "give exactly one of power and n_per_group (the size, or the power it was chosen for)",
             ("power", "n_per_group"),
         )
-    p_harm = float(_checks.open_unit("p_harm", _checks.scalar("p_harm", p_harm)))
+    p_harm = float(_checks.probability("p_harm", _checks.scalar("p_harm", p_harm)))
     per_subject = float(_checks.cost("per_subject", _checks.scalar("per_subject", per_subject)))
     sol = solve(
         design, baseline=baseline, alpha=alpha, power=power, n_per_group=n_per_group,

@@ -51,7 +51,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal
 
-from .._checks import open_unit, scalar, show
+from .._checks import probability, scalar, show
 from ..errors import DecideError
 
 AlphaRule = Literal["fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power"]
@@ -112,7 +112,7 @@ class Policy:
                            ("alpha.posterior_threshold", self.posterior_threshold)):
             if value is not None:
                 try:
-                    open_unit(key, scalar(key, value))
+                    probability(key, scalar(key, value))
                 except DecideError as e:
                     raise DecideError(f"{where}: {e}", (key,)) from None
         if self.alpha is not None and self.power is not None and self.power <= self.alpha:

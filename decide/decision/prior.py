@@ -18,7 +18,7 @@ import numpy as np
 from scipy import special
 
 from .. import _checks
-from .._checks import at_most, non_negative, open_unit, positive, within
+from .._checks import at_most, non_negative, positive, probability, within
 from ..designs._base import FloatArray
 from ..errors import DecideError
 
@@ -94,7 +94,7 @@ class EffectPrior:
                            "the largest effect decide considers"))
         hi = float(at_most("effect.high", positive("effect.high", _checks.scalar("effect.high", high)), top,
                            "the largest effect decide considers"))
-        lev = float(open_unit("effect.level", _checks.scalar("effect.level", level)))
+        lev = float(probability("effect.level", _checks.scalar("effect.level", level)))
         if hi <= lo:
             raise DecideError(
                 f"effect.high must be above effect.low ({lo:g}), but got {_checks.show(hi)}",

@@ -159,9 +159,9 @@ class Constraints:
                 ("constraints.max_n_per_group",),
             )
         if _checks.scalar("constraints.max_alpha", self.max_alpha) != 1.0:
-            _checks.open_unit("constraints.max_alpha", self.max_alpha)
+            _checks.probability("constraints.max_alpha", self.max_alpha)
         if _checks.scalar("constraints.min_power", self.min_power) != 0.0:
-            _checks.open_unit("constraints.min_power", self.min_power)
+            _checks.probability("constraints.min_power", self.min_power)
         if self.budget is not None:
             _checks.positive("constraints.budget", _checks.scalar("constraints.budget", self.budget))
 
@@ -204,7 +204,7 @@ class Problem:
                 )
         if not isinstance(self.title, str):
             raise DecideError(f"title must be text, but got {_checks.show(self.title)}", ("title",))
-        _checks.open_unit("prior.p_harm", _checks.scalar("prior.p_harm", self.p_harm))
+        _checks.probability("prior.p_harm", _checks.scalar("prior.p_harm", self.p_harm))
         setting = self.study.setting()
         limit = float(setting.design.effect_limit(setting.baseline))
         top = self.effect.median if self.effect.is_point else self.effect.quantile(1 - 1e-6)

@@ -50,10 +50,10 @@ ALPHA_FLOOR = 1e-15
 #: Rough cap on grid cells held in memory at once.
 CELL_BUDGET = 4_000_000
 #: The most count pairs one study's grid may hold: about 20 floats of working
-#: memory each, so some 320 MB and a few seconds at the limit.
+#: memory each, so some 650 MB and a few seconds at the limit.
 #: Beyond it :func:`build_grid` raises :class:`~decide.errors.InfeasibleError`
 #: before allocating anything.
-MAX_COUNT_PAIRS = 2_000_000
+MAX_COUNT_PAIRS = 4_000_000
 
 IntArray = NDArray[np.int64]
 
@@ -332,6 +332,17 @@ def take_rows(model: CountModel, idx: NDArray[np.int64]) -> CountModel:
         _take(model.share_exposed, idx),
         _take(model.reference_mean, idx),
     )
+
+
+def count_pairs(model: CountModel) -> FloatArray:
+    """Count pairs in each study's grid, from its count windows (cheap to compute)."""
+    lo_null, hi_null = _window(model.exposed_null)
+    lo_alt, hi_alt = _window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    if model.other is None:
+        return np.asarray(w1, dtype=np.float64)
+    lo0, hi0 = _window(model.other)
+    return np.asarray(w1 * (hi0 - lo0 + 1), dtype=np.float64)
 
 
 def grid_cells(model: CountModel) -> NDArray[np.int64]:

@@ -46,6 +46,9 @@ MAX_N_PER_GROUP = _checks.LARGEST_SIZE
 MAX_EFFECT = _checks.EFFECT_RANGE[1]
 #: The largest critical count the one-group exact size search goes to.
 MAX_CRITICAL_COUNT = 2**20
+#: The most count pairs, over all the grids it builds, one exact size scan may
+#: go through (ten seconds or so at the limit).
+MAX_SEARCH_PAIRS = 10_000_000
 
 
 @dataclass(frozen=True)
@@ -168,12 +171,24 @@ def normal_effect(
 
 
 def _exact_curve(setting: Setting, alpha: float, effect: float) -> Callable[[FloatArray], FloatArray]:
+    """Exact power as a function of the size, within a budget of :data:`MAX_SEARCH_PAIRS`."""
     d = setting.design
+    spent = [0.0]
 
     def curve(n: FloatArray) -> FloatArray:
         n = np.asarray(n, dtype=np.float64)
         flat = n.ravel()
         full = np.ones_like(flat)
+        b, r, y = (float(v) * full for v in (setting.baseline, setting.allocation, setting.years))
+        pairs = _exact.count_pairs(d.count_model(flat, b, effect * full[:, None], r, y))
+        # a one-group grid needs no conditional rows: about an eighth of the work per count
+        spent[0] += float(pairs.sum()) / (8.0 if d.allocation_name is None else 1.0)
+        if spent[0] > MAX_SEARCH_PAIRS:
+            raise InfeasibleError(
+                f"n_per_group: the exact size search would go through more than {MAX_SEARCH_PAIRS:,} count "
+                "pairs, the limit that keeps its time bounded; use the normal test, which agrees closely "
+                "at counts this large"
+            )
         pw, _ = exact_power(
             d,
             alpha * full,

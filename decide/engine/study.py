@@ -109,8 +109,8 @@ def check_effect(setting: Setting, effect: ArrayLike) -> FloatArray:
 
 def check_alpha_power(alpha: ArrayLike | None, power: ArrayLike | None) -> None:
     """Alpha and power in (0, 1), power above alpha when both are given."""
-    a = None if alpha is None else _checks.open_unit("alpha", alpha)
-    p = None if power is None else _checks.open_unit("power", power)
+    a = None if alpha is None else _checks.probability("alpha", alpha)
+    p = None if power is None else _checks.probability("power", power)
     if a is not None and p is not None:
         bad = np.broadcast_to(p <= a, np.broadcast_shapes(a.shape, p.shape))
         if bad.any():
