@@ -13,7 +13,7 @@ on with ``from decide.solve import ...``.)
 from __future__ import annotations
 
 from .decision.audit import Audit, audit
-from .decision.optimize import Decision, compare, decide_policy, optimize
+from .decision.optimize import Comparison, Decision, compare, decide_policy, optimize
 from .decision.policies import LOSS_OPTIMAL, Policy
 from .decision.prior import EffectPrior
 from .decision.problem import Consequences, Constraints, Problem, Study
@@ -29,6 +29,7 @@ __all__ = [
     "LOSS_OPTIMAL",
     "ApproximationWarning",
     "Audit",
+    "Comparison",
     "Consequences",
     "Constraints",
     "DecideError",

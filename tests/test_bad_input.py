@@ -149,7 +149,7 @@ def run_cli(args: list[str]) -> Outcome:
 
 # Numbers that are not numbers, shown as if they were.  An echo of the
 # user's own value ("(got inf)", "but got nan") is not a computed number.
-_NON_FINITE = re.compile(r"(?<![\w.-])[-+]?(nan|inf|infinity)(?![\w])", re.IGNORECASE)
+_NON_FINITE = re.compile(r"(?<![\w.-])[-+]?(nan|inf)(?![\w])", re.IGNORECASE)
 _ECHO = re.compile(r"\bgot [-+]?(nan|inf|infinity)\b", re.IGNORECASE)
 
 
