@@ -20,12 +20,13 @@ import math
 import os
 import re
 import resource
+import shutil
 import signal
 import sys
 import tempfile
 import time
 import warnings
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -390,17 +391,29 @@ CLI_CASES: list[Case] = [
 
 
 @pytest.fixture(scope="module")
-def cli_outcomes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Outcome]:
-    """Every case run once, two at a time (each in its own limited child)."""
-    def one(case: Case) -> Outcome:
-        folder = tmp_path_factory.mktemp("case")
+def cli_outcomes() -> Iterator[dict[str, Outcome]]:
+    """Every case run once, two at a time (each in its own limited child).
+
+    The cases' files live in a folder of the fixture's own, removed at the
+    end (pytest's shared temporary folders can be pruned by other runs while
+    these cases are running).
+    """
+    root = Path(tempfile.mkdtemp(prefix="decide-bad-input-"))
+
+    def one(numbered: tuple[int, Case]) -> Outcome:
+        i, case = numbered
+        folder = root / f"case{i}"
+        folder.mkdir()
         for name, text in case.files.items():
             (folder / name).parent.mkdir(parents=True, exist_ok=True)
             (folder / name).write_text(text, encoding="utf-8")
         return run_cli([a.replace("{dir}", str(folder)) for a in case.args])
 
-    with ThreadPoolExecutor(max_workers=2) as pool:
-        return dict(zip([c.id for c in CLI_CASES], pool.map(one, CLI_CASES), strict=True))
+    try:
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            yield dict(zip([c.id for c in CLI_CASES], pool.map(one, enumerate(CLI_CASES)), strict=True))
+    finally:
+        shutil.rmtree(root, ignore_errors=True)
 
 
 @pytest.mark.parametrize("case", CLI_CASES, ids=[c.id for c in CLI_CASES])
