@@ -5,7 +5,8 @@ responsible body; defer to applicable regulations, the competent authority
 and licensed professional judgment.
 
 The main entry points are re-exported here: :func:`power`, :func:`solve`,
-:func:`optimize`, :func:`compare`, :func:`decide_policy` and :func:`audit`.
+:func:`optimize`, :func:`compare`, :func:`decide_policy`, :func:`audit` and
+:func:`interpret` (a finished study's counts read against a scenario).
 (The modules of the same names stay importable as ``decide.solve`` and so
 on with ``from decide.solve import ...``.)
 """
@@ -13,6 +14,7 @@ on with ``from decide.solve import ...``.)
 from __future__ import annotations
 
 from .decision.audit import Audit, audit
+from .decision.interpret import Interpretation, interpret
 from .decision.optimize import Comparison, Decision, compare, decide_policy, optimize
 from .decision.policies import LOSS_OPTIMAL, Policy
 from .decision.prior import EffectPrior
@@ -36,6 +38,7 @@ __all__ = [
     "Decision",
     "EffectPrior",
     "InfeasibleError",
+    "Interpretation",
     "Policy",
     "PowerResult",
     "Problem",
@@ -46,6 +49,7 @@ __all__ = [
     "compare",
     "decide_policy",
     "get_design",
+    "interpret",
     "optimize",
     "power",
     "solve",

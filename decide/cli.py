@@ -56,6 +56,7 @@ _OPTIONS = {
     "max_n_per_group": "--max-n-per-group",
     "p_harm": "--p-harm",
     "per_subject": "--per-subject",
+    "confidence": "--confidence",
 }
 _DEBUG = {"on": False}
 
@@ -366,6 +367,54 @@ def compare_command(
     run_api("compare", lambda: _emit_text(text, output, force))
 
 
+def _chosen_policies(command: str, policy: list[str] | None, policy_dir: list[Path] | None) -> list[Any]:
+    known = run_api(command, lambda: load_policies(policy_dir or ()))
+    if not policy:
+        return list(known.values())
+    unknown = [p for p in policy if p not in known]
+    if unknown:
+        _fail(f"decide {command}: --policy must be one of {', '.join(known)}, but got {unknown[0]!r}", 2)
+    return [known[p] for p in dict.fromkeys(policy)]
+
+
+@app.command("interpret")
+def interpret_command(
+    scenario: ScenarioPath,
+    data: Annotated[Path, typer.Option("--data", help="Observed data file (TOML, an [observed] table).")],
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Policy whose verdict to show (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    confidence: Annotated[float, typer.Option(help="Confidence of the exact interval.")] = 0.95,
+    as_json: JsonFlag = False,
+    as_markdown: Annotated[bool, typer.Option("--markdown", help="Print Markdown.")] = False,
+    output: Annotated[Path | None, typer.Option(help="Write to this file (not overwritten unless --force).")] = None,
+    force: Annotated[bool, typer.Option("--force", help="Overwrite --output.")] = False,
+) -> None:
+    """Read a finished study's counts: estimate, verdict per policy, probability of harm, what is ruled out."""
+    from .decision.interpret import interpret as _interpret
+    from .report import interpretation as shown
+    from .scenario.observed_file import load_observed
+
+    if as_json and as_markdown:
+        _fail("decide interpret: choose one of --json and --markdown", 2)
+    if output is not None and not (as_json or as_markdown):
+        _fail("decide interpret: --output needs --json or --markdown", 2)
+    loaded = run_api("interpret", lambda: load_scenario(scenario))
+    counts = run_api("interpret", lambda: load_observed(data, loaded.problem))
+    chosen = _chosen_policies("interpret", policy, policy_dir)
+    result = run_api("interpret", lambda: _interpret(loaded.problem, counts, chosen, confidence))
+    unit = loaded.currency or ""
+    if as_json:
+        text = json_text(shown.interpretation_record(result, loaded.title, unit))
+    elif as_markdown:
+        text = shown.to_markdown(result, loaded.title, unit)
+    else:
+        render.make_console().print(shown.interpretation_table(result, loaded.title, unit))
+        return
+    run_api("interpret", lambda: _emit_text(text, output, force))
+
+
 @app.command("audit")
 def audit_command(
     design: Annotated[Design, typer.Option(help="Study design.")],
@@ -414,12 +463,17 @@ def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -
 
 @app.command("schema")
 def schema_command(
-    kind: Annotated[str, typer.Argument(help="scenario or policy.")] = "scenario",
+    kind: Annotated[str, typer.Argument(help="scenario, policy or observed.")] = "scenario",
 ) -> None:
-    """Print the JSON Schema of scenario (or policy) files."""
-    if kind not in ("scenario", "policy"):
-        _fail(f"decide schema: KIND must be scenario or policy, but got {kind!r}", 2)
-    schema = scenario_json_schema() if kind == "scenario" else policy_json_schema()
+    """Print the JSON Schema of scenario (or policy, or observed-data) files."""
+    if kind not in ("scenario", "policy", "observed"):
+        _fail(f"decide schema: KIND must be observed, scenario or policy, but got {kind!r}", 2)
+    if kind == "observed":
+        from .scenario.observed_file import observed_json_schema
+
+        schema = observed_json_schema()
+    else:
+        schema = scenario_json_schema() if kind == "scenario" else policy_json_schema()
     sys.stdout.write(json.dumps(schema, indent=2) + "\n")  # a JSON Schema keeps its own keys ($defs, ...)
 
 
