@@ -329,7 +329,7 @@ def test_more_controls_run_the_normal_method_and_say_why() -> None:
         ({"allocation": 0.5}, r"^allocation .* got 0\.5"),
         ({"baseline": 1.2}, r"^baseline must be strictly between 0 and 1"),
         ({"years": 2.0}, r"^years does not apply to the matched-case-control design"),
-        ({"continuity": True}, r"^continuity correction applies to the two-proportion designs"),
+        ({"continuity": True}, r"^continuity does not apply to the matched-case-control design"),
     ],
 )
 def test_bad_settings_are_refused(kwargs: dict[str, Any], message: str) -> None:

@@ -186,7 +186,7 @@ def _exact_curve(setting: Setting, alpha: float, effect: float) -> Callable[[Flo
         b, r, y = (float(v) * full for v in (setting.baseline, setting.allocation, setting.years))
         pairs = _exact.count_pairs(d.count_model(flat, b, effect * full[:, None], r, y))
         # a one-group grid needs no conditional rows: about an eighth of the work per count
-        spent[0] += float(pairs.sum()) / (8.0 if d.allocation_name is None else 1.0)
+        spent[0] += float(pairs.sum()) / (8.0 if d.groups == 1 else 1.0)
         if spent[0] > MAX_SEARCH_PAIRS:
             raise InfeasibleError(
                 f"n_per_group: the exact size search would go through more than {MAX_SEARCH_PAIRS:,} count "
