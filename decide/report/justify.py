@@ -25,6 +25,9 @@ def convention(r: ReportResults) -> Pieces:
     d = r.decision
     stated = num("decision.stated_cost_ratio", d.stated_cost_ratio, "number")
     found = [(i, c) for i, c in enumerate(r.comparison) if c.policy == CONVENTIONAL]
+    if d.stated_cost_ratio is None:
+        return ["The stated inputs give no finite cost ratio of a missed hazard to a false alarm, so no standard's "
+                "implied ratio can be set beside it."]
     if not found or found[0][1].implied_cost_ratio is None:
         return ["The stated inputs make a missed hazard cost ", stated, " times a false alarm (in expectation)."]
     i, c = found[0]
