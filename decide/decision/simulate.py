@@ -94,9 +94,18 @@ class Simulation(PlainData):
         return self.false_alarm.flagged or self.power.flagged or self.loss.flagged
 
 
+SIMULATED = ("cohort-risk", "case-control", "cohort-rate", "reference-rate")
+
+
+def design_name(problem: Problem) -> str:
+    """The study design's name (a study may carry the name or the design object)."""
+    d = problem.study.design
+    return d if isinstance(d, str) else str(d.name)
+
+
 def _comparison(problem: Problem, n: int) -> int:
     s = problem.study
-    if s.design == "reference-rate":
+    if design_name(problem) == "reference-rate":
         return 0
     return int(math.floor(s.allocation * n + 0.5))
 
@@ -109,7 +118,7 @@ def _effects(problem: Problem, rng: np.random.Generator, size: int) -> FloatArra
     floor = float(stats.norm.cdf(-np.log(e.median) / e.log_sd))
     u = stats.norm.ppf(floor + (1 - floor) * rng.uniform(size=size))
     theta = e.median * np.exp(e.log_sd * u)
-    if problem.study.design == "cohort-risk":  # the exposed risk stays below 1 (prior mass beyond < 1e-6)
+    if design_name(problem) == "cohort-risk":  # the exposed risk stays below 1 (prior mass beyond < 1e-6)
         theta = np.minimum(theta, (1 - 1e-12) / problem.study.baseline)
     return np.asarray(theta)
 
@@ -118,12 +127,12 @@ def _draw(problem: Problem, n: int, m: int, theta: FloatArray, rng: np.random.Ge
     """Counts of each study: (exposed count, comparison count) or (observed, expected) for one group."""
     s = problem.study
     b = s.baseline
-    if s.design == "cohort-risk":
+    if design_name(problem) == "cohort-risk":
         return rng.binomial(n, b * theta).astype(float), rng.binomial(m, b, theta.size).astype(float)
-    if s.design == "case-control":
+    if design_name(problem) == "case-control":
         p1 = theta * b / (1 + b * (theta - 1))
         return rng.binomial(n, p1).astype(float), rng.binomial(m, b, theta.size).astype(float)
-    if s.design == "cohort-rate":
+    if design_name(problem) == "cohort-rate":
         return (rng.poisson(n * s.years * b * theta).astype(float),
                 rng.poisson(m * s.years * b, theta.size).astype(float))
     expected = n * s.years * b
@@ -134,14 +143,14 @@ def _normal_p(problem: Problem, x: FloatArray, y: FloatArray, n: int, m: int, si
     """p-values of the normal statistic of each study (harm: the upper tail)."""
     s = problem.study
     with np.errstate(divide="ignore", invalid="ignore"):
-        if s.design in ("cohort-risk", "case-control"):
+        if design_name(problem) in ("cohort-risk", "case-control"):
             p1, p0 = x / n, y / m
             pooled = (x + y) / (n + m)
             se = np.sqrt(pooled * (1 - pooled) * (1 / n + 1 / m))
             cc = (1 / n + 1 / m) / 2 if s.continuity else 0.0
             diff = p1 - p0
             stat = np.where(sides == 1, diff - cc, np.abs(diff) - cc) / se
-        elif s.design == "cohort-rate":
+        elif design_name(problem) == "cohort-rate":
             t1, t0 = n * s.years, m * s.years
             rate = (x + y) / (t1 + t0)
             stat = np.log((x / t1) / (y / t0)) / np.sqrt(1 / (rate * t1) + 1 / (rate * t0))
@@ -162,19 +171,17 @@ def _unique_p(keys: NDArray[np.float64], one: object) -> FloatArray:
 
 def _exact_p(problem: Problem, x: FloatArray, y: FloatArray, n: int, m: int, sides: int) -> FloatArray:
     """p-values of the design's exact test (two-sided: central, twice the smaller tail)."""
-    s = problem.study
-
     def central(upper: float, lower: float) -> float:
         return upper if sides == 1 else min(1.0, 2 * min(upper, lower))
 
-    if s.design in ("cohort-risk", "case-control"):
+    if design_name(problem) in ("cohort-risk", "case-control"):
         def fisher(a: float, c: float) -> float:
             table = [[int(a), n - int(a)], [int(c), m - int(c)]]
             up = stats.fisher_exact(table, alternative="greater").pvalue
             return central(up, 1.0 if sides == 1 else stats.fisher_exact(table, alternative="less").pvalue)
 
         return _unique_p(np.column_stack([x, y]), fisher)
-    if s.design == "cohort-rate":
+    if design_name(problem) == "cohort-rate":
         share = n / (n + m)  # person-time share of the exposed (same years each)
 
         def conditional(a: float, total: float) -> float:
@@ -222,6 +229,9 @@ def simulate(
     """
     if studies < 1:
         raise DecideError(f"studies must be at least 1, but got {studies}", ("studies",))
+    if design_name(problem) not in SIMULATED:
+        raise DecideError(f"simulate: the {design_name(problem)} design cannot be simulated yet; "
+                          f"it can for {', '.join(SIMULATED)}", ("design",))
     if not decision.feasible or decision.n_per_group is None or decision.alpha is None:
         raise InfeasibleError(f"the policy {decision.policy} has no feasible design to simulate")
     assert decision.attained_alpha is not None and decision.power is not None
@@ -251,7 +261,7 @@ def simulate(
     loss = _loss_check(problem, decision, studies, null_hits, missed_sum, missed_sq)
     method = ("exact test (scipy.stats fisher_exact / binomtest / poisson tail)" if exact
               else "normal statistic (scipy.stats.norm)")
-    return Simulation(problem.title, decision.policy, int(seed), studies, problem.study.design,
+    return Simulation(problem.title, decision.policy, int(seed), studies, design_name(problem),
                       decision.test or "", rule_sides, alpha, n, m, false_alarm, power, loss, method)
 
 
