@@ -7,6 +7,7 @@ Exit status: 0 done; 1 a computation with no answer within the caps;
 from __future__ import annotations
 
 import json
+import os
 import re
 import sys
 import warnings
@@ -747,6 +748,66 @@ def simulate_command(
     if result.flagged:
         sys.stderr.write("decide simulate: the simulation differs from the analytic values by more than "
                          "4 standard errors (see the table)\n")
+
+
+def _check_output(path: Path, overwrite: bool) -> None:
+    """Refuse an output path that cannot be written, before any computation."""
+    from .scenario import files
+
+    check = getattr(files, "check_output_path", None)
+    if check is not None:
+        check(path, overwrite)
+        return
+    folder = path.parent
+    if path.is_dir():
+        raise DecideError(f"{path}: cannot be written: is a folder", (str(path),))
+    if not folder.is_dir():
+        raise DecideError(f"{path}: cannot be written: no such folder {str(folder)!r}", (str(path),))
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise DecideError(f"{path}: cannot be written: permission denied", (str(path),))
+    if path.exists() and not overwrite:
+        raise DecideError(f"{path}: already exists; not overwriting it (use --force)", (str(path),))
+
+
+@app.command("report")
+def report_command(
+    scenario: ScenarioPath,
+    output: Annotated[
+        Path, typer.Option("--output", "-o", help="Report file: FILE.html (self-contained) or FILE.md.")
+    ],
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Policy to include (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    quick: Annotated[
+        bool, typer.Option("--quick", help="A draft: skip the sensitivity, the draws and the simulation.")
+    ] = False,
+    seed: Annotated[int | None, typer.Option(help="Seed of the simulation (printed; default: a fresh one).")] = None,
+    force: Annotated[bool, typer.Option("--force", help="Overwrite an existing report.")] = False,
+) -> None:
+    """Write a report a board can read: question, inputs and sources, recommendation, figures, cautions."""
+    if output.suffix.lower() not in (".html", ".htm", ".md"):
+        _fail(f"decide report: --output must end in .html or .md, but got {str(output)!r}", 2)
+    run_api("report", lambda: _check_output(output, force))
+    loaded = run_api("report", lambda: load_scenario(scenario))
+    chosen = _chosen_policies("report", policy, policy_dir)
+    used = _seed(seed)
+    from .report.document import gather
+    from .report.html import write_report
+
+    steps = 2 if quick else 6
+    with _progress(True, "report") as bar:
+        done = [0]
+
+        def step(what: str) -> None:
+            done[0] += 1
+            if bar is not None:
+                bar(done[0], steps)
+
+        results = run_api("report", lambda: gather(loaded, chosen, quick, used, step))
+        written = run_api("report", lambda: write_report(results, output, overwrite=force))
+    for path in written:
+        sys.stderr.write(f"wrote {path}\n")
 
 
 def main() -> None:

@@ -33,13 +33,14 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 from pydantic_core import PydanticCustomError
 
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import DESIGNS, get_design
 
+from .sources import flatten_sources, input_key_paths, unknown_source_key
 from .uncertainty import UncertaintyModel
 
 if TYPE_CHECKING:
@@ -397,6 +398,26 @@ class ScenarioModel(BaseModel):
         default=None,
         description="Distributions of uncertain inputs, for 'decide sweep --draws' (optional).",
     )
+
+    sources: dict[str, Annotated[str, Field(max_length=500)]] = Field(
+        default_factory=dict,
+        description='Where each input came from: key path to a source, e.g. "prior.p_harm" = "expert panel, 2026" '
+        "(optional; shown in reports, inputs without one are marked 'no source given').",
+    )
+
+    @field_validator("sources", mode="before")
+    @classmethod
+    def _flat_sources(cls, value: Any) -> Any:
+        return flatten_sources(value) if isinstance(value, dict) else value
+
+    @model_validator(mode="after")
+    def _sources_name_inputs(self) -> ScenarioModel:
+        tables: dict[str, type[BaseModel]] = {"study": StudyModel, "effect": EffectModel, "prior": PriorModel,
+                  "consequences": ConsequencesModel, "constraints": ConstraintsModel}
+        bad = unknown_source_key(self.sources, input_key_paths(tables))
+        if bad is not None:
+            raise rule_error(f"sources.{bad}", "names no input of a scenario file (e.g. prior.p_harm)")
+        return self
 
     @model_validator(mode="after")
     def _uncertainty_fits(self) -> ScenarioModel:
