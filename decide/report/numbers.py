@@ -167,14 +167,14 @@ def number_range(low: Any, high: Any) -> str:
 
 
 def is_range(bounds: tuple[float, float] | None) -> bool:
-    """Whether ``bounds`` (low, high) is a range wider than rounding, not one value."""
-    return bounds is not None and not bounds[1] <= bounds[0] * (1 + 1e-6)
+    """Whether ``bounds`` (low, high) shows as a range, not as one value once rounded."""
+    return bounds is not None and number(bounds[0]) != number(bounds[1])
 
 
 def ratio_range(value: Any, bounds: tuple[float, float] | None = None) -> str:
     """A ratio that may be a range: ``5.8``, ``3.87 to 8.69``, ``6.43 or more``.
 
-    ``bounds`` (low, high) replaces ``value`` when it is wider than rounding;
+    ``bounds`` (low, high) replaces ``value`` when its ends differ once rounded;
     an unbounded high end reads "or more", a zero low end "or less".
 
     Examples
