@@ -12,7 +12,7 @@ import sys
 import warnings
 from enum import StrEnum
 from pathlib import Path
-from typing import Annotated, Any, NoReturn
+from typing import TYPE_CHECKING, Annotated, Any, NoReturn
 
 import typer
 from typer.core import TyperGroup
@@ -21,6 +21,7 @@ from .decision.audit import audit as _audit
 from .decision.optimize import compare as _compare
 from .decision.optimize import optimize as _optimize
 from .decision.prior import EffectPrior
+from .designs import DESIGNS, StudyDesign, get_design
 from .engine.solve import MAX_N_PER_GROUP
 from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
@@ -33,6 +34,7 @@ from .report.sentences import best_action, decision_record, recommendation
 from .report.text import one_line
 from .scenario import (
     LoadedScenario,
+    ScenarioError,
     load_policies,
     load_scenario,
     policy_json_schema,
@@ -59,6 +61,8 @@ _OPTIONS = {
     "effect.low": "--effect-low",
     "effect.high": "--effect-high",
     "effect.level": "--effect-level",
+    "p_harm": "--p-harm",
+    "per_subject": "--per-subject",
     "confidence": "--confidence",
 }
 _DEBUG = {"on": False}
@@ -149,8 +153,13 @@ def _root(
 
 
 def _option_words(exc: DecideError) -> str:
-    """The error message with the parameters it names spelt as options."""
+    """The error message with the parameters it names spelt as options.
+
+    Errors about a file keep the file's key paths: they name no option.
+    """
     message = str(exc)
+    if isinstance(exc, ScenarioError):
+        return message
     for name in exc.params:
         if name in _OPTIONS:
             message = re.sub(rf"(?<![\w-]){re.escape(name)}(?![\w-])", _OPTIONS[name], message)
@@ -195,11 +204,47 @@ def emit_json(data: Any) -> None:
     sys.stdout.write(json_text(data))
 
 
-class Design(StrEnum):
-    cohort_risk = "cohort-risk"
-    cohort_rate = "cohort-rate"
-    reference_rate = "reference-rate"
-    case_control = "case-control"
+def _by_design(attribute: str) -> str:
+    """One design attribute for every design, ``"value (names)"``, read from the registry."""
+    names: dict[str, list[str]] = {}
+    for name, d in DESIGNS.items():
+        if getattr(d, attribute):
+            names.setdefault(getattr(d, attribute), []).append(name)
+    return "; ".join(f"{value} ({', '.join(which)})" for value, which in names.items())
+
+
+if TYPE_CHECKING:
+    Design = str
+else:  # the --design choices are the registry's names
+    Design = StrEnum("Design", {name.replace("-", "_"): name for name in DESIGNS})
+DesignOption = Annotated[Design, typer.Option(help="Study design.", show_default=False)]
+DesignSettings = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--design-setting",
+        metavar="KEY=VALUE",
+        help="A setting of the design itself, KEY=VALUE (repeatable): "
+        + "; ".join(f"{k} ({name}): {text}" for name, d in DESIGNS.items() for k, text in d.settings.items())
+        + ".",
+    ),
+]
+
+
+def _design(name: str, settings: list[str] | None) -> StudyDesign:
+    """The named design with its own settings (``KEY=VALUE`` words) set."""
+    values: dict[str, float] = {}
+    for word in settings or ():
+        key, sep, value = word.partition("=")
+        try:
+            values[key.strip()] = float(value)
+        except ValueError:
+            sep = ""
+        if not sep:
+            raise DecideError(f"--design-setting must be KEY=VALUE with a number, but got {word!r}", ())
+    try:
+        return get_design(name).configure(values)
+    except DecideError as exc:
+        raise DecideError(str(exc).replace("design_settings.", "--design-setting "), ()) from None
 
 
 class Test(StrEnum):
@@ -210,27 +255,21 @@ class Test(StrEnum):
 
 @app.command("solve")
 def solve_command(
-    design: Annotated[Design, typer.Option(help="Study design.")],
-    baseline: Annotated[
-        float,
-        typer.Option(
-            help="Risk over follow-up (cohort-risk), rate per person-year (cohort-rate), "
-            "reference rate per person-year (reference-rate) or exposure prevalence "
-            "among controls (case-control)."
-        ),
-    ],
+    design: DesignOption,
+    baseline: Annotated[float, typer.Option(help="By design: " + _by_design("baseline_name") + ".")],
     effect: Annotated[
-        float | None, typer.Option(help="Risk ratio, rate ratio, SIR or odds ratio; leave out to solve.")
+        float | None, typer.Option(help="By design: " + _by_design("effect_name") + "; leave out to solve.")
     ] = None,
     alpha: Annotated[float | None, typer.Option(help="Significance level; leave out to solve.")] = None,
     power: Annotated[float | None, typer.Option(help="Power; leave out to solve.")] = None,
     n_per_group: Annotated[
         int | None,
-        typer.Option(help="Exposed subjects (cohorts) or cases (case-control); leave out to solve."),
+        typer.Option(help="By design: " + _by_design("size_name") + "; leave out to solve."),
     ] = None,
     allocation: Annotated[
-        float | None, typer.Option(help="Unexposed per exposed, or controls per case (default 1).")
+        float | None, typer.Option(help="By design (default 1): " + _by_design("allocation_name") + ".")
     ] = None,
+    design_setting: DesignSettings = None,
     years: Annotated[
         float | None, typer.Option(help="Follow-up years per subject, person-time designs (default 1).")
     ] = None,
@@ -245,7 +284,7 @@ def solve_command(
     """Solve for whichever of alpha, power, size or effect is left out."""
     def call() -> Any:
         return _solve(
-            design.value,
+            _design(design, design_setting),
             baseline=baseline,
             alpha=alpha,
             power=power,
@@ -339,7 +378,7 @@ def optimize_command(
         con.print(render.inputs_table(_inputs(loaded), currency))
         con.print(render.decision_table(decision, loaded.title, currency))
     if not decision.feasible:
-        raise typer.Exit(1)
+        _fail(f"decide optimize: cannot be done: {decision.reason}", 1)
 
 
 @app.command("compare")
@@ -438,7 +477,7 @@ def interpret_command(
 
 @app.command("audit")
 def audit_command(
-    design: Annotated[Design, typer.Option(help="Study design.")],
+    design: DesignOption,
     baseline: Annotated[float, typer.Option(help="Baseline, as in 'decide solve'.")],
     alpha: Annotated[float, typer.Option(help="The protocol's significance level.")],
     effect: Annotated[float, typer.Option(help="The effect the protocol was sized for.")],
@@ -446,7 +485,8 @@ def audit_command(
     per_subject: Annotated[float, typer.Option(help="Study cost per enrolled subject.")],
     power: Annotated[float | None, typer.Option(help="The power the protocol was sized for.")] = None,
     n_per_group: Annotated[int | None, typer.Option(help="The protocol's size (instead of --power).")] = None,
-    allocation: Annotated[float | None, typer.Option(help="Unexposed per exposed, or controls per case.")] = None,
+    allocation: Annotated[float | None, typer.Option(help="By design: " + _by_design("allocation_name") + ".")] = None,
+    design_setting: DesignSettings = None,
     years: Annotated[float | None, typer.Option(help="Follow-up years per subject.")] = None,
     sides: Annotated[int, typer.Option(help="1 = one-sided test of harm, 2 = two-sided.")] = 1,
     test: Annotated[Test, typer.Option(help="normal, exact, or auto.")] = Test.auto,
@@ -484,7 +524,7 @@ def audit_command(
 
     def call() -> Any:
         return _audit(
-            design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
+            _design(design, design_setting), baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
             per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
             years=years, sides=sides, test=test.value, missed_hazard=missed_hazard,
             false_alarm=false_alarm, fixed=fixed_cost, prior=prior,

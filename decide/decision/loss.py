@@ -38,6 +38,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import special
 
+from .._checks import EFFECT_RANGE
 from ..designs._base import FloatArray, NormalMoments
 from ..engine import exact as _exact
 from ..engine import normal as _normal
@@ -112,7 +113,8 @@ class LossModel:
         """Quadrature nodes kept below the design's effect limit, and weights."""
         nodes, w = self.problem.effect.nodes(panels, self.kink)
         limit = float(self.setting.design.effect_limit(self.setting.baseline))
-        return np.minimum(nodes, limit * (1 - 1e-9)), w
+        low, high = EFFECT_RANGE  # nodes beyond carry less than 1e-6 of the mass (checked by Problem)
+        return np.clip(nodes, low, min(limit * (1 - 1e-9), high)), w
 
     @cached_property
     def normal_moments(self) -> tuple[NormalMoments, NormalMoments]:
@@ -366,11 +368,8 @@ def _power_and_miss(
         e = effects[part][None, :]
         cm = s.design.count_model(n * one, s.baseline * one, e, s.allocation * one, s.years * one)
         grid = _exact.build_grid(cm, s.sides)
-        reject = grid.p_value[0] <= nominal * (1 + _exact.REL_TOL)
-        caught = reject.astype(np.float64) @ grid.other[0]
-        kept = (~reject).astype(np.float64) @ grid.other[0]
-        power[part] = grid.alt_exposed[0] @ caught
-        miss[part] = grid.alt_exposed[0] @ kept
+        caught, kept = _exact.split_mass(grid, grid.p_value <= nominal * (1 + _exact.REL_TOL))
+        power[part], miss[part] = caught[0], kept[0]
         if miss[part].max() < 1e-16:  # larger effects are caught for certain
             later = order[np.searchsorted(effects[order], effects[part].max(), side="right"):]
             power[later], miss[later] = 1.0, 0.0

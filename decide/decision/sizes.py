@@ -65,6 +65,8 @@ def _largest_affordable(model: LossModel) -> int | None:
     if cons.budget is not None and c.per_subject > 0:
         per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         guess = np.floor((cons.budget - c.fixed) / per) + 2
+        if not guess <= SIZE_CEILING:  # beyond the largest size considered (or inf): that size binds
+            return SIZE_CEILING if top is None else min(top, SIZE_CEILING)
         cand = np.arange(max(1.0, guess - 4), guess + 1)
         fits = cand[model.study_cost(cand) <= cons.budget * (1 + 1e-12)]
         n_budget = int(fits.max()) if fits.size else 0
@@ -183,7 +185,7 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) 
             a = float(cand[j - 1]) if j > 0 else a
         else:
             a = float(cand[-1])
-    span = EVERY_SIZE["one-group" if model.setting.design.allocation_name is None else "two-group"]
+    span = EVERY_SIZE["one-group" if model.setting.design.groups == 1 else "two-group"]
     early_sizes = np.arange(lo, b) if b - lo <= span else np.arange(max(lo, b - 64), b)
     if early_sizes.size:
         early = choose_tests(model, policy, early_sizes).meets_rules
@@ -202,7 +204,7 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     """
     if policy.alpha_rule != "fixed" or policy.power is None or policy.alpha is None:
         return None, OK
-    if model.setting.design.allocation_name is not None:
+    if model.setting.design.groups != 1:
         return None, OK  # two-group designs barely saw-tooth; the general search is faster
     s, study = model.setting, model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)

@@ -43,9 +43,15 @@ from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
 #: Default cap on the exposed group (or cases) for size solves.
-MAX_N_PER_GROUP = 10**9
-#: Default cap on the effect for effect solves where the design sets none.
-MAX_EFFECT = 1e4
+MAX_N_PER_GROUP = _checks.LARGEST_SIZE
+#: Default cap on the effect for effect solves where the design sets none
+#: (the largest effect decide considers).
+MAX_EFFECT = _checks.EFFECT_RANGE[1]
+#: The largest critical count the one-group exact size search goes to.
+MAX_CRITICAL_COUNT = 2**20
+#: The most count pairs, over all the grids it builds, one exact size scan may
+#: go through (ten seconds or so at the limit).
+MAX_SEARCH_PAIRS = 10_000_000
 
 
 @dataclass(frozen=True)
@@ -180,12 +186,24 @@ def normal_effect(
 
 
 def _exact_curve(setting: Setting, alpha: float, effect: float) -> Callable[[FloatArray], FloatArray]:
+    """Exact power as a function of the size, within a budget of :data:`MAX_SEARCH_PAIRS`."""
     d = setting.design
+    spent = [0.0]
 
     def curve(n: FloatArray) -> FloatArray:
         n = np.asarray(n, dtype=np.float64)
         flat = n.ravel()
         full = np.ones_like(flat)
+        b, r, y = (float(v) * full for v in (setting.baseline, setting.allocation, setting.years))
+        pairs = _exact.count_pairs(d.count_model(flat, b, effect * full[:, None], r, y))
+        # a one-group grid needs no conditional rows: about an eighth of the work per count
+        spent[0] += float(pairs.sum()) / (8.0 if d.groups == 1 else 1.0)
+        if spent[0] > MAX_SEARCH_PAIRS:
+            raise InfeasibleError(
+                f"n_per_group: the exact size search would go through more than {MAX_SEARCH_PAIRS:,} count "
+                "pairs, the limit that keeps its time bounded; use the normal test, which agrees closely "
+                "at counts this large"
+            )
         pw, _ = exact_power(
             d,
             alpha * full,
@@ -287,7 +305,7 @@ EVERY_SIZE = {"one-group": 200_000, "two-group": 200}
 
 
 def _every_size_limit(setting: Setting) -> int:
-    return EVERY_SIZE["one-group" if setting.design.allocation_name is None else "two-group"]
+    return EVERY_SIZE["one-group" if setting.design.groups == 1 else "two-group"]
 
 
 def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checked: int) -> tuple[int, int, int]:
@@ -300,10 +318,10 @@ def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checke
     return n_first, max(n_first, n_stable), checked
 
 
-def _reference_rate_sizes(
+def _poisson_test_sizes(
     setting: Setting, alpha: float, target: float, effect: float, cap: int
 ) -> tuple[int, int, int]:
-    """Exact one-sided sizes for the reference-rate design, segment by segment.
+    """Exact one-sided sizes for the Poisson test against an expected count, segment by segment.
 
     With ``u`` expected cases per subject, the critical count is ``c`` for
     ``E = n*u`` in ``(e_(c-1), e_c]`` where ``P(Poisson(e_c) >= c) = alpha``,
@@ -311,7 +329,10 @@ def _reference_rate_sizes(
     both follow from the regularized incomplete gamma function, so every
     segment is solved in closed form.
     """
-    u = float(setting.baseline * setting.years)
+    one = np.ones(1)
+    model = setting.design.count_model(one, setting.baseline * one, one, setting.allocation * one, setting.years * one)
+    assert model.reference_mean is not None
+    u = float(model.reference_mean[0])  # expected cases per subject under no effect
     c_max = 64
     while True:
         c = np.arange(1, c_max + 1, dtype=np.float64)
@@ -331,6 +352,12 @@ def _reference_rate_sizes(
         elif start[-1] > cap:
             raise InfeasibleError(
                 f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}"
+            )
+        if c_max >= MAX_CRITICAL_COUNT:
+            raise InfeasibleError(
+                f"n_per_group: the exact test would need a critical count above {MAX_CRITICAL_COUNT:,}, "
+                "the limit that keeps the search bounded; use the normal test, which agrees closely "
+                "at counts this large"
             )
         c_max *= 2
     n_first = int(reach[first_ok])
@@ -378,7 +405,8 @@ def solve(
     Parameters
     ----------
     design : str or StudyDesign
-        ``cohort-risk``, ``cohort-rate``, ``reference-rate`` or ``case-control``.
+        A design name (the keys of :data:`decide.designs.DESIGNS`) or a
+        configured design (:meth:`~decide.designs.StudyDesign.configure`).
     baseline : float or array_like
         Risk over follow-up, rate per person-year, reference rate per
         person-year, or exposure prevalence among controls, by design.
@@ -433,17 +461,27 @@ def solve(
     unknown = _only_unknown(
         {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect}
     )
+    named = {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect,
+             "baseline": baseline, "allocation": allocation, "years": years}
+    arrays = any(v is not None and np.ndim(v) for v in named.values())
+    if arrays:
+        given = {k: v for k, v in named.items() if v is not None}
+        _checks.broadcast(tuple(given), *(_checks.as_float_array(k, v) for k, v in given.items()))
+    else:
+        alpha, power, effect = (None if v is None else _checks.scalar(k, v)
+                                for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
     check_alpha_power(alpha, power)
     if n_per_group is not None:
-        _checks.whole_at_least_one("n_per_group", n_per_group)
-    cap = int(_checks.whole_at_least_one("max_n_per_group", max_n_per_group))
+        whole = _checks.whole_at_least_one("n_per_group", n_per_group)
+        n_per_group = whole if arrays else int(_checks.scalar("n_per_group", whole))
+    cap = int(_checks.scalar("max_n_per_group", _checks.whole_at_least_one("max_n_per_group", max_n_per_group)))
     if effect is not None:
         check_effect(setting, effect)
         _check_detectable(unknown, setting.sides, np.asarray(effect, dtype=np.float64))
-    if any(v is not None and np.ndim(v) for v in (alpha, power, n_per_group, effect, baseline, allocation, years)):
-        given = {k: v for k, v in zip(UNKNOWNS, (alpha, power, n_per_group, effect), strict=True) if v is not None}
-        fields = solve_many(solve, setting, unknown, given, cap)
+    if arrays:
+        quantities = {k: v for k, v in zip(UNKNOWNS, (alpha, power, n_per_group, effect), strict=True) if v is not None}
+        fields = solve_many(solve, setting, unknown, quantities, cap)
         return Solution(design=setting.design.name, solved_for=unknown, sides=setting.sides, **fields)
     solver = {"power": _solve_power, "n_per_group": _solve_size, "alpha": _solve_alpha, "effect": _solve_effect}
     return solver[unknown](setting, alpha, power, n_per_group, effect, cap)
@@ -482,18 +520,21 @@ def _finish(
     nn = np.asarray(float(n))
     cells = d.cell_counts(nn, b, np.asarray(effect), r, y)
     smallest = float(res.smallest_expected_count)
+    no_exact = "" if d.exact_offered(r).all() else d.no_exact_reason
     if use_exact:
         test = "exact"
-        method = d.exact_method
+        method = d.exact_method + d.describe_settings()
     else:
         test = "normal-cc" if setting.continuity else "normal"
-        method = d.normal_method + (", continuity-corrected" if setting.continuity else "")
+        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if setting.continuity else "")
     sided = "one-sided (harm)" if setting.sides == 1 else "two-sided (equal tails)"
     return Solution(
         design=d.name,
         solved_for=solved_for,
         test=test,
-        test_reason=TestChoice(requested=setting.test, exact=use_exact, smallest_count=smallest).reason,
+        test_reason=TestChoice(
+            requested=setting.test, exact=use_exact, smallest_count=smallest, no_exact=no_exact
+        ).reason,
         method=f"{sided} {method}",
         sides=setting.sides,
         baseline=float(b),
@@ -539,8 +580,8 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
                 f"n_per_group: the normal test needs {n_normal:,} per group, more than the cap of {cap:,}"
             )
         return _finish(setting, "n_per_group", alpha, n_normal, effect, False, target)
-    if setting.design.name == "reference-rate" and setting.sides == 1:
-        first, stable, checked = _reference_rate_sizes(setting, alpha, target, effect, cap)
+    if setting.design.exact_test == "poisson" and setting.sides == 1:
+        first, stable, checked = _poisson_test_sizes(setting, alpha, target, effect, cap)
     else:
         first, stable, checked = _exact_size_scan(setting, alpha, target, effect, guess, cap)
     if first > cap:

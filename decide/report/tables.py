@@ -18,7 +18,7 @@ from ..designs import get_design
 from . import numbers as nb
 from . import rule_words
 from .sentences import best_action, decision_record, recommendation
-from .text import CAUTION, POSTERIOR_NOTE, RANGE_NOTE, literal, markdown_literal
+from .text import CAUTION, NO_FINITE_RATIO, POSTERIOR_NOTE, RANGE_NOTE, literal, markdown_literal
 
 #: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
@@ -183,8 +183,9 @@ def to_markdown(
     lines += ["| " + " | ".join(_HEAD) + " |", "|" + "---|" * len(_HEAD)]
     lines += _markdown_now_rows(decisions, cur)
     lines += [_markdown_row(d, cur) for d in decisions if d.feasible]
-    lines += ["", f"Stated cost ratio (miss : false alarm): {nb.number(decisions[0].stated_cost_ratio)}. "
-              f"{POSTERIOR_NOTE}"]
+    ratio = decisions[0].stated_cost_ratio
+    stated = NO_FINITE_RATIO if ratio is None else nb.number(ratio)
+    lines += ["", f"Stated cost ratio (miss : false alarm): {stated}. {POSTERIOR_NOTE}"]
     if any(nb.is_range(d.implied_cost_ratio_range) for d in decisions):
         lines += ["", RANGE_NOTE]
     lines += _markdown_unavailable(decisions, cur)

@@ -6,7 +6,7 @@ Whatever is wrong with the file (it is missing, it is not TOML, a key is
 unknown, a value has the wrong type or range, the constraints leave no study
 possible) raises :class:`ScenarioError` with a one-line message::
 
-    scenario.toml: consequences.false_alarm: must be >= 0 (got -3)
+    scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)
 
 :func:`scenario_template` gives a commented template that loads as it is;
 :func:`scenario_json_schema` the JSON Schema of the format.
@@ -27,6 +27,7 @@ from pydantic.json_schema import GenerateJsonSchema, JsonSchemaValue
 from pydantic_core import core_schema
 
 from decide.decision.problem import Problem
+from decide.designs import DESIGNS
 from decide.errors import DecideError
 
 from ._messages import (
@@ -79,11 +80,22 @@ def read_toml(
     except OSError as e:
         raise cls(file, "", f"cannot be read: {e.strerror or e}") from None
     try:
-        return tomllib.loads(data.decode("utf-8"))
+        text = data.decode("utf-8")
     except UnicodeDecodeError as e:
         raise cls(file, "", f"is not UTF-8 text (bad byte at offset {e.start})") from None
+    return parse_toml(text, file, cls)
+
+
+def parse_toml(text: str, file: str, cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
+    """Parse TOML text; whatever is wrong with it becomes one line naming ``file``."""
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
         raise from_toml_error(file, e, cls) from None
+    except RecursionError:
+        raise cls(file, "", "not valid TOML here: arrays or tables are nested too deeply to read") from None
+    except ValueError as e:  # Python's own limit on the digits of a whole number
+        raise cls(file, "", f"not valid TOML here: {str(e).split(';')[0]}") from None
 
 
 def validate_model(
@@ -126,11 +138,7 @@ def load_scenario(path: str | os.PathLike[str]) -> LoadedScenario:
 
 def parse_scenario(text: str, file: str = "<scenario>") -> LoadedScenario:
     """Validate a scenario given as TOML text (``file`` names it in messages)."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as e:
-        raise from_toml_error(file, e) from None
-    return scenario_from_data(data, file)
+    return scenario_from_data(parse_toml(text, file), file)
 
 
 class _TomlJsonSchema(GenerateJsonSchema):
@@ -162,9 +170,13 @@ def scenario_json_schema() -> dict[str, Any]:
 def scenario_template() -> str:
     """A commented scenario file to start from; it loads as it is.
 
-    Its numbers are an invented example, and it says so.
+    Its numbers are an invented example, and it says so.  The designs it
+    lists are read from the registry.
     """
-    return (resources.files("decide.scenario") / "template.toml").read_text(encoding="utf-8")
+    text = (resources.files("decide.scenario") / "template.toml").read_text(encoding="utf-8")
+    designs = "".join(f"# {name:<22}{d.title}\n" for name, d in DESIGNS.items())
+    baselines = "".join(f"# {name:<22}{d.baseline_name}\n" for name, d in DESIGNS.items())
+    return text.replace("# {designs}\n", designs).replace("# {baselines}\n", baselines)
 
 
 def write_text_atomic(path: str | os.PathLike[str], text: str, overwrite: bool = False) -> Path:
