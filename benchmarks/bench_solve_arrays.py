@@ -5,7 +5,7 @@ and their ratio side by side.  No timing is asserted anywhere.
 
 Workloads (size solves of the cohort-risk design, 300 invented design points each):
 
-1. large studies (baselines 0.05 to 0.3, risk ratios 1.05 to 1.3): every cell
+1. large studies (baselines 0.1 to 0.3, risk ratios 1.02 to 1.06): every cell
    expects over 1,000 cases, the normal test runs and nothing needs a grid;
 2. mid-sized studies (baselines 0.01 to 0.3, risk ratios 1.2 to 2): the
    normal test runs, and its real false-alarm probability is summed over an
@@ -41,7 +41,7 @@ def _loop(inputs: dict[str, np.ndarray]) -> None:
 def main() -> None:
     rng = np.random.default_rng(7)
     k = 300
-    large = {"baseline": np.exp(rng.uniform(np.log(0.05), np.log(0.3), k)), "effect": rng.uniform(1.05, 1.3, k),
+    large = {"baseline": np.exp(rng.uniform(np.log(0.1), np.log(0.3), k)), "effect": rng.uniform(1.02, 1.06, k),
              "alpha": np.full(k, 0.05), "power": rng.uniform(0.6, 0.95, k)}
     mid = {"baseline": np.exp(rng.uniform(np.log(0.01), np.log(0.3), k)), "effect": rng.uniform(1.2, 2.0, k),
            "alpha": np.full(k, 0.05), "power": rng.uniform(0.6, 0.95, k)}
