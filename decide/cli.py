@@ -10,6 +10,8 @@ import json
 import re
 import sys
 import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any, NoReturn
@@ -31,7 +33,7 @@ from .report.inputs import scenario_inputs
 from .report.numbers import for_json
 from .report.progress import busy
 from .report.sentences import best_action, decision_record, recommendation
-from .report.text import one_line
+from .report.text import CAUTION, one_line
 from .scenario import (
     LoadedScenario,
     ScenarioError,
@@ -56,6 +58,10 @@ _OPTIONS = {
     "design": "--design",
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
+    "vary": "--vary",
+    "draws": "--draws",
+    "studies": "--studies",
+    "points": "--points",
     "missed_hazard": "--missed-hazard",
     "false_alarm": "--false-alarm",
     "effect.low": "--effect-low",
@@ -576,6 +582,171 @@ def new_command(
     """Write a commented scenario template to start from."""
     run_api("new", lambda: write_text_atomic(path, scenario_template(), overwrite=force))
     sys.stderr.write(f"wrote {path}; edit it, then run: decide compare {path}\n")
+
+
+# --------------------------------------------------------------------------
+# sweep and simulate
+
+
+@contextmanager
+def _progress(show: bool, what: str) -> Iterator[Callable[[int, int], None] | None]:
+    """A rich progress bar on stderr (only at a terminal), as a ``progress(done, total)`` callback."""
+    if not show or not sys.stderr.isatty():
+        yield None
+        return
+    from rich.progress import Progress
+
+    with Progress(console=render.make_console(stderr=True), transient=True) as bar:
+        task = bar.add_task(what, total=None)
+
+        def update(done: int, total: int) -> None:
+            bar.update(task, completed=done, total=total)
+
+        yield update
+
+
+def _parse_vary(items: list[str]) -> list[tuple[str, float, float]]:
+    out = []
+    for item in items:
+        name, _, span = item.partition("=")
+        lo, sep, hi = span.partition(":")
+        try:
+            if not (name and sep):
+                raise ValueError
+            out.append((name.strip(), float(lo), float(hi)))
+        except ValueError:
+            _fail(f"decide sweep: --vary must look like key.path=low:high, but got {item!r}", 2)
+    return out
+
+
+def _seed(seed: int | None) -> int:
+    if seed is not None:
+        if seed < 0:
+            _fail(f"decide: --seed must be >= 0, but got {seed}", 2)
+        return seed
+    import numpy as np
+
+    return int(np.random.SeedSequence().entropy) % 2**63  # type: ignore[arg-type]
+
+
+@app.command("sweep")
+def sweep_command(
+    scenario: ScenarioPath,
+    vary: Annotated[
+        list[str] | None,
+        typer.Option("--vary", help="Range of an input, key.path=low:high (repeatable), e.g. prior.p_harm=0.05:0.5."),
+    ] = None,
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Standard to compare (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    two_way: Annotated[bool, typer.Option("--two-way", help="A grid over two inputs (see --axes).")] = False,
+    axes: Annotated[
+        str, typer.Option(help="The two inputs of --two-way, x,y.")
+    ] = "prior.p_harm,consequences.cost_ratio",
+    points: Annotated[int, typer.Option(help="Grid points per axis of --two-way.")] = 25,
+    draws: Annotated[
+        int | None, typer.Option(help="Probabilistic analysis with this many draws from [uncertainty].")
+    ] = None,
+    seed: Annotated[int | None, typer.Option(help="Seed of the draws (printed; default: a fresh one).")] = None,
+    as_json: JsonFlag = False,
+    as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
+) -> None:
+    """Does the choice survive doubt? One-way ranges and break-even values, a two-way grid, or draws."""
+    from .decision import inputs as _inputs
+    from .decision import sensitivity as _sens
+    from .decision import uncertainty as _unc
+    from .report import sweep as _show
+    from .scenario.uncertainty import sweep_range
+
+    if as_json and as_csv:
+        _fail("decide sweep: choose one of --json and --csv", 2)
+    if draws is not None and two_way:
+        _fail("decide sweep: choose one of --two-way and --draws", 2)
+    if draws is not None and draws < 1:
+        _fail(f"decide sweep: --draws must be at least 1, but got {draws}", 2)
+    if points < 2:
+        _fail(f"decide sweep: --points must be at least 2, but got {points}", 2)
+    spans = _parse_vary(vary or [])
+    loaded = run_api("sweep", lambda: load_scenario(scenario))
+    problem = loaded.problem
+    model_unc = loaded.model.uncertainty
+    dists = model_unc.to_inputs() if model_unc is not None else {}
+    ranges = {n: run_api("sweep", lambda n=n, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
+              for n, lo, hi in spans}
+    run_api("sweep", lambda: _unc.check_uncertainty(problem, dists))
+    unit = loaded.currency or ""
+    quiet = as_json or as_csv
+    if draws is not None:
+        if not dists:
+            _fail(f"decide sweep: --draws needs an [uncertainty] table in {scenario}", 2)
+        chosen = _chosen_policies("sweep", policy, policy_dir)
+        used = _seed(seed)
+        with _progress(not quiet, "draws") as bar:
+            result = run_api("sweep", lambda: _unc.probabilistic(problem, dists, draws, used, chosen, bar))
+        _emit(result, as_json, as_csv, _show.probabilistic_csv, lambda: _show.probabilistic_tables(result, unit))
+        return
+    if two_way:
+        names = [a.strip() for a in axes.split(",")]
+        if len(names) != 2 or names[0] == names[1]:
+            _fail(f"decide sweep: --axes must name two different inputs, x,y, but got {axes!r}", 2)
+        for n in names:
+            run_api("sweep", lambda n=n: _inputs.check_name(problem, n))
+        x, y = (ranges.get(n) or run_api("sweep", lambda n=n: _inputs.default_range(problem, n)) for n in names)
+        with _progress(not quiet, "grid") as bar:
+            grid = run_api("sweep", lambda: _sens.two_way(problem, x, y, points, bar))
+        _emit(grid, as_json, as_csv, _show.two_way_csv, lambda: _show.two_way_tables(grid))
+        return
+    for name, dist in dists.items():
+        if name not in ranges and name in _inputs.input_names(problem):
+            lo, hi = sweep_range(dist)
+            if hi > lo:
+                ranges[name] = run_api("sweep", lambda n=name, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
+    chosen = _chosen_policies("sweep", policy, policy_dir)
+    names_ = list(dict.fromkeys([*_inputs.input_names(problem), *ranges]))
+    with _progress(not quiet, "inputs") as bar:
+        tor = run_api("sweep", lambda: _sens.tornado(problem, chosen, ranges, names_, bar))
+    _emit(tor, as_json, as_csv, _show.tornado_csv, lambda: _show.tornado_tables(tor, unit))
+
+
+def _emit(result: Any, as_json: bool, as_csv: bool, to_csv: Callable[[Any], str], table: Callable[[], Any]) -> None:
+    if as_json:
+        emit_json({**result.to_dict(), "caution": CAUTION})
+    elif as_csv:
+        sys.stdout.write(to_csv(result))
+    else:
+        render.make_console().print(table())
+
+
+@app.command("simulate")
+def simulate_command(
+    scenario: ScenarioPath,
+    policy: Annotated[str, typer.Option(help="The policy whose design is simulated.")] = "loss-optimal",
+    policy_dir: PolicyDirs = None,
+    studies: Annotated[int, typer.Option(help="Studies simulated under each hypothesis.")] = 100_000,
+    seed: Annotated[int | None, typer.Option(help="Seed of the simulation (printed; default: a fresh one).")] = None,
+    as_json: JsonFlag = False,
+    as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
+) -> None:
+    """Simulate studies of a chosen design and check its false-alarm probability, power and loss."""
+    from .decision.optimize import decide_policy
+    from .decision.simulate import simulate
+    from .report import sweep as _show
+
+    if as_json and as_csv:
+        _fail("decide simulate: choose one of --json and --csv", 2)
+    if studies < 1:
+        _fail(f"decide simulate: --studies must be at least 1, but got {studies}", 2)
+    used = _seed(seed)
+    loaded = run_api("simulate", lambda: load_scenario(scenario))
+    (chosen,) = _chosen_policies("simulate", [policy], policy_dir)
+    decision = run_api("simulate", lambda: decide_policy(loaded.problem, chosen))
+    result = run_api("simulate", lambda: simulate(loaded.problem, decision, studies, used))
+    unit = loaded.currency or ""
+    _emit(result, as_json, as_csv, _show.simulation_csv, lambda: _show.simulation_table(result, unit))
+    if result.flagged:
+        sys.stderr.write("decide simulate: the simulation differs from the analytic values by more than "
+                         "4 standard errors (see the table)\n")
 
 
 def main() -> None:

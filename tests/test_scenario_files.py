@@ -177,7 +177,7 @@ def test_template_shows_every_key() -> None:
     keys = _all_keys()
     assert {"design", "ratio", "p_harm", "horizon_years", "budget"} <= set(keys)
     for key in keys:
-        assert re.search(rf"^#? ?{key} = ", text, flags=re.MULTILINE), key
+        assert re.search(rf"^#? ?({key} = |\[{key}\])", text, flags=re.MULTILINE), key
     for table in ("study", "effect", "prior", "consequences", "constraints"):
         assert f"\n[{table}]\n" in text
 

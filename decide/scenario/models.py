@@ -40,6 +40,8 @@ from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import DESIGNS, get_design
 
+from .uncertainty import UncertaintyModel
+
 if TYPE_CHECKING:
     DesignName = str
 else:  # the designs' names, read from the registry
@@ -391,6 +393,16 @@ class ScenarioModel(BaseModel):
         default_factory=ConstraintsModel,
         description="Limits every policy must respect (all optional).",
     )
+    uncertainty: UncertaintyModel | None = Field(
+        default=None,
+        description="Distributions of uncertain inputs, for 'decide sweep --draws' (optional).",
+    )
+
+    @model_validator(mode="after")
+    def _uncertainty_fits(self) -> ScenarioModel:
+        if self.uncertainty is not None:
+            self.uncertainty.check_against(self.consequences.missed_hazard is None)
+        return self
 
     def to_problem(self) -> Problem:
         """The core decision problem (its constructors may raise DecideError)."""
