@@ -454,10 +454,12 @@ API_CASES: list[tuple[str, Callable[[], Any], str]] = [
      r"^allocation must be"),
     ("power: allocation for one group", lambda: power("reference-rate", 0.05, 100, 3.0, 0.01, allocation=2.0),
      r"^allocation does not apply"),
-    ("solve: array alpha", lambda: solve("cohort-risk", baseline=0.01, alpha=np.array([0.05, 0.1]), power=0.8,  # type: ignore[arg-type]
-                                         effect=3.0), r"^alpha must be a single number"),
-    ("solve: list size", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, n_per_group=[10, 20],  # type: ignore[arg-type]
-                                       effect=3.0), r"^n_per_group must be a single"),
+    # solve() takes arrays (solved elementwise); they must broadcast, and sizes must be whole
+    ("solve: shapes that do not broadcast",
+     lambda: solve("cohort-risk", baseline=0.01, alpha=np.array([0.05, 0.1]), power=np.array([0.8, 0.85, 0.9]),
+                   effect=3.0), r"^alpha, power, effect, baseline must have shapes that broadcast together"),
+    ("solve: a size of 10.5 in a list", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05,
+                                                      n_per_group=[10, 10.5], effect=3.0), r"^n_per_group must be"),
     ("solve: 400-digit cap", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, power=0.8, effect=3.0,
                                            max_n_per_group=10**400), r"^max_n_per_group must be"),
     ("solve: sides 1.0", lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, power=0.8, effect=3.0,

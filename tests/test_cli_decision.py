@@ -152,7 +152,15 @@ def test_compare_csv_parses_and_matches_json(compared: dict[str, list[dict[str, 
     assert result.exit_code == 0, result.stderr
     rows = list(csv.DictReader(io.StringIO(result.stdout)))
     ref = compared["trade-case-control"]
-    assert [r["policy"] for r in rows] == [r["policy"] for r in ref]
+    # the two no-study actions come first, then the policies in the JSON's order
+    assert [r["policy"] for r in rows] == ["flag-now", "clear-now"] + [r["policy"] for r in ref]
+    now, rows = rows[:2], rows[2:]
+    document = strict_json(run("compare", REPO / "scenarios" / "trade-case-control.toml", "--json").stdout)
+    for row in now:
+        loss = document["no_study"][row["policy"].replace("-", "_")]
+        assert row["action"] == row["policy"]
+        assert float(row["expected_loss"]) == pytest.approx(loss, rel=1e-12)
+        assert float(row["regret"]) == pytest.approx(loss - document["best"]["expected_loss"], rel=1e-12)
     for row, want in zip(rows, ref, strict=True):
         for key in ("alpha", "attained_alpha", "beta", "expected_loss", "regret", "implied_cost_ratio"):
             if want[key] is None:
@@ -170,9 +178,65 @@ def test_compare_markdown_carries_the_caution() -> None:
     assert CAUTION in text
     title = load_scenario(REPO / "scenarios" / "solvent-cohort.toml").title
     assert text.startswith(f"# {title}")
-    assert "| policy |" in text
+    assert "| choice |" in text
     # the infeasible policies are explained
     assert "2,150" in text
+
+
+def markdown_tables(text: str) -> list[list[list[str]]]:
+    """The rows of each Markdown table in ``text`` (header first), cells stripped."""
+    tables: list[list[list[str]]] = []
+    previous = ""
+    for line in text.splitlines():
+        if line.startswith("|") and not line.startswith("|---"):
+            if not previous.startswith("|"):
+                tables.append([])
+            tables[-1].append([c.strip() for c in line.replace("\\|", "/").strip("|").split("|")])
+        previous = line
+    return tables
+
+
+def test_compare_markdown_sets_deciding_now_first_and_unavailable_policies_apart() -> None:
+    path = REPO / "scenarios" / "solvent-cohort.toml"
+    document = json.loads(run("compare", path, "--json").stdout)
+    main, apart = markdown_tables(run("compare", path, "--markdown").stdout)[:2]  # the rules' tables follow
+    assert apart[0][1].startswith("would need")
+    rows = {r[0]: dict(zip(main[0], r, strict=True)) for r in main[1:]}
+    best = document["best"]["expected_loss"]
+    for title, key in (("Flag now, no study", "flag_now"), ("Clear now, no study", "clear_now")):
+        loss = document["no_study"][key]
+        assert rows[title]["expected loss"] == f"{loss:,.0f} EUR"
+        assert rows[title]["regret"] == f"{loss - best:,.0f} EUR"
+    out = [p for p in document["policies"] if not p["feasible"]]
+    assert out, "the scenario has policies the constraints rule out"
+    needs = {r[0]: dict(zip(apart[0], r, strict=True)) for r in apart[1:]}
+    for p in out:
+        assert p["title"] not in rows  # never in the table of choices, beside the optimum
+        assert needs[p["title"]]["would need: per group"] == f"{p['n_per_group']:,}"
+        assert needs[p["title"]]["if allowed, expected loss"] == f"{p['expected_loss']:,.0f} EUR"
+    ranged = rows["Loss-optimal"]["implied cost ratio"]
+    low, high = document["policies"][-1]["implied_cost_ratio_range"]
+    assert ranged == f"{low:.3g} to {high:.3g}"
+
+
+def test_compare_csv_keeps_the_loss_of_an_unavailable_policy_apart() -> None:
+    path = REPO / "scenarios" / "solvent-cohort.toml"
+    document = json.loads(run("compare", path, "--json").stdout)
+    rows = {r["policy"]: r for r in csv.DictReader(io.StringIO(run("compare", path, "--csv").stdout))}
+    for p in document["policies"]:
+        row = rows[p["policy"]]
+        if p["feasible"]:
+            assert float(row["expected_loss"]) == pytest.approx(p["expected_loss"], rel=1e-12)
+            assert row["expected_loss_if_allowed"] == ""
+        else:
+            # a sort or minimum over expected_loss cannot rank it above the choices it is not one of
+            assert row["expected_loss"] == row["regret"] == row["net_benefit"] == ""
+            assert float(row["expected_loss_if_allowed"]) == pytest.approx(p["expected_loss"], rel=1e-12)
+            assert float(row["study_cost"]) == pytest.approx(p["loss_parts"]["study"], rel=1e-12)
+        rng = p["implied_cost_ratio_range"]
+        if rng is not None and rng[1] is not None:
+            assert float(row["implied_cost_ratio_low"]) == pytest.approx(rng[0], rel=1e-12)
+            assert float(row["implied_cost_ratio_high"]) == pytest.approx(rng[1], rel=1e-12)
 
 
 def test_compare_output_writes_once_and_refuses_to_overwrite(tmp_path: Path) -> None:

@@ -19,6 +19,8 @@ every policy name a user must type shown in full.
 
 from __future__ import annotations
 
+import dataclasses
+import io
 import json
 import os
 import re
@@ -178,22 +180,193 @@ def table_row(text: str, label: str) -> list[str]:
     return cells
 
 
+def parsed_tables(text: str) -> list[dict[str, Any]]:
+    """Each boxed table with a header: its section, its column headings and its rows, wrapped text joined.
+
+    ``section`` is ``"not available"`` for tables printed after the heading
+    of the policies the constraints rule out, else ``"main"``.  A line whose
+    value cells are all empty continues the label of the row above it.
+    """
+    tables: list[dict[str, Any]] = []
+    section: str = "main"
+    current: dict[str, Any] | None = None
+    for line in text.splitlines():
+        if line[:1] not in LEFT_EDGES and "Not available under the constraints" in line:
+            section = "not available"
+        if line.startswith("┏"):
+            current = {"section": section, "columns": [], "rows": []}
+            tables.append(current)
+            continue
+        if current is None or line[:1] not in "┃│":
+            continue
+        parts = [p.strip() for p in re.split(r"[│┃]", line)[1:-1]]
+        if line.startswith("┃"):
+            if not current["columns"]:
+                current["columns"] = ["" for _ in parts[1:]]
+            pieces = zip(current["columns"], parts[1:], strict=True)
+            current["columns"] = [f"{old} {new}".strip() for old, new in pieces]
+        elif any(parts[1:]) or not current["rows"]:
+            current["rows"].append([parts[0], *parts[1:]])
+        else:
+            current["rows"][-1][0] = f"{current['rows'][-1][0]} {parts[0]}".strip()
+    return tables
+
+
+def table_cells(text: str, label: str, section: str = "main") -> list[tuple[str, str]]:
+    """(column heading, cell) of the row called ``label`` (or starting so), across the blocks of ``section``."""
+    out: list[tuple[str, str]] = []
+    for table in parsed_tables(text):
+        if table["section"] != section:
+            continue
+        for row in table["rows"]:
+            if row[0].startswith(label):
+                out += list(zip(table["columns"], row[1:], strict=True))
+    return out
+
+
+def compare_json(stem: str) -> dict[str, Any]:
+    result = CliRunner().invoke(app, ["compare", str(SCENARIOS[stem]), "--json"])
+    document: dict[str, Any] = json.loads(result.stdout)
+    return document
+
+
+NOW_TITLES = {"flag_now": "Flag now, no study", "clear_now": "Clear now, no study"}
+
+
 @pytest.mark.parametrize("stem", list(SCENARIOS))
 def test_compare_money_matches_json_with_the_right_suffix(screens: dict[tuple[str, int], str], stem: str) -> None:
-    result = CliRunner().invoke(app, ["compare", str(SCENARIOS[stem]), "--json"])
-    policies = json.loads(result.stdout)["policies"]
+    document = compare_json(stem)
+    available = [p for p in document["policies"] if p["feasible"]]
     for width in WIDTHS:
         text = screens[f"compare-{stem}", width]
-        losses = table_row(text, "expected loss")
-        regrets = table_row(text, "regret")
-        assert len(losses) == len(regrets) == len(policies)
-        for cell, row in zip(losses, policies, strict=True):
+        losses = [cell for _, cell in table_cells(text, "expected loss")]
+        regrets = [cell for _, cell in table_cells(text, "regret")]
+        # deciding now first, then every policy whose study the constraints allow
+        assert len(losses) == len(regrets) == 2 + len(available)
+        for cell, row in zip(losses[2:], available, strict=True):
             assert cell == nb.money(row["expected_loss"], compact=True)
             value = row["expected_loss"]
             if value is not None and value >= 1e4:
                 assert cell[-1] in "kM" or cell.endswith("bn")
-        for cell, row in zip(regrets, policies, strict=True):
+        for cell, row in zip(regrets[2:], available, strict=True):
             assert cell == nb.money(row["regret"], compact=True)
+
+
+@pytest.mark.parametrize("stem", list(SCENARIOS))
+def test_compare_sets_deciding_now_beside_the_policies(screens: dict[tuple[str, int], str], stem: str) -> None:
+    # Once a scenario where flagging now cost less than every study showed the loss-optimal study
+    # with regret 0: flagging and clearing now are columns, and regret is against the best of all.
+    document = compare_json(stem)
+    best = document["best"]["expected_loss"]
+    for width in WIDTHS:
+        text = screens[f"compare-{stem}", width]
+        losses = dict(table_cells(text, "expected loss"))
+        regrets = dict(table_cells(text, "regret"))
+        for key, title in NOW_TITLES.items():
+            loss = document["no_study"][key]
+            assert losses[title] == nb.money(loss, compact=True)
+            assert regrets[title] == nb.money(loss - best, compact=True)
+            assert loss - best >= 0
+
+
+def test_regret_is_against_deciding_now_when_that_is_best() -> None:
+    # An invented case where flagging now beats every study: costly subjects, a likely and costly harm.
+    from decide.decision.optimize import compare
+    from decide.report import console
+    from decide.scenario import load_policies, load_scenario
+
+    problem = load_scenario(SCENARIOS["solvent-cohort"]).problem
+    costly = dataclasses.replace(
+        problem, p_harm=0.9, consequences=dataclasses.replace(problem.consequences, per_subject=30_000.0),
+        constraints=dataclasses.replace(problem.constraints, budget=None),
+    )
+    policies = load_policies()
+    cmp = compare(costly, [policies["loss-optimal"], policies["conventional-fixed-size"]])
+    assert cmp.best_action != "study"
+    con = console.make_console(width=120, file=io.StringIO(), colour=False)
+    with con.capture() as cap:
+        con.print(console.compare_table(cmp, "t", "EUR", 120, con))
+    text = cap.get()
+    regrets = dict(table_cells(text, "regret"))
+    best_title = NOW_TITLES[cmp.best_action.replace("-", "_")]
+    assert regrets[best_title] == "0"
+    for d in cmp:
+        if d.feasible and d.expected_loss is not None:
+            assert regrets[d.title] == nb.money(d.expected_loss - cmp.best_loss, compact=True) != "0"
+
+
+@pytest.mark.parametrize("stem", list(SCENARIOS))
+def test_policies_out_of_reach_are_set_apart(screens: dict[tuple[str, int], str], stem: str) -> None:
+    # Conventional science once showed 11.2M beside the optimum's 14.8M with only "meets the constraints: no".
+    document = compare_json(stem)
+    out = [p for p in document["policies"] if not p["feasible"]]
+    for width in WIDTHS:
+        text = screens[f"compare-{stem}", width]
+        main_columns = {c for t in parsed_tables(text) if t["section"] == "main" for c in t["columns"]}
+        apart = dict(table_cells(text, "if allowed, expected loss", "not available"))
+        needs: dict[str, str] = {}
+        for title, cell in table_cells(text, "would need:", "not available"):
+            needs.setdefault(title, cell)  # the first need is the size per group
+        for row in out:
+            assert row["title"] not in main_columns
+            assert apart[row["title"]] == nb.money(row["expected_loss"], compact=True)
+            assert needs[row["title"]] == nb.count(row["n_per_group"])
+        assert bool(apart) == bool(out)
+        if out:
+            assert "Not available under the constraints" in text
+
+
+@pytest.mark.parametrize("kind", ["compare", "optimize"])
+@pytest.mark.parametrize("stem", list(SCENARIOS))
+def test_share_of_true_flags_beside_p_harm_negative(screens: dict[tuple[str, int], str], kind: str, stem: str) -> None:
+    document = compare_json(stem)
+    by_title = {p["title"]: p for p in document["policies"]}
+    for width in WIDTHS:
+        text = screens[f"{kind}-{stem}", width]
+        if kind == "compare":
+            positive = dict(table_cells(text, "P(harm | positive)"))
+            negative = dict(table_cells(text, "P(harm | negative)"))
+            for title, p in by_title.items():
+                if p["feasible"]:
+                    assert positive[title] == nb.probability(p["p_harm_given_positive"])
+                    assert negative[title] == nb.probability(p["p_harm_given_negative"])
+            assert "share of flags that would be true" in " ".join(text.split())
+        else:
+            optimal = by_title["Loss-optimal"]
+            rows = {t["rows"][i][0]: t["rows"][i][1] for t in parsed_tables(text.replace("┌", "┏")) for i in
+                    range(len(t["rows"]))}
+            positive_label = next(k for k in rows if k.startswith("P(harmful | positive result)"))
+            assert "share of flags that are true" in positive_label
+            assert rows[positive_label] == nb.probability(optimal["p_harm_given_positive"])
+            assert rows["P(harmful | negative result)"] == nb.probability(optimal["p_harm_given_negative"])
+
+
+@pytest.mark.parametrize("kind", ["compare", "optimize"])
+@pytest.mark.parametrize("stem", list(SCENARIOS))
+def test_implied_cost_ratio_shows_its_range(screens: dict[tuple[str, int], str], kind: str, stem: str) -> None:
+    document = compare_json(stem)
+    by_title = {p["title"]: p for p in document["policies"]}
+    ranged = False
+    for width in WIDTHS:
+        text = screens[f"{kind}-{stem}", width]
+        if kind == "compare":
+            cells = dict(table_cells(text, "implied cost ratio"))
+            shown = [(by_title[t], c) for t, c in cells.items() if t in by_title]
+        else:
+            tables = parsed_tables(text.replace("┌", "┏"))
+            cell = next(r[1] for t in tables for r in t["rows"] if r[0].startswith("implied cost ratio"))
+            shown = [(by_title["Loss-optimal"], cell)]
+        for p, c in shown:
+            rng = p["implied_cost_ratio_range"]
+            if rng is not None and (rng[1] is None or nb.number(rng[1]) != nb.number(rng[0])):
+                ranged = True
+                high = "or more" if rng[1] is None else f"to {nb.number(rng[1])}"
+                assert c == f"{nb.number(rng[0])} {high}"
+                assert "infinity" not in c
+            else:
+                assert c == nb.number(p["implied_cost_ratio"])
+        flat = " ".join(text.split())
+        assert ("cut-off moves in whole counts" in flat) == ranged, "the one line saying why appears with a range"
 
 
 def test_a_regret_of_454778_reads_455k() -> None:

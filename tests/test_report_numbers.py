@@ -177,3 +177,13 @@ def test_literal_escapes_control_characters_only(raw: str, shown: str) -> None:
 def test_one_line_and_markdown() -> None:
     assert one_line("  a\n  b\x1b ") == "a b\\x1b"
     assert markdown_literal("A | B *x*") == "A \\| B \\*x\\*"
+
+
+def test_ratio_range_reads_as_words() -> None:
+    # an unbounded implied cost ratio once read "6.43 to infinity"
+    assert nb.ratio_range(9.0, (6.43, float("inf"))) == "6.43 or more"
+    assert nb.ratio_range(5.796, (3.8675, 8.6855)) == "3.87 to 8.69"
+    assert nb.ratio_range(2.83, (2.8301, 2.8302)) == "2.83"  # ends equal once rounded: one value
+    assert nb.ratio_range(0.5, (0.0, 0.7)) == "0.7 or less"
+    assert nb.ratio_range(5.0) == "5" and nb.ratio_range(None) == "-"
+    assert nb.is_range((6.43, float("inf"))) and not nb.is_range((2.8301, 2.8302)) and not nb.is_range(None)

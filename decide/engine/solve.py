@@ -26,6 +26,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import special
 
 from .. import _checks
@@ -37,6 +38,7 @@ from . import exact as _exact
 from . import normal as _normal
 from .power import evaluate, exact_power
 from .selection import TestChoice, choose_test, first_normal_size
+from .solve_many import solve_many
 from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
@@ -62,6 +64,15 @@ class Solution(PlainData):
     power at the reported whole size, which is at least the target, and with
     an exact test ``n_stable`` is the size beyond which power stays at or
     above the target (checked up to ``n_checked``).
+
+    For array inputs (see :func:`solve`) every field but ``design``,
+    ``solved_for``, ``sides`` and ``warnings`` is an ndarray of the inputs'
+    broadcast shape: numbers as float64 (sizes too, whole-valued), with
+    ``nan`` where an element has no answer within the caps or a value does
+    not apply (``n_stable`` of a normal-test element); ``test``,
+    ``test_reason`` and ``method`` as arrays of strings, one per element;
+    ``expected_cases`` as a dict of arrays; ``warnings`` gathers every
+    element's notes once.  Scalar inputs give Python scalars, as typed.
     """
 
     design: str
@@ -377,13 +388,13 @@ def _only_unknown(values: dict[str, Any]) -> str:
 def solve(
     design: str | StudyDesign,
     *,
-    baseline: float,
-    alpha: float | None = None,
-    power: float | None = None,
-    n_per_group: int | None = None,
-    effect: float | None = None,
-    allocation: float | None = None,
-    years: float | None = None,
+    baseline: ArrayLike,
+    alpha: ArrayLike | None = None,
+    power: ArrayLike | None = None,
+    n_per_group: ArrayLike | None = None,
+    effect: ArrayLike | None = None,
+    allocation: ArrayLike | None = None,
+    years: ArrayLike | None = None,
     sides: int = 1,
     test: str = "auto",
     continuity: bool = False,
@@ -396,12 +407,14 @@ def solve(
     design : str or StudyDesign
         A design name (the keys of :data:`decide.designs.DESIGNS`) or a
         configured design (:meth:`~decide.designs.StudyDesign.configure`).
-    baseline : float
+    baseline : float or array_like
         Risk over follow-up, rate per person-year, reference rate per
         person-year, or exposure prevalence among controls, by design.
-    alpha, power, n_per_group, effect : float or None
+    alpha, power, n_per_group, effect : float, array_like or None
         Exactly one is ``None``: the unknown.  A solved effect is the
-        smallest effect above 1 detectable with the given power.
+        smallest effect above 1 detectable with the given power.  Arrays
+        (here, in ``baseline``, ``allocation`` or ``years``) broadcast
+        together, and the unknown is solved for each element.
     allocation, years, sides, test, continuity
         As in :func:`decide.power`.
     max_n_per_group : int
@@ -410,13 +423,24 @@ def solve(
     Returns
     -------
     Solution
+        Python scalars for scalar inputs; arrays of the broadcast shape for
+        array inputs (see :class:`Solution`).
 
     Raises
     ------
     DecideError
         Impossible input (the message names the parameter).
     InfeasibleError
-        No answer within the caps (size or effect).
+        No answer within the caps (size or effect), for scalar inputs; an
+        array solve puts ``nan`` in that element instead.
+
+    Notes
+    -----
+    An array solve (:mod:`decide.engine.solve_many`) answers every element
+    that runs the normal test at once, from the closed forms; elements that
+    run the exact test, whose power saw-tooths in the size, are searched by
+    the scalar solver once per distinct design point.  Each element equals
+    the scalar solve of its inputs.
 
     References
     ----------
@@ -430,34 +454,50 @@ def solve(
     >>> s = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
     >>> s.n_per_group, s.n_total
     (188, 376)
+    >>> many = solve("case-control", baseline=0.3, effect=[1.5, 2.0], alpha=0.05, power=0.9, sides=2, test="normal")
+    >>> many.n_per_group.tolist()
+    [569.0, 188.0]
     """
     unknown = _only_unknown(
         {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect}
     )
-    alpha, power, effect = (None if v is None else _checks.scalar(k, v)
-                            for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
-    for name, value in (("baseline", baseline), ("allocation", allocation), ("years", years)):
-        if value is not None:
-            _checks.scalar(name, value)
+    named = {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect,
+             "baseline": baseline, "allocation": allocation, "years": years}
+    arrays = any(v is not None and np.ndim(v) for v in named.values())
+    if arrays:
+        given = {k: v for k, v in named.items() if v is not None}
+        _checks.broadcast(tuple(given), *(_checks.as_float_array(k, v) for k, v in given.items()))
+    else:
+        alpha, power, effect = (None if v is None else _checks.scalar(k, v)
+                                for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
     check_alpha_power(alpha, power)
     if n_per_group is not None:
-        n_per_group = int(_checks.scalar("n_per_group", _checks.whole_at_least_one("n_per_group", n_per_group)))
+        whole = _checks.whole_at_least_one("n_per_group", n_per_group)
+        n_per_group = whole if arrays else int(_checks.scalar("n_per_group", whole))
     cap = int(_checks.scalar("max_n_per_group", _checks.whole_at_least_one("max_n_per_group", max_n_per_group)))
     if effect is not None:
         check_effect(setting, effect)
-        if unknown in ("n_per_group", "alpha") and effect <= 1 and setting.sides == 1:
-            raise DecideError(
-                f"effect must be above 1 for a one-sided test of harm, but got {effect:g}"
-            )
-        if unknown in ("n_per_group", "alpha") and effect == 1:
-            raise DecideError("effect must differ from 1 to be detectable, but got 1")
-        if unknown == "n_per_group" and effect < 1:
-            raise DecideError(
-                f"effect must be above 1: size solves look for harm, but got {effect:g}"
-            )
+        _check_detectable(unknown, setting.sides, np.asarray(effect, dtype=np.float64))
+    if arrays:
+        quantities = {k: v for k, v in zip(UNKNOWNS, (alpha, power, n_per_group, effect), strict=True) if v is not None}
+        fields = solve_many(solve, setting, unknown, quantities, cap)
+        return Solution(design=setting.design.name, solved_for=unknown, sides=setting.sides, **fields)
     solver = {"power": _solve_power, "n_per_group": _solve_size, "alpha": _solve_alpha, "effect": _solve_effect}
     return solver[unknown](setting, alpha, power, n_per_group, effect, cap)
+
+
+def _check_detectable(unknown: str, sides: int, effect: FloatArray) -> None:
+    """An effect a size or alpha solve can look for: above 1 (one-sided, or any size solve), never 1."""
+    def first(bad: Any) -> float:
+        return float(np.ravel(effect)[np.flatnonzero(np.ravel(bad))[0]])
+
+    if unknown in ("n_per_group", "alpha") and sides == 1 and np.any(effect <= 1):
+        raise DecideError(f"effect must be above 1 for a one-sided test of harm, but got {first(effect <= 1):g}")
+    if unknown in ("n_per_group", "alpha") and np.any(effect == 1):
+        raise DecideError("effect must differ from 1 to be detectable, but got 1")
+    if unknown == "n_per_group" and np.any(effect < 1):
+        raise DecideError(f"effect must be above 1: size solves look for harm, but got {first(effect < 1):g}")
 
 
 def _finish(

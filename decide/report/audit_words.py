@@ -83,7 +83,7 @@ def markdown(a: Audit, unit: str) -> str:
             (d.size_name, nb.count(a.n_per_group)), ("subjects in all", nb.count(a.n_total))]
     if a.prior is not None:
         rows.append((f"{d.effect_name} if harmful (prior, as entered)", a.prior))
-    ratio = nb.number(a.implied_cost_ratio)
+    ratio = nb.ratio_range(a.implied_cost_ratio, a.implied_cost_ratio_range)
     rows += [("implied cost ratio (miss : false alarm)", ratio),
              (f"power gained per extra {one_subject(a.design)}", nb.number(a.marginal_power_per_subject)),
              ("implied cost of a missed hazard", _money(a.implied_missed_hazard, unit)),

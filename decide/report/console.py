@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import io
 from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
 from typing import IO, Any
 
 from rich.console import Console, Group, RenderableType
@@ -26,7 +27,7 @@ from ..engine.solve import Solution
 from . import audit_words, rule_words
 from . import numbers as nb
 from .sentences import best_action, recommendation
-from .text import CAUTION, NO_FINITE_RATIO, literal, one_line
+from .text import CAUTION, NO_FINITE_RATIO, POSTERIOR_NOTE, RANGE_NOTE, literal, one_line
 
 _LABELS = {
     "alpha": "alpha (nominal)",
@@ -150,18 +151,19 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     stated = NO_FINITE_RATIO if d.stated_cost_ratio is None else nb.number(d.stated_cost_ratio)
     t.add_row("stated cost ratio (miss : false alarm)", stated)
     notes = [_text(recommendation(d, cur), "bold")]
+    if _has_ratio_range([d]):
+        notes.append(Text(RANGE_NOTE, style="dim"))
     notes += [_text(f"Warning: {w}", "yellow") for w in d.warnings]
     notes += rule_words.decision_notes([d])
     return Group(t, rule_words.console_rule(d.rule), _notes_panel(notes))
 
 
 def _ratio(d: Decision | Audit) -> str:
-    if d.implied_cost_ratio is None:
-        return nb.MISSING
-    rng = d.implied_cost_ratio_range
-    if rng is not None and rng[1] > rng[0] * (1 + 1e-6):
-        return f"{nb.number(d.implied_cost_ratio)} (range {nb.number_range(*rng)})"
-    return nb.number(d.implied_cost_ratio)
+    return nb.ratio_range(d.implied_cost_ratio, d.implied_cost_ratio_range)
+
+
+def _has_ratio_range(decisions: Iterable[Decision | Audit]) -> bool:
+    return any(nb.is_range(d.implied_cost_ratio_range) for d in decisions)
 
 
 #: Characters that close a line of a boxed table on the right.
@@ -178,22 +180,46 @@ def _fits(table: Table, console: Console, width: int) -> bool:
     return all(line[-1] in RIGHT_EDGES for line in boxed) and "…" not in captured.get()
 
 
+@dataclass(frozen=True)
+class _NowColumn:
+    """A no-study action shown beside the policies: its expected loss and its regret."""
+
+    title: str
+    expected_loss: float
+    regret: float
+
+
+_Column = Decision | _NowColumn
+_Rows = list[tuple[str, Callable[[Any], RenderableType]]]
+
+
+def _now_columns(decisions: Sequence[Decision] | Comparison) -> list[_NowColumn]:
+    """Flagging and clearing now, as two more columns of a comparison (none for a bare list)."""
+    if not isinstance(decisions, Comparison):
+        return []
+    c = decisions
+    return [_NowColumn("Flag now, no study", c.flag_now, c.flag_now - c.best_loss),
+            _NowColumn("Clear now, no study", c.clear_now, c.clear_now - c.best_loss)]
+
+
 def compare_table(
-    decisions: Sequence[Decision], title: str, unit: str, width: int = 80, console: Console | None = None
+    decisions: Sequence[Decision] | Comparison, title: str, unit: str, width: int = 80, console: Console | None = None
 ) -> Group:
-    """Policies side by side, split into as few blocks as fit ``width``, each block whole."""
+    """Deciding now and the available policies side by side, then the policies not available, set apart.
+
+    Each table is split into as few blocks as fit ``width``, each block whole.
+    A policy whose study the constraints do not allow is never shown beside
+    the others: its own table says what it would need and what it would cost.
+    """
     design = get_design(decisions[0].design)
     con = console or make_console(width=width)
     cur = one_line(unit)
-    blocks: list[list[Decision]] = []
-    for d in decisions:
-        trial = blocks[-1] + [d] if blocks else [d]
-        if blocks and _fits(_compare_part(trial, design, cur, ""), con, width):
-            blocks[-1] = trial
-        else:
-            blocks.append([d])
-    blocks = _balanced(blocks, list(decisions), design, cur, con, width)
-    tables = [_compare_part(part, design, cur, title if i == 0 else "") for i, part in enumerate(blocks)]
+    available: list[_Column] = [*_now_columns(decisions), *(d for d in decisions if d.feasible)]
+    tables = _blocks(available, _compare_rows(design, cur), title, con, width)
+    unavailable = [d for d in decisions if not d.feasible]
+    if unavailable:
+        heading = "Not available under the constraints: what each policy would need"
+        tables += _blocks(list(unavailable), _unavailable_rows(design, cur), heading, con, width)
     note = f"Money in {cur}; " if cur else "Money in the scenario's unit; "
     tables[-1].caption = Text(note + nb.SUFFIX_NOTE + ".")
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
@@ -201,54 +227,95 @@ def compare_table(
     return Group(*tables, shown, Panel(Group(*_notes(decisions, cur)), border_style="dim"))
 
 
+def _blocks(columns: list[_Column], rows: _Rows, title: str, con: Console, width: int) -> list[Table]:
+    """``columns`` in as few tables as fit ``width``, spread evenly where that still fits."""
+    blocks: list[list[_Column]] = []
+    for col in columns:
+        trial = blocks[-1] + [col] if blocks else [col]
+        if blocks and _fits(_compare_part(trial, rows, ""), con, width):
+            blocks[-1] = trial
+        else:
+            blocks.append([col])
+    blocks = _balanced(blocks, columns, rows, con, width)
+    return [_compare_part(part, rows, title if i == 0 else "") for i, part in enumerate(blocks)]
+
+
 def _balanced(
-    blocks: list[list[Decision]], decisions: list[Decision], design: StudyDesign, cur: str, con: Console, width: int
-) -> list[list[Decision]]:
-    """The same number of blocks, with the policies spread evenly if every block still fits."""
+    blocks: list[list[_Column]], columns: list[_Column], rows: _Rows, con: Console, width: int
+) -> list[list[_Column]]:
+    """The same number of blocks, with the columns spread evenly if every block still fits."""
     k = len(blocks)
     if k < 2:
         return blocks
-    base, extra = divmod(len(decisions), k)
-    sizes = [base + (1 if i < extra else 0) for i in range(k)]
+    base, extra = divmod(len(columns), k)
     even, start = [], 0
-    for size in sizes:
-        even.append(decisions[start : start + size])
+    for i in range(k):
+        size = base + (1 if i < extra else 0)
+        even.append(columns[start : start + size])
         start += size
-    if all(_fits(_compare_part(part, design, cur, ""), con, width) for part in even):
+    if all(_fits(_compare_part(part, rows, ""), con, width) for part in even):
         return even
     return blocks
 
 
-def _compare_rows(design: StudyDesign, cur: str) -> list[tuple[str, Callable[[Decision], RenderableType]]]:
+def _study_only(cell: Callable[[Decision], RenderableType]) -> Callable[[_Column], RenderableType]:
+    """A row's cell for a policy; ``-`` for a no-study column, which has no study to describe."""
+    return lambda c: nb.MISSING if isinstance(c, _NowColumn) else cell(c)
+
+
+def _compare_rows(design: StudyDesign, cur: str) -> _Rows:
     money_unit = f" ({cur})" if cur else ""
-    return [
-        ("meets the constraints", lambda d: Text("yes", style="green") if d.feasible else Text("no", style="red")),
+    rows: list[tuple[str, Callable[[Decision], RenderableType]]] = [
         ("alpha, nominal", rule_words.nominal_text),
         ("alpha, attained", lambda d: nb.probability(rule_words.attained(d))),
         ("beta (averaged)", lambda d: nb.probability(d.beta)),
         ("power at design effect", lambda d: nb.probability(d.power_at_design_effect)),
         (f"{design.size_name} per group", lambda d: nb.count(d.n_per_group)),
         ("subjects in all", lambda d: nb.count(d.n_total)),
-        (f"expected loss{money_unit}", lambda d: nb.money(d.expected_loss, compact=True)),
-        (f"regret{money_unit}", lambda d: nb.money(d.regret, compact=True)),
+    ]
+    after: list[tuple[str, Callable[[Decision], RenderableType]]] = [
         ("P(harm | negative)", lambda d: nb.probability(d.p_harm_given_negative)),
         ("P(harm | positive)", lambda d: nb.probability(d.p_harm_given_positive)),
         (f"{design.effect_name} detected at 80%", lambda d: nb.number(d.detectable_effect)),
-        ("implied cost ratio", lambda d: nb.number(d.implied_cost_ratio)),
+        ("implied cost ratio", lambda d: _ratio(d)),
+    ]
+    return [
+        ("action", lambda c: "no study" if isinstance(c, _NowColumn) else _ACTION_WORDS.get(c.action, c.action)),
+        *((label, _study_only(cell)) for label, cell in rows),
+        (f"expected loss{money_unit}", lambda c: nb.money(c.expected_loss, compact=True)),
+        (f"regret{money_unit}", lambda c: nb.money(c.regret, compact=True)),
+        *((label, _study_only(cell)) for label, cell in after),
     ]
 
 
-def _compare_part(decisions: list[Decision], design: StudyDesign, cur: str, title: str) -> Table:
+#: A policy's action in a comparison's column.
+_ACTION_WORDS = {"study": "study", "flag-now": "flag now", "clear-now": "clear now"}
+
+
+def _unavailable_rows(design: StudyDesign, cur: str) -> _Rows:
+    money_unit = f" ({cur})" if cur else ""
+    return [
+        ("available", lambda d: Text("no", style="red")),
+        (f"would need: {design.size_name} per group", lambda d: nb.count(d.n_per_group)),
+        ("would need: subjects in all", lambda d: nb.count(d.n_total)),
+        ("alpha, nominal", rule_words.nominal_text),
+        ("power at design effect", lambda d: nb.probability(d.power_at_design_effect)),
+        (f"would cost: study{money_unit}", lambda d: nb.money((d.loss_parts or {}).get("study"), compact=True)),
+        (f"if allowed, expected loss{money_unit}", lambda d: nb.money(d.expected_loss, compact=True)),
+    ]
+
+
+def _compare_part(columns: list[_Column], rows: _Rows, title: str) -> Table:
     t = Table(title=_text(title) if title else None)
     t.add_column("", style="bold", min_width=16)
-    for d in decisions:
-        t.add_column(_text(one_line(d.title)), justify="right", min_width=9)
-    for label, cell in _compare_rows(design, cur):
-        t.add_row(label, *(cell(d) for d in decisions))
+    for col in columns:
+        t.add_column(_text(one_line(col.title)), justify="right", min_width=9)
+    for label, cell in rows:
+        t.add_row(label, *(cell(c) for c in columns))
     return t
 
 
-def _notes(decisions: Sequence[Decision], currency: str = "") -> list[Text]:
+def _notes(decisions: Sequence[Decision] | Comparison, currency: str = "") -> list[Text]:
     notes = [
         Text(
             f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
@@ -260,7 +327,10 @@ def _notes(decisions: Sequence[Decision], currency: str = "") -> list[Text]:
     ]
     if isinstance(decisions, Comparison):
         notes.insert(0, _text(best_action(decisions, currency), "bold"))
-    notes += [_text(f"{one_line(d.title)}: {d.reason}.", "red") for d in decisions if not d.feasible]
+    notes.append(Text(POSTERIOR_NOTE, style="dim"))
+    if _has_ratio_range(decisions):
+        notes.append(Text(RANGE_NOTE, style="dim"))
+    notes += [_text(f"Not available, {one_line(d.title)}: {d.reason}.", "red") for d in decisions if not d.feasible]
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
         notes.append(_text(f"Loss-optimal: {recommendation(best, currency)}", "bold"))

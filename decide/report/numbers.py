@@ -166,6 +166,34 @@ def number_range(low: Any, high: Any) -> str:
     return f"{number(low)} to {number(high)}"
 
 
+def is_range(bounds: tuple[float, float] | None) -> bool:
+    """Whether ``bounds`` (low, high) shows as a range, not as one value once rounded."""
+    return bounds is not None and number(bounds[0]) != number(bounds[1])
+
+
+def ratio_range(value: Any, bounds: tuple[float, float] | None = None) -> str:
+    """A ratio that may be a range: ``5.8``, ``3.87 to 8.69``, ``6.43 or more``.
+
+    ``bounds`` (low, high) replaces ``value`` when its ends differ once rounded;
+    an unbounded high end reads "or more", a zero low end "or less".
+
+    Examples
+    --------
+    >>> ratio_range(5.8), ratio_range(7.1, (3.87, 8.69)), ratio_range(9.0, (6.43, float("inf")))
+    ('5.8', '3.87 to 8.69', '6.43 or more')
+    """
+    if _missing(value) and bounds is None:
+        return MISSING
+    if bounds is None or not is_range(bounds):
+        return number(value)
+    low, high = bounds
+    if math.isinf(high):
+        return f"{number(low)} or more"
+    if low <= 0:
+        return f"{number(high)} or less"
+    return number_range(low, high)
+
+
 def snake_key(key: str) -> str:
     """A JSON key in snake_case: ``"exposed cases"`` becomes ``"exposed_cases"``.
 

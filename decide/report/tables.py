@@ -18,24 +18,57 @@ from ..designs import get_design
 from . import numbers as nb
 from . import rule_words
 from .sentences import best_action, decision_record, recommendation
-from .text import CAUTION, NO_FINITE_RATIO, literal, markdown_literal
+from .text import CAUTION, NO_FINITE_RATIO, POSTERIOR_NOTE, RANGE_NOTE, literal, markdown_literal
 
 #: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
     "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
     "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
     "p_harm_given_negative", "p_harm_given_positive", "detectable_effect", "implied_cost_ratio",
-    "net_benefit", "reason",
+    "implied_cost_ratio_low", "implied_cost_ratio_high", "net_benefit", "study_cost",
+    "expected_loss_if_allowed", "reason",
 )
 
 
+def _flat(d: Decision) -> dict[str, Any]:
+    """A decision's facts as one flat row; a policy not available keeps its loss apart.
+
+    The study a policy would need but the constraints do not allow has no
+    ``expected_loss``, ``regret`` or ``net_benefit`` in the row, so a sort or a minimum over
+    that column never ranks it above the available choices; its loss stands
+    in ``expected_loss_if_allowed``.
+    """
+    row = d.to_dict()
+    low, high = d.implied_cost_ratio_range or (None, None)
+    row.update(implied_cost_ratio_low=low, implied_cost_ratio_high=high,
+               study_cost=(d.loss_parts or {}).get("study"), expected_loss_if_allowed=None)
+    if not d.feasible:
+        row.update(expected_loss=None, regret=None, net_benefit=None, expected_loss_if_allowed=d.expected_loss)
+    return row
+
+
+def _now_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
+    """Flagging and clearing now as rows of a comparison (none for a bare list of decisions)."""
+    if not isinstance(decisions, Comparison):
+        return []
+    c = decisions
+    return [{"policy": action, "action": action, "expected_loss": loss, "regret": loss - c.best_loss}
+            for action, loss in (("flag-now", c.flag_now), ("clear-now", c.clear_now))]
+
+
 def decision_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
-    """One flat row per policy, for machines."""
-    return [{k: nb.for_json(d.to_dict().get(k)) for k in COMPARE_COLUMNS} for d in decisions]
+    """One flat row per policy, for machines, after one row per no-study action in a comparison."""
+    rows = [*_now_rows(decisions), *(_flat(d) for d in decisions)]
+    return [{k: nb.for_json(row.get(k)) for k in COMPARE_COLUMNS} for row in rows]
 
 
 def to_csv(decisions: Sequence[Decision]) -> str:
-    """The comparison as CSV, full precision, empty cells for missing or non-finite values."""
+    """The comparison as CSV, full precision, empty cells for missing or non-finite values.
+
+    In a comparison the first two rows are the no-study actions (``policy``
+    ``flag-now`` and ``clear-now``); a policy that is not available has its
+    loss in ``expected_loss_if_allowed`` only (see :func:`_flat`).
+    """
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=COMPARE_COLUMNS, lineterminator="\n")
     w.writeheader()
@@ -89,19 +122,52 @@ def compare_document(
     return document
 
 
-_HEAD = ["policy", "meets the constraints", "alpha", "attained alpha", "beta", "power (design)",
+_HEAD = ["choice", "action", "alpha", "attained alpha", "beta", "power (design)",
          "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
          "P(harm \\| positive)", "detects (80%)", "implied cost ratio"]
 
+_UNAVAILABLE_HEAD = ["policy", "would need: per group", "would need: in all", "alpha", "power (design)",
+                     "would cost: study", "if allowed, expected loss"]
+
+_ACTION_WORDS = {"study": "study", "flag-now": "flag now", "clear-now": "clear now"}
+
 
 def _markdown_row(d: Decision, cur: str) -> str:
-    cells = [markdown_literal(d.title), "yes" if d.feasible else "no", rule_words.nominal_text(d),
+    cells = [markdown_literal(d.title), _ACTION_WORDS.get(d.action, d.action), rule_words.nominal_text(d),
              nb.probability(rule_words.attained(d)), nb.probability(d.beta), nb.probability(d.power_at_design_effect),
              nb.count(d.n_per_group), nb.count(d.n_total), nb.money(d.expected_loss, cur),
              nb.money(d.regret, cur), nb.probability(d.p_harm_given_negative),
              nb.probability(d.p_harm_given_positive), nb.number(d.detectable_effect),
-             nb.number(d.implied_cost_ratio)]
+             nb.ratio_range(d.implied_cost_ratio, d.implied_cost_ratio_range)]
     return "| " + " | ".join(cells) + " |"
+
+
+def _markdown_now_rows(decisions: Sequence[Decision], cur: str) -> list[str]:
+    """Flagging and clearing now as the first rows of a comparison's table."""
+    if not isinstance(decisions, Comparison):
+        return []
+    c = decisions
+    dashes = [nb.MISSING] * 6
+    return [f"| {title} | no study | " + " | ".join(dashes) + f" | {nb.money(loss, cur)} | "
+            f"{nb.money(loss - c.best_loss, cur)} | " + " | ".join([nb.MISSING] * 4) + " |"
+            for title, loss in (("Flag now, no study", c.flag_now), ("Clear now, no study", c.clear_now))]
+
+
+def _markdown_unavailable(decisions: Sequence[Decision], cur: str) -> list[str]:
+    """The policies the constraints rule out, in their own table: what each would need and cost."""
+    out = [d for d in decisions if not d.feasible]
+    if not out:
+        return []
+    lines = ["", "## Not available under the constraints", "",
+             "What each policy would need; the constraints do not allow it, so it is not a choice.", "",
+             "| " + " | ".join(_UNAVAILABLE_HEAD) + " |", "|" + "---|" * len(_UNAVAILABLE_HEAD)]
+    for d in out:
+        cells = [markdown_literal(d.title), nb.count(d.n_per_group), nb.count(d.n_total), rule_words.nominal_text(d),
+                 nb.probability(d.power_at_design_effect), nb.money((d.loss_parts or {}).get("study"), cur),
+                 nb.money(d.expected_loss, cur)]
+        lines.append("| " + " | ".join(cells) + " |")
+    lines += [""] + [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in out]
+    return lines
 
 
 def to_markdown(
@@ -115,11 +181,14 @@ def to_markdown(
         lines += [f"- {markdown_literal(label)}: {markdown_literal(value)}" for label, value in inputs]
         lines += ["", "## Policies", ""]
     lines += ["| " + " | ".join(_HEAD) + " |", "|" + "---|" * len(_HEAD)]
-    lines += [_markdown_row(d, cur) for d in decisions]
+    lines += _markdown_now_rows(decisions, cur)
+    lines += [_markdown_row(d, cur) for d in decisions if d.feasible]
     ratio = decisions[0].stated_cost_ratio
     stated = NO_FINITE_RATIO if ratio is None else nb.number(ratio)
-    lines += ["", f"Stated cost ratio (miss : false alarm): {stated}.", ""]
-    lines += [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in decisions if not d.feasible]
+    lines += ["", f"Stated cost ratio (miss : false alarm): {stated}. {POSTERIOR_NOTE}"]
+    if any(nb.is_range(d.implied_cost_ratio_range) for d in decisions):
+        lines += ["", RANGE_NOTE]
+    lines += _markdown_unavailable(decisions, cur)
     if isinstance(decisions, Comparison):
         lines += ["", markdown_literal(best_action(decisions, currency))]
     lines += ["", rule_words.NOMINAL_AND_ATTAINED, ""]

@@ -18,6 +18,17 @@ CAUTION = (
     "and licensed professional judgment."
 )
 
+#: What the two posterior probabilities of a comparison mean, said once.
+POSTERIOR_NOTE = (
+    "P(harm | positive) is the share of flags that would be true (the rest are false alarms); "
+    "P(harm | negative) the chance the exposure is harmful after a negative result."
+)
+#: Why an exact test's implied cost ratio is a range, said once beneath the table.
+RANGE_NOTE = (
+    "An exact test's cut-off moves in whole counts, so its rule stays the loss-optimal one over a "
+    "range of cost ratios, not at a single ratio; the range is shown."
+)
+
 #: Characters that reorder text on screen (bidirectional embeddings, overrides, isolates).
 _BIDI = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069\u200e\u200f")
 
