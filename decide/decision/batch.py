@@ -243,7 +243,7 @@ def batch_optimum(
 
     n_best, z_best, f_best = _golden_sizes(total, left, right, z)
     alloc = model.setting.allocation
-    whole = model.setting.design.allocation_name is None or float(alloc) == round(float(alloc))
+    whole = model.setting.design.groups == 1 or float(alloc) == round(float(alloc))
     steps = (-1, 1) if whole else (-4, -3, -2, -1, 1, 2, 3, 4)
     for step in steps:  # whole sizes around the best (a comparison group of allocation * n rounds)
         cand = np.clip(n_best + step, lo_n, hi_)
