@@ -8,9 +8,13 @@ from __future__ import annotations
 
 import json
 import re
+import signal
 import sys
+from collections.abc import Iterator
+from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
+from types import FrameType
 from typing import Annotated, Any, NoReturn
 
 import typer
@@ -27,6 +31,9 @@ from .report import console as render
 from .report import tables
 from .report.text import json_safe
 from .scenario import (
+    check_output_path,
+    example_names,
+    example_text,
     load_policies,
     load_scenario,
     policy_json_schema,
@@ -48,6 +55,7 @@ _OPTIONS = {
     "design": "--design",
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
+    "example": "--example",
 }
 _DEBUG = {"on": False}
 
@@ -90,9 +98,20 @@ app = typer.Typer(
 )
 
 
+def _show_version(value: bool) -> None:
+    if value:
+        from . import __version__
+
+        sys.stdout.write(f"decide {__version__}\n")
+        raise typer.Exit()
+
+
 @app.callback()
 def _root(
     debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks for errors.")] = False,
+    version: Annotated[
+        bool, typer.Option("--version", callback=_show_version, is_eager=True, help="Print the version and exit.")
+    ] = False,
 ) -> None:
     _DEBUG["on"] = debug
 
@@ -203,6 +222,18 @@ PolicyDirs = Annotated[
 ]
 
 
+def _check_output(command: str, output: Path | None, force: bool) -> None:
+    """Refuse an unusable --output in one line before any computation."""
+    if output is None:
+        return
+    try:
+        check_output_path(output, overwrite=force)
+    except DecideError as exc:
+        if _DEBUG["on"]:
+            raise
+        _fail(f"decide {command}: --output {exc}", 2)
+
+
 def _emit_text(text: str, output: Path | None, force: bool) -> None:
     if output is None:
         sys.stdout.write(text)
@@ -240,6 +271,7 @@ def compare_command(
     force: Annotated[bool, typer.Option("--force", help="Overwrite --output.")] = False,
 ) -> None:
     """Set policies side by side for a scenario: alpha, beta, size, loss, regret, implied cost ratio."""
+    _check_output("compare", output, force)
     loaded = run_api("compare", lambda: load_scenario(scenario))
     known = run_api("compare", lambda: load_policies(policy_dir or ()))
     if policy:
@@ -335,16 +367,63 @@ def schema_command(
     emit_json(scenario_json_schema() if kind == "scenario" else policy_json_schema())
 
 
+def _example_help() -> str:
+    try:
+        names = ", ".join(example_names())
+    except DecideError:
+        names = "(none found)"
+    return f"Start from a bundled invented example scenario: {names}."
+
+
 @app.command("new")
 def new_command(
     path: Annotated[Path, typer.Argument(help="Where to write the scenario template.")],
+    example: Annotated[str | None, typer.Option("--example", help=_example_help(), show_default=False)] = None,
     force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
 ) -> None:
-    """Write a commented scenario template to start from."""
-    run_api("new", lambda: write_text_atomic(path, scenario_template(), overwrite=force))
+    """Write a commented scenario template (or a bundled example) to start from."""
+    text = scenario_template() if example is None else run_api("new", lambda: example_text(example))
+    run_api("new", lambda: write_text_atomic(path, text, overwrite=force))
     sys.stderr.write(f"wrote {path}; edit it, then run: decide compare {path}\n")
 
 
+class _Interrupted(BaseException):
+    """SIGINT or SIGTERM arrived; not an ``Exception``, so nothing on the way catches it."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _interrupt(signum: int, frame: FrameType | None) -> None:
+    raise _Interrupted(signum)
+
+
+@contextmanager
+def _signals_abort() -> Iterator[None]:
+    """Turn SIGINT and SIGTERM into ``_Interrupted``; signals ignored at start stay ignored."""
+    usual = {signal.SIGINT: signal.default_int_handler, signal.SIGTERM: signal.SIG_DFL}
+    previous = {}
+    for signum, default in usual.items():
+        if signal.getsignal(signum) is default:
+            previous[signum] = signal.signal(signum, _interrupt)
+    try:
+        yield
+    finally:
+        for signum, old in previous.items():
+            signal.signal(signum, old)
+
+
 def main() -> None:
-    """Console-script entry point."""
-    app()
+    """Console-script entry point.
+
+    Ctrl-C (SIGINT) and SIGTERM stop the command with "decide: aborted" and
+    exit status 128 + the signal's number (130, 143); a file being written is
+    left as it was (see :func:`decide.scenario.write_text_atomic`).
+    """
+    try:
+        with _signals_abort():
+            app()
+    except (_Interrupted, KeyboardInterrupt) as exc:
+        signum = exc.signum if isinstance(exc, _Interrupted) else signal.SIGINT
+        _fail("decide: aborted", 128 + signum)
