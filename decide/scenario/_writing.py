@@ -202,7 +202,7 @@ def _fill_temp(temp: Path, data: bytes, mode: int | None) -> None:
     # 0o666 less the umask, as for any new file; an overwritten file's own mode otherwise.
     fd = os.open(temp, flags, 0o666 if mode is None else 0o600)
     try:
-        if mode is not None:
+        if mode is not None and hasattr(os, "fchmod"):
             os.fchmod(fd, mode)
         _write_all(fd, data)
         os.fsync(fd)
