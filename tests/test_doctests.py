@@ -11,6 +11,7 @@ import doctest
 import importlib
 import io
 import pkgutil
+import types
 
 import pytest
 
@@ -22,21 +23,28 @@ def _module_names() -> list[str]:
     return ["decide", *sorted(m.name for m in found if m.name != "decide.__main__")]
 
 
-@pytest.mark.parametrize("name", _module_names())
-def test_docstring_examples_run(name: str) -> None:
-    module = importlib.import_module(name)
+def _failures(module: types.ModuleType) -> tuple[int, str]:
+    """Run the module's docstring examples (globals: a copy of the module's); failures and report."""
     # ELLIPSIS as pytest's doctest runner uses by default.
     finder, report = doctest.DocTestFinder(exclude_empty=True), io.StringIO()
     runner = doctest.DocTestRunner(optionflags=doctest.ELLIPSIS)
-    for test in finder.find(module, name):  # globals: a copy of the module's
+    for test in finder.find(module, module.__name__):
         runner.run(test, out=report.write)
-    result = runner.summarize(verbose=False)
-    assert result.failed == 0, report.getvalue()
+    return runner.summarize(verbose=False).failed, report.getvalue()
 
 
-def test_the_examples_are_found() -> None:
-    # A check that the finder looks where the examples are: the engine's
-    # power() documents itself with examples.
+@pytest.mark.parametrize("name", _module_names())
+def test_docstring_examples_run(name: str) -> None:
+    failed, report = _failures(importlib.import_module(name))
+    assert failed == 0, report
+
+
+def test_the_runner_finds_examples_and_fails_on_a_wrong_one() -> None:
+    # The engine's power() documents itself with examples ...
     module = importlib.import_module("decide.engine.power")
     tests = doctest.DocTestFinder(exclude_empty=True).find(module, module.__name__)
     assert sum(len(t.examples) for t in tests) > 0
+    # ... and a wrong example is caught.
+    wrong = types.ModuleType("wrong", "An example that does not hold.\n\n>>> 1 + 1\n3\n")
+    failed, report = _failures(wrong)
+    assert failed == 1 and "Expected:\n    3\nGot:\n    2" in report
