@@ -16,7 +16,7 @@ from importlib.metadata import PackageNotFoundError
 from importlib.metadata import version as _installed_version
 
 from .decision.audit import Audit, audit
-from .decision.optimize import Decision, compare, decide_policy, optimize
+from .decision.optimize import Comparison, Decision, compare, decide_policy, optimize
 from .decision.policies import LOSS_OPTIMAL, Policy
 from .decision.prior import EffectPrior
 from .decision.problem import Consequences, Constraints, Problem, Study
@@ -36,6 +36,7 @@ __all__ = [
     "LOSS_OPTIMAL",
     "ApproximationWarning",
     "Audit",
+    "Comparison",
     "Consequences",
     "Constraints",
     "DecideError",

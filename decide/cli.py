@@ -29,6 +29,7 @@ from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
 from .report import console as render
 from .report import tables
+from .report.sentences import best_action, decision_record, recommendation
 from .report.text import json_safe
 from .scenario import (
     check_output_path,
@@ -248,9 +249,11 @@ def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
     loaded = run_api("optimize", lambda: load_scenario(scenario))
     decision = run_api("optimize", lambda: _optimize(loaded.problem))
     if as_json:
-        emit_json({"scenario": loaded.title, **decision.to_dict()})
+        emit_json({"scenario": loaded.title, **decision_record(decision)})
     else:
         con = Console()
+        if decision.action in ("flag-now", "clear-now"):  # lead with it: no study is worth its cost
+            con.print(recommendation(decision), style="bold", markup=False, highlight=False)
         con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
@@ -285,7 +288,8 @@ def compare_command(
     if sum((as_json, as_csv, as_markdown)) > 1:
         _fail("decide compare: choose one of --json, --csv and --markdown", 2)
     if as_json:
-        text = json.dumps(json_safe([{"scenario": loaded.title, **d.to_dict()} for d in decisions]), indent=2) + "\n"
+        rows = [{"scenario": loaded.title, **decision_record(d)} for d in decisions]
+        text = json.dumps(json_safe(rows), indent=2) + "\n"
     elif as_csv:
         text = tables.to_csv(decisions)
     elif as_markdown:
@@ -294,6 +298,8 @@ def compare_command(
         if output is not None:
             _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
         con = Console()
+        if decisions.best_action != "study":  # lead with it: no study is worth its cost
+            con.print(best_action(decisions), style="bold", markup=False, highlight=False)
         con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
         con.print(render.compare_table(decisions, loaded.title, loaded.currency or "", con.width))
         return

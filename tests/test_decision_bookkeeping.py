@@ -33,6 +33,7 @@ from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import get_design
 from decide.engine.power import power
 from decide.errors import ApproximationWarning
+from decide.report.sentences import recommendation
 from decide.scenario import load_policies, load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
@@ -139,8 +140,9 @@ def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> N
         assert dec.net_benefit == pytest.approx(min(ref["flag_now"], ref["clear_now"]) - dec.expected_loss, rel=1e-9)
         assert dec.p_harm_given_negative == pytest.approx(ref["given_negative"], rel=1e-8)
         assert dec.p_harm_given_positive == pytest.approx(ref["given_positive"], rel=1e-8)
-        says_no_study = "No study is worth its cost" in dec.recommendation
+        says_no_study = "No study is worth its cost" in recommendation(dec)
         assert says_no_study == (dec.feasible and dec.net_benefit <= 0)
+        assert (dec.action in ("flag-now", "clear-now")) == says_no_study
 
 
 def costly_study() -> Problem:
@@ -163,8 +165,9 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
     assert dec.expected_loss > 5e5 > min(flag, clear)
     assert dec.net_benefit == pytest.approx(min(flag, clear) - dec.expected_loss)
     assert dec.net_benefit < 0
-    assert dec.recommendation.startswith("No study is worth its cost")
-    assert "clear now" in dec.recommendation  # clearing costs 3e5, flagging 7e5
+    assert recommendation(dec).startswith("No study is worth its cost")
+    assert "clear now" in recommendation(dec)  # clearing costs 3e5, flagging 7e5
+    assert dec.action == "clear-now" and dec.no_study_loss == pytest.approx(clear)
     # the same problem with no fixed cost is worth a study
     cheap = Problem(
         prob.study,
@@ -175,13 +178,13 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
     )
     worth = optimize(cheap)
     assert worth.net_benefit > 0
-    assert "No study is worth its cost" not in worth.recommendation
-    assert worth.recommendation.startswith(f"Study {worth.n_per_group:,} ")
+    assert "No study is worth its cost" not in recommendation(worth)
+    assert recommendation(worth).startswith(f"Study {worth.n_per_group:,} ")
 
 
 def test_no_study_recommendation_names_the_action_once() -> None:
     dec = optimize(costly_study())
-    assert "now now" not in dec.recommendation
+    assert "now now" not in recommendation(dec)
 
 
 def test_two_sided_probabilities_stay_probabilities() -> None:

@@ -35,10 +35,11 @@ from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import get_design
 from decide.engine.solve import solve
+from decide.report.sentences import recommendation
 from decide.scenario import load_policies, load_scenario
 
-# the module, not the function decide.optimize that the package exports under the same name
-OPTIMIZE_MODULE = importlib.import_module("decide.decision.optimize")
+# the module that runs the exact tests at each candidate size
+CHOICE_MODULE = importlib.import_module("decide.decision.choice")
 REPO = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((REPO / "scenarios").glob("*.toml"))
 POLICIES = load_policies()
@@ -156,7 +157,8 @@ def test_infeasible_policies_are_reported_with_the_cap_not_raised() -> None:
         assert "2,150" in d.reason and "constraints allow" in d.reason
         assert d.n_per_group == solve_size(prob, POLICIES[name].power)  # the size it would need
         assert d.regret is None
-        assert "cannot be met" in d.recommendation
+        assert "cannot be met" in recommendation(d)
+        assert d.action == "not-available"
     assert sum(d.feasible for d in decisions.values()) >= 4
 
 
@@ -288,7 +290,7 @@ def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: p
         Consequences(false_alarm=1e6, per_subject=1.0, missed_hazard=1e6),
     )
     answer = solve_size(prob, 0.8)  # 133 cases
-    real = OPTIMIZE_MODULE.exact_batches
+    real = CHOICE_MODULE.exact_batches
 
     def guarded(model, n):  # type: ignore[no-untyped-def]
         # A search near the answer is fine; exact power at 10,000 times it is what exhausts memory.
@@ -296,7 +298,7 @@ def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: p
         assert top <= 10_000 * answer, f"exact power requested at {top:.3g} per group"
         return real(model, n)
 
-    monkeypatch.setattr(OPTIMIZE_MODULE, "exact_batches", guarded)
+    monkeypatch.setattr(CHOICE_MODULE, "exact_batches", guarded)
     dec = decide_policy(prob, POLICIES["conventional-science"])
     assert dec.n_per_group == answer
 

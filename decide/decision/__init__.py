@@ -7,7 +7,7 @@ files, the reports and the command line build on it.
 from __future__ import annotations
 
 from .audit import Audit, audit
-from .optimize import Decision, compare, decide_policy, optimize
+from .optimize import Comparison, Decision, compare, decide_policy, optimize
 from .policies import LOSS_OPTIMAL, Policy
 from .prior import EffectPrior
 from .problem import Consequences, Constraints, Problem, Study
@@ -15,6 +15,7 @@ from .problem import Consequences, Constraints, Problem, Study
 __all__ = [
     "LOSS_OPTIMAL",
     "Audit",
+    "Comparison",
     "Consequences",
     "Constraints",
     "Decision",

@@ -36,8 +36,9 @@ from ..designs import get_design
 from ..engine.power import evaluate
 from ..engine.solve import solve
 from ..errors import DecideError
+from .choice import choose_tests
+from .implied import implied_ratio_exact, implied_ratio_normal
 from .loss import build_model, normal_at
-from .optimize import _implied_ratio_exact, _implied_ratio_normal, choose_tests, ratio_point
 from .policies import Policy
 from .prior import EffectPrior
 from .problem import Consequences, Problem, Study
@@ -131,15 +132,15 @@ def audit(
     warnings: list[str] = list(sol.warnings)
     rng: tuple[float, float] | None
     if exact:
-        found = _implied_ratio_exact(model, n, ch.chars.at(0))
-        rng = None if found is None else found[0]
-        ratio = None if rng is None else ratio_point(rng)
+        found = implied_ratio_exact(model, n, ch.chars.at(0))
+        rng = None if found is None else (found.low, found.high)
+        ratio = None if found is None else found.point
         slope = _exact_slope(model, alpha, n)
         warnings.append("exact power saw-tooths in size: the marginal power is the slope of a line "
                         "fitted to exact power over sizes within 10% of the protocol's")
     else:
         rng = None
-        ratio = _implied_ratio_normal(model, n, float(ch.z[0]))
+        ratio = implied_ratio_normal(model, n, float(ch.z[0]))
         h = max(1e-3 * n, 1e-3)
         c = normal_at(model, np.array([n - h, n + h]), np.full(2, float(ch.z[0])))
         slope = float((c.design_power[1] - c.design_power[0]) / (2 * h))

@@ -40,7 +40,7 @@ from scipy import special
 from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
-from ..engine.power import choose_exact
+from ..engine.selection import uses_exact
 from ..engine.study import Setting
 from .prior import SEARCH_PANELS
 from .problem import Problem
@@ -111,20 +111,16 @@ class LossModel:
         return np.minimum(nodes, limit * (1 - 1e-9)), w
 
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
-        """Where the test at size ``n`` is exact (see :func:`decide.power.choose_exact`)."""
-        s = self.setting
-        if s.test == "normal":
-            return np.zeros(np.shape(n), dtype=bool)
-        design_effect = np.full(np.shape(n), self.effects[-1])
-        smallest = s.design.smallest_expected_count(
-            np.asarray(n, dtype=np.float64), s.baseline, design_effect, s.allocation, s.years
-        )
-        return choose_exact(s.test, smallest)
+        """Where the test at size ``n`` is exact (see :func:`decide.engine.selection.uses_exact`)."""
+        return uses_exact(self.setting, n, np.full(np.shape(n), self.effects[-1]))
 
 
 def build_model(problem: Problem) -> LossModel:
     """Quadrature nodes, missed-hazard costs and weights for a problem."""
-    model = LossModel(problem, problem.study.setting(), np.zeros(0), np.zeros((3, 0)), 0.0)
+    model = LossModel(
+        problem=problem, setting=problem.study.setting(), effects=np.zeros(0), weights=np.zeros((3, 0)),
+        expected_missed=0.0,
+    )
     nodes, w = model.prior_nodes(SEARCH_PANELS)
     missed = problem.consequences.missed_cost(nodes)
     effects = np.append(nodes, problem.effect.median)
@@ -138,7 +134,10 @@ def build_model(problem: Problem) -> LossModel:
         x, v = model.prior_nodes(panels)
         return np.array([np.dot(v, problem.consequences.missed_cost(x))])
 
-    return LossModel(problem, model.setting, effects, weights, float(_refine(expected)[0]))
+    return LossModel(
+        problem=problem, setting=model.setting, effects=effects, weights=weights,
+        expected_missed=float(_refine(expected)[0]),
+    )
 
 
 def _refine(integral: Callable[[int], FloatArray]) -> FloatArray:
@@ -171,7 +170,7 @@ class Characteristics:
 
     def at(self, i: int) -> OperatingPoint:
         """The characteristics of the ``i``-th test, as numbers."""
-        return OperatingPoint(*(float(np.ravel(getattr(self, f))[i]) for f in _FIELDS))
+        return OperatingPoint(**{f: float(np.ravel(getattr(self, f))[i]) for f in _FIELDS})
 
 
 _FIELDS = ("nominal", "attained", "power", "design_power", "missed")
@@ -203,7 +202,10 @@ def normal_at(model: LossModel, n: FloatArray, z: FloatArray) -> Characteristics
     miss = _normal.miss_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights[MISSED]
     attained = _normal.power_at_z(m0, nn[..., None], zz[..., None], s.sides)[..., 0]
     nominal = s.sides * special.ndtr(-zz)
-    return Characteristics(np.asarray(nominal), np.asarray(attained), pw[..., AVERAGE], pw[..., DESIGN], miss)
+    return Characteristics(
+        nominal=np.asarray(nominal), attained=np.asarray(attained), power=pw[..., AVERAGE],
+        design_power=pw[..., DESIGN], missed=miss,
+    )
 
 
 def bisect_decreasing(
@@ -289,13 +291,13 @@ def _options(path: _exact.RejectionPath) -> ExactOptions:
     total = path.weighted[:, MISSED, -1:] + path.kept[:, MISSED, -1:]
     missed = np.concatenate([total, path.kept[:, MISSED]], axis=-1)
     chars = Characteristics(
-        nominal,
-        lead(path.null),
-        np.minimum(w[:, AVERAGE], 1.0),
-        np.minimum(w[:, DESIGN], 1.0),
-        missed,
+        nominal=nominal,
+        attained=lead(path.null),
+        power=np.minimum(w[:, AVERAGE], 1.0),
+        design_power=np.minimum(w[:, DESIGN], 1.0),
+        missed=missed,
     )
-    return ExactOptions(chars, valid)
+    return ExactOptions(chars=chars, valid=valid)
 
 
 # --------------------------------------------------------------------------
@@ -324,7 +326,7 @@ def settle(model: LossModel, n: float, exact: bool, z: float, nominal: float) ->
         return np.array([np.dot(w, power), np.dot(w * cost.missed_cost(x), miss)])
 
     out = integral(0) if model.problem.effect.is_point else _refine(integral)
-    return Settled(float(out[0]), float(out[1]))
+    return Settled(power=float(out[0]), missed=float(out[1]))
 
 
 def _power_and_miss(

@@ -30,12 +30,13 @@ from scipy import special
 
 from .. import _checks
 from .._results import PlainData
-from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO, StudyDesign
+from ..designs import StudyDesign
 from ..designs._base import FloatArray
 from ..errors import DecideError, InfeasibleError
 from . import exact as _exact
 from . import normal as _normal
-from .power import choose_exact, evaluate, exact_power
+from .power import evaluate, exact_power
+from .selection import TestChoice, choose_test, first_normal_size
 from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
@@ -331,17 +332,6 @@ def _reference_rate_sizes(
 # the public solver
 
 
-def _reason(test: str, use_exact: bool, smallest: float) -> str:
-    if test == "exact" and not use_exact:
-        return (f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} ({smallest:.3g}): "
-                "the normal approximation was used, which agrees closely there")
-    if test != "auto":
-        return f"{test} test requested"
-    if use_exact:
-        return f"auto: exact, because the smallest expected cell count is {smallest:.3g} (< {AUTO_EXACT_BELOW:g})"
-    return f"auto: normal, because every cell expects at least {AUTO_EXACT_BELOW:g} ({smallest:.3g})"
-
-
 def _only_unknown(values: dict[str, Any]) -> str:
     missing = [k for k, v in values.items() if v is None]
     if len(missing) != 1:
@@ -467,7 +457,7 @@ def _finish(
         design=d.name,
         solved_for=solved_for,
         test=test,
-        test_reason=_reason(setting.test, use_exact, smallest),
+        test_reason=TestChoice(requested=setting.test, exact=use_exact, smallest_count=smallest).reason,
         method=f"{sided} {method}",
         sides=setting.sides,
         baseline=float(b),
@@ -489,17 +479,8 @@ def _finish(
     )
 
 
-def _smallest(setting: Setting, n: float, effect: float) -> float:
-    d = setting.design
-    return float(
-        d.smallest_expected_count(
-            np.asarray(float(n)), setting.baseline, np.asarray(effect), setting.allocation, setting.years
-        )
-    )
-
-
 def _wants_exact(setting: Setting, n: float, effect: float) -> bool:
-    return bool(choose_exact(setting.test, np.asarray(_smallest(setting, n, effect))))
+    return choose_test(setting, n, effect).exact
 
 
 def _solve_power(setting: Setting, alpha: Any, power: Any, n: Any, effect: Any, cap: int) -> Solution:
@@ -524,6 +505,13 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
         raise InfeasibleError(
             f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:,}"
         )
+    if not _wants_exact(setting, first, effect):
+        # the test is chosen at the size reported: where the exact test first reaches the target
+        # every cell expects enough for the normal test, which reaches it from a smaller size on
+        n_switch = first_normal_size(setting, effect, n_normal, first)
+        note = (f"the exact test first reaches power {target:g} at {first:,}; from {n_switch:,} on, "
+                "every cell expects enough cases for the normal test, which reaches it there")
+        return _finish(setting, "n_per_group", alpha, n_switch, effect, False, target, extra=(note,))
     notes: tuple[str, ...] = ()
     if stable > first:
         notes = (

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from typing import Any
 
 from rich.console import Group
@@ -10,9 +11,10 @@ from rich.table import Table
 from rich.text import Text
 
 from ..decision.audit import Audit
-from ..decision.optimize import Decision
+from ..decision.optimize import Comparison, Decision
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
+from .sentences import best_action, recommendation
 from .text import CAUTION, fmt, fmt_compact
 
 _LABELS = {
@@ -97,11 +99,13 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
         t.add_row("expected net benefit of the study", Text(_money(d.net_benefit, unit), style=style))
     if d.p_harm_given_negative is not None:
         t.add_row("P(harmful | negative result)", fmt(d.p_harm_given_negative))
+    if d.p_harm_given_positive is not None:
+        t.add_row("P(harmful | positive result), the share of flags that are true", fmt(d.p_harm_given_positive))
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", fmt(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
     t.add_row("stated cost ratio (miss : false alarm)", fmt(d.stated_cost_ratio))
-    notes = [Text(d.recommendation, style="bold")]
+    notes = [Text(recommendation(d), style="bold")]
     notes += [Text(f"Warning: {w}", style="yellow") for w in d.warnings]
     notes.append(Text(CAUTION, style="dim italic"))
     return Group(t, Panel(Group(*notes), border_style="dim"))
@@ -116,11 +120,11 @@ def _ratio(d: Decision | Audit) -> str:
     return fmt(d.implied_cost_ratio)
 
 
-def compare_table(decisions: list[Decision], title: str, unit: str, width: int = 80) -> Group:
+def compare_table(decisions: Sequence[Decision], title: str, unit: str, width: int = 80) -> Group:
     """Policies side by side: one column per policy, one row per quantity."""
     design = get_design(decisions[0].design)
     per_table = max(1, (width - 22) // 15)
-    parts = [decisions[i : i + per_table] for i in range(0, len(decisions), per_table)]
+    parts = [list(decisions[i : i + per_table]) for i in range(0, len(decisions), per_table)]
     tables = [_compare_part(part, design, title if i == 0 else "") for i, part in enumerate(parts)]
     tables[-1].caption = f"Costs in {unit or 'the scenario unit'} (k = thousand, M = million)."
     return Group(*tables, Panel(Group(*_notes(decisions)), border_style="dim"))
@@ -142,6 +146,7 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
         ("expected loss", lambda d: fmt_compact(d.expected_loss)),
         ("regret", lambda d: fmt_compact(d.regret)),
         ("P(harm | negative)", lambda d: fmt(d.p_harm_given_negative, 3)),
+        ("P(harm | positive)", lambda d: fmt(d.p_harm_given_positive, 3)),
         (f"{design.effect_name} detected at 80%", lambda d: fmt(d.detectable_effect, 3)),
         ("implied cost ratio", lambda d: fmt(d.implied_cost_ratio, 3)),
     ]
@@ -150,17 +155,20 @@ def _compare_part(decisions: list[Decision], design: StudyDesign, title: str) ->
     return t
 
 
-def _notes(decisions: list[Decision]) -> list[Text]:
+def _notes(decisions: Sequence[Decision]) -> list[Text]:
     notes = [Text(f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
                   f"{fmt(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
                   "which its alpha would minimise expected loss for its size. Regret is the extra "
-                  "expected loss over the loss-optimal choice.", style="dim")]
+                  "expected loss over the best of all actions (a study, or flagging or clearing now).",
+                  style="dim")]
+    if isinstance(decisions, Comparison):
+        notes.insert(0, Text(best_action(decisions), style="bold"))
     for d in decisions:
         if not d.feasible:
             notes.append(Text(f"{d.title}: {d.reason}.", style="red"))
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
-        notes.append(Text(f"Loss-optimal: {best.recommendation}", style="bold"))
+        notes.append(Text(f"Loss-optimal: {recommendation(best)}", style="bold"))
     notes.append(Text(CAUTION, style="dim italic"))
     return notes
 

@@ -4,25 +4,28 @@ from __future__ import annotations
 
 import csv
 import io
+from collections.abc import Sequence
 from typing import Any
 
-from ..decision.optimize import Decision
+from ..decision.optimize import Comparison, Decision
+from .sentences import best_action
 from .text import CAUTION, fmt, json_safe
 
 #: Columns of the flat comparison formats (CSV, Markdown).
 COMPARE_COLUMNS = (
-    "policy", "feasible", "test", "alpha", "attained_alpha", "beta", "power",
+    "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
     "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
-    "p_harm_given_negative", "detectable_effect", "implied_cost_ratio", "net_benefit", "reason",
+    "p_harm_given_negative", "p_harm_given_positive", "detectable_effect", "implied_cost_ratio",
+    "net_benefit", "reason",
 )
 
 
-def decision_rows(decisions: list[Decision]) -> list[dict[str, Any]]:
+def decision_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
     """One flat row per policy."""
     return [{k: json_safe(d.to_dict()[k]) for k in COMPARE_COLUMNS} for d in decisions]
 
 
-def to_csv(decisions: list[Decision]) -> str:
+def to_csv(decisions: Sequence[Decision]) -> str:
     """The comparison as CSV, full precision, empty cells for missing values."""
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=COMPARE_COLUMNS, lineterminator="\n")
@@ -32,7 +35,7 @@ def to_csv(decisions: list[Decision]) -> str:
     return buf.getvalue()
 
 
-def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, str]] | None = None) -> str:
+def to_markdown(decisions: Sequence[Decision], title: str, inputs: list[tuple[str, str]] | None = None) -> str:
     """The comparison as a Markdown table a board can read, with the inputs and the caution."""
     head = ["policy", "feasible", "alpha", "attained alpha", "beta", "power (design)",
             "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
@@ -49,5 +52,7 @@ def to_markdown(decisions: list[Decision], title: str, inputs: list[tuple[str, s
         lines.append("| " + " | ".join(cells) + " |")
     lines += ["", f"Stated cost ratio (miss : false alarm): {fmt(decisions[0].stated_cost_ratio)}.", ""]
     lines += [f"- **{d.title}**: {d.reason}." for d in decisions if not d.feasible]
+    if isinstance(decisions, Comparison):
+        lines += ["", best_action(decisions)]
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)
