@@ -10,6 +10,7 @@ import json
 import re
 import signal
 import sys
+import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
 from enum import StrEnum
@@ -18,7 +19,6 @@ from types import FrameType
 from typing import Annotated, Any, NoReturn
 
 import typer
-from rich.console import Console
 from typer.core import TyperGroup
 
 from .decision.audit import audit as _audit
@@ -29,9 +29,13 @@ from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
 from .report import console as render
 from .report import tables
+from .report.inputs import scenario_inputs
+from .report.numbers import for_json
+from .report.progress import busy
 from .report.sentences import best_action, decision_record, recommendation
-from .report.text import json_safe
+from .report.text import one_line
 from .scenario import (
+    LoadedScenario,
     check_output_path,
     example_names,
     example_text,
@@ -67,6 +71,7 @@ class _OneLineErrors(TyperGroup):
     def main(self, *args: Any, **kwargs: Any) -> Any:
         kwargs["standalone_mode"] = False
         kwargs["prog_name"] = "decide"
+        _plain_help(self)
         try:
             code = super().main(*args, **kwargs)
         except typer.Abort:
@@ -84,8 +89,46 @@ class _OneLineErrors(TyperGroup):
         sys.exit(code if isinstance(code, int) else 0)
 
 
+def _plain_help(group: Any) -> None:
+    """Help in plain words: FILE, NUMBER, NAME..., never internal type names or braces."""
+    for command in group.commands.values():
+        if hasattr(command, "commands"):
+            _plain_help(command)
+            continue
+        for param in command.params:
+            if param.metavar is not None or getattr(param, "is_flag", False):
+                continue
+            if param.param_type_name == "argument":
+                name = (param.name or "arg").upper()
+                param.metavar = name
+                shown = name if param.required else f"[{name}]"
+                param.get_usage_pieces = lambda ctx, shown=shown: [shown]
+                param.display_type_rich = lambda ctx: None
+            else:
+                param.metavar = _metavar(param)
+
+
+def _metavar(param: Any) -> str:
+    desc = param.type_descriptor
+    base = desc.annotation
+    if desc.is_list:
+        base = getattr(base, "__args__", (str,))[0]
+    if desc.is_choice:
+        text = "[" + "|".join(str(getattr(c, "value", c)) for c in desc.choices or ()) + "]"
+    elif desc.is_path or base is Path:
+        text = "DIR" if (param.name or "").endswith("dir") else "FILE"
+    elif base is int:
+        text = "INTEGER"
+    elif base is float:
+        text = "NUMBER"
+    else:
+        text = "NAME" if desc.is_list else "TEXT"
+    return text + ("..." if desc.is_list else "")
+
+
 def _fail(message: str, code: int) -> NoReturn:
-    sys.stderr.write(" ".join(message.split()) + "\n")
+    text = re.sub(r"\b(Value|Assertion|Type) error, ", "", " ".join(message.split()))
+    sys.stderr.write(one_line(text) + "\n")
     sys.exit(code)
 
 
@@ -127,7 +170,21 @@ def _option_words(exc: DecideError) -> str:
 
 
 def run_api(command: str, call: Any) -> Any:
-    """Run an API call; turn our errors into one line and the right exit status."""
+    """Run an API call; turn our errors into one line and the right exit status.
+
+    Warnings raised during the call are printed as one plain line each on
+    stderr (``decide solve: warning: ...``), never with a source path.
+    """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            return _run(command, call)
+        finally:
+            for message in dict.fromkeys(str(w.message) for w in caught):
+                sys.stderr.write(f"decide {command}: warning: {one_line(message)}\n")
+
+
+def _run(command: str, call: Any) -> Any:
     try:
         return call()
     except InfeasibleError as exc:
@@ -140,9 +197,14 @@ def run_api(command: str, call: Any) -> Any:
         _fail(f"decide {command}: {_option_words(exc)}", 2)
 
 
+def json_text(data: Any) -> str:
+    """Machine output: standard JSON, snake_case keys, non-finite numbers as null."""
+    return json.dumps(for_json(data), indent=2) + "\n"
+
+
 def emit_json(data: Any) -> None:
-    """Machine output: plain JSON on stdout, never through rich."""
-    sys.stdout.write(json.dumps(json_safe(data), indent=2) + "\n")
+    """Plain JSON on stdout, never through rich."""
+    sys.stdout.write(json_text(data))
 
 
 class Design(StrEnum):
@@ -193,9 +255,8 @@ def solve_command(
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
 ) -> None:
     """Solve for whichever of alpha, power, size or effect is left out."""
-    solution = run_api(
-        "solve",
-        lambda: _solve(
+    def call() -> Any:
+        return _solve(
             design.value,
             baseline=baseline,
             alpha=alpha,
@@ -208,12 +269,14 @@ def solve_command(
             test=test.value,
             continuity=continuity,
             max_n_per_group=max_n_per_group,
-        ),
-    )
+        )
+
+    with busy("Solving...", enabled=not as_json):
+        solution = run_api("solve", call)
     if as_json:
         emit_json(solution.to_dict())
     else:
-        Console().print(render.solution_table(solution))
+        render.make_console().print(render.solution_table(solution))
 
 
 ScenarioPath = Annotated[Path, typer.Argument(help="Scenario file (TOML).", show_default=False)]
@@ -243,18 +306,38 @@ def _emit_text(text: str, output: Path | None, force: bool) -> None:
         sys.stderr.write(f"wrote {output}\n")
 
 
+def _inputs(loaded: LoadedScenario) -> list[tuple[str, str]]:
+    """The scenario's inputs as rows, the effect prior echoed as the file states it."""
+    effect = loaded.model.effect
+    stated = None
+    if effect.low is not None and effect.high is not None and effect.level is not None:
+        stated = (effect.low, effect.high, effect.level)
+    return scenario_inputs(loaded.problem, loaded.currency or "", stated)
+
+
+def _echo(loaded: LoadedScenario) -> dict[str, Any]:
+    """The scenario as read, for machine output."""
+    return {
+        "title": loaded.title,
+        "description": loaded.description,
+        "file": str(loaded.path),
+        "contents": loaded.model.model_dump(mode="json"),
+    }
+
+
 @app.command("optimize")
 def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
     """Find the alpha, beta and size that minimise expected loss for a scenario."""
     loaded = run_api("optimize", lambda: load_scenario(scenario))
-    decision = run_api("optimize", lambda: _optimize(loaded.problem))
+    with busy("Finding the loss-optimal study...", enabled=not as_json):
+        decision = run_api("optimize", lambda: _optimize(loaded.problem))
     if as_json:
-        emit_json({"scenario": loaded.title, **decision_record(decision)})
+        emit_json({"scenario": loaded.title, **decision_record(decision, loaded.currency or "")})
     else:
-        con = Console()
+        con = render.make_console()
         if decision.action in ("flag-now", "clear-now"):  # lead with it: no study is worth its cost
-            con.print(recommendation(decision), style="bold", markup=False, highlight=False)
-        con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
+            con.print(render.literal_text(recommendation(decision, loaded.currency or ""), "bold"))
+        con.print(render.inputs_table(_inputs(loaded), loaded.currency or ""))
         con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
     if not decision.feasible:
         raise typer.Exit(1)
@@ -274,6 +357,10 @@ def compare_command(
     force: Annotated[bool, typer.Option("--force", help="Overwrite --output.")] = False,
 ) -> None:
     """Set policies side by side for a scenario: alpha, beta, size, loss, regret, implied cost ratio."""
+    if sum((as_json, as_csv, as_markdown)) > 1:
+        _fail("decide compare: choose one of --json, --csv and --markdown", 2)
+    if output is not None and not (as_json or as_csv or as_markdown):
+        _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
     _check_output("compare", output, force)
     loaded = run_api("compare", lambda: load_scenario(scenario))
     known = run_api("compare", lambda: load_policies(policy_dir or ()))
@@ -284,24 +371,21 @@ def compare_command(
         chosen = [known[p] for p in dict.fromkeys(policy)]
     else:
         chosen = list(known.values())
-    decisions = run_api("compare", lambda: _compare(loaded.problem, chosen))
-    if sum((as_json, as_csv, as_markdown)) > 1:
-        _fail("decide compare: choose one of --json, --csv and --markdown", 2)
+    with busy("Comparing policies...", enabled=not (as_json or as_csv)):
+        decisions = run_api("compare", lambda: _compare(loaded.problem, chosen))
+    currency = loaded.currency or ""
     if as_json:
-        rows = [{"scenario": loaded.title, **decision_record(d)} for d in decisions]
-        text = json.dumps(json_safe(rows), indent=2) + "\n"
+        text = json_text(tables.compare_document(decisions, loaded.problem, _echo(loaded), currency))
     elif as_csv:
         text = tables.to_csv(decisions)
     elif as_markdown:
-        text = tables.to_markdown(decisions, loaded.title, loaded.problem.describe())
+        text = tables.to_markdown(decisions, loaded.title, _inputs(loaded), currency)
     else:
-        if output is not None:
-            _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
-        con = Console()
+        con = render.make_console()
         if decisions.best_action != "study":  # lead with it: no study is worth its cost
-            con.print(best_action(decisions), style="bold", markup=False, highlight=False)
-        con.print(render.inputs_table(loaded.problem.describe(), loaded.currency or ""))
-        con.print(render.compare_table(decisions, loaded.title, loaded.currency or "", con.width))
+            con.print(render.literal_text(best_action(decisions, currency), "bold"))
+        con.print(render.inputs_table(_inputs(loaded), currency))
+        con.print(render.compare_table(decisions, loaded.title, currency, con.width, con))
         return
     run_api("compare", lambda: _emit_text(text, output, force))
 
@@ -324,18 +408,19 @@ def audit_command(
     as_json: JsonFlag = False,
 ) -> None:
     """Reveal the value judgments a protocol's alpha and size imply."""
-    result = run_api(
-        "audit",
-        lambda: _audit(
+    def call() -> Any:
+        return _audit(
             design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
             per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
             years=years, sides=sides, test=test.value,
-        ),
-    )
+        )
+
+    with busy("Auditing the protocol...", enabled=not as_json):
+        result = run_api("audit", call)
     if as_json:
         emit_json(result.to_dict())
     else:
-        Console().print(render.audit_table(result, unit))
+        render.make_console().print(render.audit_table(result, unit))
 
 
 @app.command("policies")
@@ -347,20 +432,8 @@ def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -
 
         emit_json([asdict(p) for p in known.values()])
         return
-    from rich.table import Table
-
-    t = Table(title="Policies")
-    for col in ("name", "alpha rule", "power at the design effect", "size rule"):
-        t.add_column(col)
-    for p in known.values():
-        power = "-" if p.power is None else f"{p.power:g}" + (", beta <= alpha" if p.beta_at_most_alpha else "")
-        rule = p.alpha_rule + (f" {p.alpha:g}" if p.alpha is not None else "")
-        rule += f" {p.posterior_threshold:g}" if p.posterior_threshold is not None else ""
-        t.add_row(p.name, rule, power, p.size_rule)
-    con = Console()
-    con.print(t)
-    for p in known.values():
-        con.print(f"[bold]{p.title}[/bold] ({p.name}): {' '.join(p.summary.split())}", highlight=False)
+    con = render.make_console()
+    con.print(render.policies_table(list(known.values()), con.width, con))
 
 
 @app.command("schema")
@@ -370,7 +443,8 @@ def schema_command(
     """Print the JSON Schema of scenario (or policy) files."""
     if kind not in ("scenario", "policy"):
         _fail(f"decide schema: KIND must be scenario or policy, but got {kind!r}", 2)
-    emit_json(scenario_json_schema() if kind == "scenario" else policy_json_schema())
+    schema = scenario_json_schema() if kind == "scenario" else policy_json_schema()
+    sys.stdout.write(json.dumps(schema, indent=2) + "\n")  # a JSON Schema keeps its own keys ($defs, ...)
 
 
 def _example_help() -> str:

@@ -46,7 +46,7 @@ DECISION_KEYS = {
     "test",
     "warnings",
 }
-COMPARE_KEYS = DECISION_KEYS | {
+COMPARE_KEYS = (DECISION_KEYS - {"no_study"}) | {
     "policy",
     "feasible",
     "regret",
@@ -86,7 +86,7 @@ def compared() -> dict[str, list[dict[str, Any]]]:
     for path in SCENARIOS:
         result = run("compare", path, "--json")
         assert result.exit_code == 0, result.stderr
-        out[path.stem] = strict_json(result.stdout)
+        out[path.stem] = strict_json(result.stdout)["policies"]
     return out
 
 
@@ -139,7 +139,7 @@ def test_compare_chosen_policies_in_the_order_given(compared: dict[str, list[dic
         "--json",
     )
     assert result.exit_code == 0, result.stderr
-    rows = strict_json(result.stdout)
+    rows = strict_json(result.stdout)["policies"]
     assert [r["policy"] for r in rows] == ["equal-errors", "conventional-science"]
     full = {r["policy"]: r for r in compared["depot-cohort-rate"]}
     # regret is against the loss-optimal choice even when that policy is not listed
@@ -181,7 +181,7 @@ def test_compare_output_writes_once_and_refuses_to_overwrite(tmp_path: Path) -> 
     assert first.exit_code == 0, first.stderr
     assert first.stdout == ""
     written = target.read_text(encoding="utf-8")
-    assert strict_json(written)[0]["policy"] == "loss-optimal"
+    assert strict_json(written)["policies"][0]["policy"] == "loss-optimal"
     assert [p.name for p in tmp_path.iterdir()] == ["out.json"]  # no temporary file left behind
     # a second run without --force leaves the file alone
     target.write_text("keep me", encoding="utf-8")
@@ -228,7 +228,7 @@ def test_new_template_loads_and_runs_through_compare(tmp_path: Path) -> None:
     assert "invented" in loaded.title.lower() or "invented" in target.read_text().lower()
     result = run("compare", target, "--json")
     assert result.exit_code == 0, result.stderr
-    rows = strict_json(result.stdout)
+    rows = strict_json(result.stdout)["policies"]
     assert len(rows) == len(BUILTIN_ORDER) and any(r["feasible"] for r in rows)
     # and `new` will not overwrite it
     one_line_error(run("new", target), str(target), "already exists")
@@ -322,7 +322,7 @@ def test_policy_dir_adds_a_custom_policy(tmp_path: Path) -> None:
         "--json",
     )
     assert result.exit_code == 0, result.stderr
-    mine, best = strict_json(result.stdout)
+    mine, best = strict_json(result.stdout)["policies"]
     assert mine["policy"] == "one-in-a-hundred" and mine["feasible"]
     assert mine["alpha"] == 0.01 and mine["n_per_group"] == 300  # the registry's 300 cases
     assert mine["regret"] >= 0 and best["regret"] == 0

@@ -111,10 +111,11 @@ def test_the_command_line_leads_with_deciding_now_when_no_study_pays(tmp_path: P
     assert shown.stdout.startswith("No study is worth its cost: the best action is to flag now")
     shown = CliRunner().invoke(app, ["optimize", str(path)], env={"COLUMNS": "120"})
     assert shown.stdout.startswith("No study is worth its cost under loss-optimal: flag now")
-    rows = json.loads(CliRunner().invoke(app, ["compare", str(path), "--json"], env={"COLUMNS": "120"}).stdout)
+    data = json.loads(CliRunner().invoke(app, ["compare", str(path), "--json"], env={"COLUMNS": "120"}).stdout)
     flag_now = 0.8 * 3.0e7  # (1 - p_harm) * false_alarm
-    for row in rows:
-        assert row["no_study"]["flag_now"] == pytest.approx(flag_now, rel=1e-12)
+    assert data["no_study"]["flag_now"] == pytest.approx(flag_now, rel=1e-12)
+    assert data["best"]["action"] == "flag-now" and data["best"]["policy"] is None
+    for row in data["policies"]:
         assert row["recommendation"]
         if row["feasible"]:
             assert row["action"] == "flag-now"

@@ -11,6 +11,7 @@ from typer.testing import CliRunner
 from decide import ApproximationWarning, DecideError, InfeasibleError, power
 from decide.cli import app
 from decide.engine.solve import solve
+from decide.report.numbers import for_json
 
 GOOD = {"baseline": 0.01, "effect": 3.0, "alpha": 0.05, "power": 0.8}
 
@@ -227,5 +228,7 @@ def test_cli_json_matches_api(runner) -> None:
     )
     data = _no_nan(result.stdout)
     api = solve("case-control", baseline=0.3, effect=2.0, power=0.9, alpha=0.05, sides=2, test="normal")
-    assert data == json.loads(json.dumps(api.to_dict()))
+    # the command line writes the API's result with snake_case keys (decide.report.numbers.for_json)
+    assert data == json.loads(json.dumps(for_json(api.to_dict())))
+    assert set(data["expected_cases"]) == {"exposed_cases", "unexposed_cases", "exposed_controls", "unexposed_controls"}
     assert (data["n_per_group"], data["n_total"]) == (188, 376)

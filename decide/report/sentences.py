@@ -13,7 +13,7 @@ from typing import Any
 
 from ..decision.optimize import Comparison, Decision
 from ..designs import get_design
-from .text import fmt
+from . import numbers as nb
 
 #: The no-study actions in words ("to ... now").
 _VERB = {"flag-now": "flag", "clear-now": "clear"}
@@ -23,30 +23,35 @@ def _now(action: str) -> str:
     return f"{_VERB[action]} now"
 
 
-def recommendation(d: Decision) -> str:
-    """What the decision recommends, in one or two sentences."""
+def recommendation(d: Decision, currency: str = "") -> str:
+    """What the decision recommends, in one or two sentences (money in ``currency``)."""
     if d.action == "not-available":
         return (f"{d.title} cannot be met: {d.reason}. Without a study, the better action is to "
-                f"{_now(d.no_study_action)} (expected loss {fmt(d.no_study_loss)}).")
+                f"{_now(d.no_study_action)} (expected loss {nb.money(d.no_study_loss, currency)}).")
     if d.action != "study":
         return (f"No study is worth its cost under {d.title.lower()}: {_now(d.action)} "
-                f"(expected loss {fmt(d.no_study_loss)}, against {fmt(d.expected_loss)} with the study).")
+                f"(expected loss {nb.money(d.no_study_loss, currency)}, against "
+                f"{nb.money(d.expected_loss, currency)} with the study).")
     size_name = get_design(d.design).size_name
     sided = "one-sided" if d.sides == 1 else "two-sided"
     return (f"Study {d.n_per_group:,} {size_name} ({d.n_total:,} subjects in all); flag the exposure "
             f"if the {sided} {d.test} test is significant at alpha = {d.alpha:.4g}. "
-            f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): {fmt(d.net_benefit)}.")
+            f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): "
+            f"{nb.money(d.net_benefit, currency)}.")
 
 
-def best_action(c: Comparison) -> str:
-    """The best of all actions in a comparison, a study or none, in one sentence."""
-    now = f"without a study, flagging now would cost {fmt(c.flag_now)} and clearing now {fmt(c.clear_now)}"
+def best_action(c: Comparison, currency: str = "") -> str:
+    """The best of all actions in a comparison, a study or none, in one sentence (money in ``currency``)."""
+    now = (f"without a study, flagging now would cost {nb.money(c.flag_now, currency)} and clearing now "
+           f"{nb.money(c.clear_now, currency)}")
     if c.best_action == "study":
-        title = next(d.title for d in c if d.policy == c.best_policy)
-        return f"Best of all actions: the study of the {title} policy (expected loss {fmt(c.best_loss)}; {now})."
+        # the best study may belong to a policy left out of the comparison shown (--policy)
+        title = next((d.title for d in c if d.policy == c.best_policy), c.best_policy)
+        loss = nb.money(c.best_loss, currency)
+        return f"Best of all actions: the study of the {title} policy (expected loss {loss}; {now})."
     return f"No study is worth its cost: the best action is to {_now(c.best_action)} ({now})."
 
 
-def decision_record(d: Decision) -> dict[str, Any]:
+def decision_record(d: Decision, currency: str = "") -> dict[str, Any]:
     """A decision as plain data for machines, with its recommendation in words."""
-    return {**d.to_dict(), "recommendation": recommendation(d)}
+    return {**d.to_dict(), "recommendation": recommendation(d, currency)}

@@ -1,4 +1,9 @@
-"""Plain machine and document formats: JSON rows, CSV, Markdown."""
+"""Plain machine and document formats: JSON documents, CSV, Markdown.
+
+Machines (JSON, CSV) get full precision, snake_case keys and ``null`` / an
+empty cell for every value that is not a finite number; people (Markdown) get
+the formats of :mod:`decide.report.numbers`, as on screen.
+"""
 
 from __future__ import annotations
 
@@ -8,10 +13,13 @@ from collections.abc import Sequence
 from typing import Any
 
 from ..decision.optimize import Comparison, Decision
-from .sentences import best_action
-from .text import CAUTION, fmt, json_safe
+from ..decision.problem import Problem
+from ..designs import get_design
+from . import numbers as nb
+from .sentences import best_action, decision_record
+from .text import CAUTION, literal, markdown_literal
 
-#: Columns of the flat comparison formats (CSV, Markdown).
+#: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
     "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
     "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
@@ -21,38 +29,95 @@ COMPARE_COLUMNS = (
 
 
 def decision_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
-    """One flat row per policy."""
-    return [{k: json_safe(d.to_dict()[k]) for k in COMPARE_COLUMNS} for d in decisions]
+    """One flat row per policy, for machines."""
+    return [{k: nb.for_json(d.to_dict().get(k)) for k in COMPARE_COLUMNS} for d in decisions]
 
 
 def to_csv(decisions: Sequence[Decision]) -> str:
-    """The comparison as CSV, full precision, empty cells for missing values."""
+    """The comparison as CSV, full precision, empty cells for missing or non-finite values."""
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=COMPARE_COLUMNS, lineterminator="\n")
     w.writeheader()
     for row in decision_rows(decisions):
-        w.writerow({k: "" if v is None else v for k, v in row.items()})
+        w.writerow({k: "" if v is None else literal(v) if isinstance(v, str) else v for k, v in row.items()})
     return buf.getvalue()
 
 
-def to_markdown(decisions: Sequence[Decision], title: str, inputs: list[tuple[str, str]] | None = None) -> str:
-    """The comparison as a Markdown table a board can read, with the inputs and the caution."""
-    head = ["policy", "feasible", "alpha", "attained alpha", "beta", "power (design)",
-            "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
-            "detects (80%)", "implied cost ratio"]
-    lines = [f"# {title}", ""]
-    if inputs:
-        lines += ["## Inputs", ""] + [f"- {label}: {value}" for label, value in inputs] + ["", "## Policies", ""]
-    lines += ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
+def units(problem: Problem, currency: str) -> dict[str, str]:
+    """What the numbers of a comparison are measured in."""
+    d = get_design(problem.study.design)
+    return {
+        "money": currency,
+        "baseline": d.baseline_name,
+        "effect": d.effect_name,
+        "n_per_group": d.size_name,
+    }
+
+
+def compare_document(
+    decisions: Sequence[Decision], problem: Problem, scenario: dict[str, Any], currency: str
+) -> dict[str, Any]:
+    """``compare --json``: the inputs, the no-study options, the best action and one entry per policy.
+
+    ``scenario`` echoes the scenario as read (title, description, file, and
+    its validated contents).  The no-study options do not depend on the
+    policy, so they appear once, not in every policy's entry.  ``best`` is
+    the best of all actions (a study or deciding now) when ``decisions`` is
+    a :class:`~decide.decision.optimize.Comparison`.
+    """
+    policies = []
     for d in decisions:
-        cells = [d.title, "yes" if d.feasible else "no", fmt(d.alpha, 3), fmt(d.attained_alpha, 3),
-                 fmt(d.beta, 3), fmt(d.power_at_design_effect, 3), fmt(d.n_per_group), fmt(d.n_total),
-                 fmt(d.expected_loss, 3), fmt(d.regret, 3), fmt(d.p_harm_given_negative, 3),
-                 fmt(d.detectable_effect, 3), fmt(d.implied_cost_ratio, 3)]
-        lines.append("| " + " | ".join(cells) + " |")
-    lines += ["", f"Stated cost ratio (miss : false alarm): {fmt(decisions[0].stated_cost_ratio)}.", ""]
-    lines += [f"- **{d.title}**: {d.reason}." for d in decisions if not d.feasible]
+        entry = decision_record(d, currency)
+        entry.pop("no_study", None)
+        policies.append(entry)
+    best = None
     if isinstance(decisions, Comparison):
-        lines += ["", best_action(decisions)]
+        best = {"action": decisions.best_action, "policy": decisions.best_policy, "expected_loss": decisions.best_loss,
+                "in_words": best_action(decisions, currency)}
+    document: dict[str, Any] = nb.for_json(
+        {
+            "scenario": scenario,
+            "currency": currency,
+            "units": units(problem, currency),
+            "stated_cost_ratio": decisions[0].stated_cost_ratio if decisions else None,
+            "no_study": dict(decisions[0].no_study) if decisions else {},
+            "best": best,
+            "policies": policies,
+        }
+    )
+    return document
+
+
+_HEAD = ["policy", "meets the constraints", "alpha", "attained alpha", "beta", "power (design)",
+         "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
+         "P(harm \\| positive)", "detects (80%)", "implied cost ratio"]
+
+
+def _markdown_row(d: Decision, cur: str) -> str:
+    cells = [markdown_literal(d.title), "yes" if d.feasible else "no", nb.probability(d.alpha),
+             nb.probability(d.attained_alpha), nb.probability(d.beta), nb.probability(d.power_at_design_effect),
+             nb.count(d.n_per_group), nb.count(d.n_total), nb.money(d.expected_loss, cur),
+             nb.money(d.regret, cur), nb.probability(d.p_harm_given_negative),
+             nb.probability(d.p_harm_given_positive), nb.number(d.detectable_effect),
+             nb.number(d.implied_cost_ratio)]
+    return "| " + " | ".join(cells) + " |"
+
+
+def to_markdown(
+    decisions: Sequence[Decision], title: str, inputs: list[tuple[str, str]] | None = None, currency: str = ""
+) -> str:
+    """The comparison as a Markdown table a board can read, with the inputs and the caution."""
+    cur = markdown_literal(currency)
+    lines = [f"# {markdown_literal(title)}", ""]
+    if inputs:
+        lines += ["## Inputs", ""]
+        lines += [f"- {markdown_literal(label)}: {markdown_literal(value)}" for label, value in inputs]
+        lines += ["", "## Policies", ""]
+    lines += ["| " + " | ".join(_HEAD) + " |", "|" + "---|" * len(_HEAD)]
+    lines += [_markdown_row(d, cur) for d in decisions]
+    lines += ["", f"Stated cost ratio (miss : false alarm): {nb.number(decisions[0].stated_cost_ratio)}.", ""]
+    lines += [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in decisions if not d.feasible]
+    if isinstance(decisions, Comparison):
+        lines += ["", markdown_literal(best_action(decisions, currency))]
     lines += ["", f"_{CAUTION}_", ""]
     return "\n".join(lines)

@@ -1,9 +1,16 @@
-"""Shared wording and number formatting for every renderer."""
+"""Shared wording, and user text made safe to print literally.
+
+Numbers are formatted in :mod:`decide.report.numbers`; ``fmt``,
+``fmt_compact`` and ``json_safe`` remain here as thin aliases for older callers.
+"""
 
 from __future__ import annotations
 
-import math
+import re
+import unicodedata
 from typing import Any
+
+from . import numbers
 
 CAUTION = (
     "Decision support, not a decision: the value judgments (prior, costs, acceptable risks) "
@@ -11,45 +18,89 @@ CAUTION = (
     "and licensed professional judgment."
 )
 
+#: Characters that reorder text on screen (bidirectional embeddings, overrides, isolates).
+_BIDI = frozenset("\u202a\u202b\u202c\u202d\u202e\u2066\u2067\u2068\u2069\u200e\u200f")
+
+
+def _escape(char: str) -> str:
+    code = ord(char)
+    return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
+
+
+def literal(text: Any) -> str:
+    """User text (titles, summaries, currency, units) safe to put before a reader.
+
+    Control characters other than newline and tab (ESC, which starts terminal
+    colour and hyperlink sequences; BEL; C1 controls such as the OSC
+    introducer U+009D) and bidirectional overrides are written as visible
+    escapes (``\\x1b``), so a file's text can neither drive the terminal nor
+    reorder what is shown.  Everything else, including ``[``, ``]`` and
+    ``:``, is kept as written: renderers put the result in plain text objects,
+    never through a markup parser.
+
+    Examples
+    --------
+    >>> literal("a\\x1b]8;;x\\x07b")
+    'a\\\\x1b]8;;x\\\\x07b'
+    >>> literal("[red]x[/red] :warning:")
+    '[red]x[/red] :warning:'
+    """
+    out = []
+    for char in str(text):
+        if char in "\n\t":
+            out.append(char)
+        elif unicodedata.category(char) == "Cc" or char in _BIDI:
+            out.append(_escape(char))
+        else:
+            out.append(char)
+    return "".join(out)
+
+
+def one_line(text: Any) -> str:
+    """User text on one line: :func:`literal`, with runs of white space made one space."""
+    return " ".join(literal(text).split())
+
+
+#: Characters with a meaning inside a Markdown line (emphasis, links, code, HTML, table cells).
+_MD_SPECIAL = re.compile(r"([\\`*_\[\]<>|~])")
+
+
+def markdown_literal(text: Any) -> str:
+    """User text for Markdown: on one line, with Markdown's special characters escaped.
+
+    Examples
+    --------
+    >>> markdown_literal("a | b [x](y) *z* (1 + 2)")
+    'a \\\\| b \\\\[x\\\\](y) \\\\*z\\\\* (1 + 2)'
+    """
+    return _MD_SPECIAL.sub(r"\\\1", one_line(text))
+
 
 def fmt(value: Any, digits: int = 4) -> str:
-    """Format a number for people: significant digits, thousands separators for counts."""
-    if value is None:
-        return "-"
+    """Older callers' number format: counts as :func:`numbers.count`, others as :func:`numbers.number`.
+
+    New code should say what the number is (``money``, ``probability``,
+    ``count``, ``number`` in :mod:`decide.report.numbers`).
+
+    Examples
+    --------
+    >>> fmt(41429), fmt(1.516e7), fmt(0.06824123), fmt(None)
+    ('41,429', '15,160,000', '0.06824', '-')
+    """
     if isinstance(value, bool):
         return "yes" if value else "no"
-    if isinstance(value, int):
-        return f"{value:,}"
-    if isinstance(value, float):
-        if math.isnan(value):
-            return "-"
-        if math.isinf(value):
-            return "inf" if value > 0 else "-inf"
-        if value != 0 and (abs(value) < 1e-3 or abs(value) >= 1e7):
-            return f"{value:.{digits - 1}e}"
-        if float(value).is_integer() and abs(value) >= 1000:
-            return f"{value:,.0f}"
-        return f"{value:.{digits}g}"
-    return str(value)
+    if hasattr(value, "__index__"):
+        return numbers.count(int(value))
+    if hasattr(value, "__float__") and not isinstance(value, str):
+        return numbers.number(float(value), digits)
+    return numbers.MISSING if value is None else str(value)
+
+
+def fmt_compact(value: Any) -> str:
+    """Older callers' short money format: :func:`numbers.money` with ``compact=True``."""
+    return numbers.money(value, compact=True)
 
 
 def json_safe(value: Any) -> Any:
-    """Replace non-finite floats by ``None`` so the JSON is standard."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: json_safe(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [json_safe(v) for v in value]
-    return value
-
-
-def fmt_compact(value: Any, digits: int = 3) -> str:
-    """Short form for narrow columns: 3 significant digits, k/M/G for large values."""
-    if not isinstance(value, float) or math.isnan(value) or math.isinf(value):
-        return fmt(value)
-    size = abs(value)
-    for scale, suffix in ((1e9, "G"), (1e6, "M"), (1e4, "k")):
-        if size >= scale:
-            return f"{value / scale:.{digits}g}{suffix}"
-    return fmt(value, digits)
+    """Older callers' JSON preparation: :func:`numbers.for_json` (snake_case keys, non-finite as null)."""
+    return numbers.for_json(value)

@@ -1,0 +1,209 @@
+"""Golden screens of every human-facing command, and checks no regeneration can erase.
+
+Each command below runs through the command line at terminal widths 80, 100,
+120 and 140 (``COLUMNS`` set, output not a terminal, so no colour) and its
+stdout is compared with ``tests/golden/<case>-<width>.txt``.
+
+To regenerate the golden files after an intended change of wording or layout::
+
+    DECIDE_REGENERATE_GOLDEN=1 python -m pytest tests/test_golden.py
+
+then read the diff (``git diff tests/golden``) before committing it.
+
+The structural checks run on the same output and do not depend on its exact
+text: no line wider than the terminal, every boxed line closed by its right
+border, no heading or cell shortened with an ellipsis, no e-notation in a
+table, money in a compare table as its JSON value with the right suffix, and
+every policy name a user must type shown in full.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import pytest
+from rich.cells import cell_len
+from typer.testing import CliRunner
+
+from decide import cli
+from decide.cli import app
+from decide.report import numbers as nb
+from decide.scenario import BUILTIN_ORDER
+
+REPO = Path(__file__).resolve().parents[1]
+GOLDEN = Path(__file__).resolve().parent / "golden"
+REGENERATE = os.environ.get("DECIDE_REGENERATE_GOLDEN") == "1"
+WIDTHS = (80, 100, 120, 140)
+SCENARIOS = {p.stem: p for p in sorted((REPO / "scenarios").glob("*.toml"))}
+
+CASES: dict[str, list[str]] = {
+    "solve-cohort-risk-size": [
+        "solve", "--design", "cohort-risk", "--baseline", "8e-4", "--effect", "3", "--alpha", "0.05", "--power", "0.8",
+    ],
+    "solve-cohort-rate-power-normal": [
+        "solve", "--design", "cohort-rate", "--baseline", "5e-5", "--years", "5", "--effect", "2.5",
+        "--alpha", "0.05", "--n-per-group", "30000", "--test", "normal",
+    ],
+    "solve-reference-rate-effect": [
+        "solve", "--design", "reference-rate", "--baseline", "3e-5", "--alpha", "0.05", "--power", "0.8",
+        "--n-per-group", "9000", "--years", "8",
+    ],
+    "audit-cohort-risk": [
+        "audit", "--design", "cohort-risk", "--baseline", "8e-4", "--alpha", "0.05", "--effect", "3",
+        "--p-harm", "0.15", "--per-subject", "250", "--n-per-group", "2150", "--unit", "EUR",
+    ],
+    "policies": ["policies"],
+}
+for _stem, _path in SCENARIOS.items():
+    CASES[f"optimize-{_stem}"] = ["optimize", str(_path.relative_to(REPO))]
+    CASES[f"compare-{_stem}"] = ["compare", str(_path.relative_to(REPO))]
+
+#: Left and right border characters of rich's boxes (tables and panels).
+LEFT_EDGES = "┌┏├┡┣│┃└┗╭╰"
+RIGHT_EDGES = "┐┓┤┨┩┫┥┘┛│┃╮╯"
+E_NOTATION = re.compile(r"\d(\.\d+)?e[+-]?\d")
+
+
+def invoke(args: list[str], width: int) -> Any:
+    env = {"COLUMNS": str(width), "LINES": "60", "NO_COLOR": "1", "FORCE_COLOR": None, "TTY_COMPATIBLE": None}
+    result = CliRunner().invoke(app, args, env=env)
+    assert result.exit_code == 0, result.stdout + result.stderr
+    return result
+
+
+def remembered(call: Callable[..., Any]) -> Callable[..., Any]:
+    """``call`` computing each distinct question once: the four widths render one result."""
+    seen: dict[str, Any] = {}
+
+    def again(*args: Any, **kwargs: Any) -> Any:
+        key = repr((args, sorted(kwargs.items())))
+        if key not in seen:
+            seen[key] = call(*args, **kwargs)
+        return seen[key]
+
+    return again
+
+
+@pytest.fixture(scope="module")
+def screens() -> dict[tuple[str, int], str]:
+    """Every case at every width (in the repository, so file names print the same everywhere).
+
+    The computations behind the command line are remembered between widths;
+    everything from the command line's parsing to the rendered text runs anew
+    at each width.
+    """
+    with pytest.MonkeyPatch.context() as mp:
+        for name in ("_solve", "_optimize", "_compare", "_audit"):
+            mp.setattr(cli, name, remembered(getattr(cli, name)))
+        mp.chdir(REPO)
+        return {(name, w): invoke(args, w).stdout for name, args in CASES.items() for w in WIDTHS}
+
+
+PAIRS = [(name, w) for name in CASES for w in WIDTHS]
+IDS = [f"{name}-{w}" for name, w in PAIRS]
+
+
+@pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
+def test_golden_screen(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+    path = GOLDEN / f"{name}-{width}.txt"
+    text = screens[name, width]
+    if REGENERATE:
+        GOLDEN.mkdir(exist_ok=True)
+        path.write_text(text, encoding="utf-8")
+    assert path.exists(), f"no golden file {path.name}; run with DECIDE_REGENERATE_GOLDEN=1"
+    assert text == path.read_text(encoding="utf-8"), f"{name} at {width} columns differs from {path.name}"
+
+
+def boxed_blocks(text: str) -> list[tuple[str, list[str]]]:
+    """(kind, lines) for each box in the output: kind "table" or "panel"."""
+    blocks: list[tuple[str, list[str]]] = []
+    for line in text.splitlines():
+        stripped = line.rstrip()
+        if stripped[:1] in "┌┏╭":
+            blocks.append(("panel" if stripped[0] == "╭" else "table", [stripped]))
+        elif blocks and stripped[:1] in LEFT_EDGES and blocks[-1][1][-1][:1] not in "└┗╰":
+            blocks[-1][1].append(stripped)
+    return blocks
+
+
+@pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
+def test_nothing_is_cropped(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+    text = screens[name, width]
+    for line in text.splitlines():
+        assert cell_len(line) <= width, f"line wider than {width}: {line!r}"
+    assert "…" not in text, "a heading or cell was shortened"
+    blocks = boxed_blocks(text)
+    assert blocks, "expected at least one table"
+    for _, lines in blocks:
+        assert lines[-1][:1] in "└┗╰", f"box not closed at the bottom: {lines[-1]!r}"
+        top, bottom = cell_len(lines[0]), cell_len(lines[-1])
+        for line in lines:
+            assert line[-1] in RIGHT_EDGES, f"right border missing: {line!r}"
+            assert cell_len(line) == top == bottom, f"ragged box: {line!r}"
+
+
+@pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
+def test_no_e_notation_in_tables(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+    text = screens[name, width]
+    for kind, lines in boxed_blocks(text):
+        if kind == "table":
+            for line in lines:
+                assert not E_NOTATION.search(line), line
+    table_free = [line for line in text.splitlines() if line.rstrip()[:1] not in LEFT_EDGES]
+    for line in table_free:
+        assert not E_NOTATION.search(line), line
+
+
+def test_no_e_notation_in_the_notes(screens: dict[tuple[str, int], str]) -> None:
+    # the sentences beneath the tables once read "net benefit ... 1.516e+07" beside "14.8M"
+    for (name, _), text in screens.items():
+        if name.startswith(("optimize", "compare")):
+            for kind, lines in boxed_blocks(text):
+                if kind == "panel":
+                    assert not any(E_NOTATION.search(line) for line in lines), name
+
+
+def table_row(text: str, label: str) -> list[str]:
+    """The cells of every table line whose first cell starts with ``label``, block after block."""
+    cells: list[str] = []
+    for line in text.splitlines():
+        parts = [p.strip() for p in re.split(r"[│┃]", line)[1:-1]]
+        if parts and parts[0].startswith(label):
+            cells += parts[1:]
+    return cells
+
+
+@pytest.mark.parametrize("stem", list(SCENARIOS))
+def test_compare_money_matches_json_with_the_right_suffix(screens: dict[tuple[str, int], str], stem: str) -> None:
+    result = CliRunner().invoke(app, ["compare", str(SCENARIOS[stem]), "--json"])
+    policies = json.loads(result.stdout)["policies"]
+    for width in WIDTHS:
+        text = screens[f"compare-{stem}", width]
+        losses = table_row(text, "expected loss")
+        regrets = table_row(text, "regret")
+        assert len(losses) == len(regrets) == len(policies)
+        for cell, row in zip(losses, policies, strict=True):
+            assert cell == nb.money(row["expected_loss"], compact=True)
+            value = row["expected_loss"]
+            if value is not None and value >= 1e4:
+                assert cell[-1] in "kM" or cell.endswith("bn")
+        for cell, row in zip(regrets, policies, strict=True):
+            assert cell == nb.money(row["regret"], compact=True)
+
+
+def test_a_regret_of_454778_reads_455k() -> None:
+    # The defect as first seen: a regret of 454,778 shown as "45.5k".
+    assert nb.money(454_778.0, compact=True) == "455k"
+
+
+@pytest.mark.parametrize("width", WIDTHS)
+def test_policies_show_every_name_in_full(screens: dict[tuple[str, int], str], width: int) -> None:
+    text = screens["policies", width]
+    first_cells = {re.split(r"[│┃]", line)[1].strip() for line in text.splitlines() if line.startswith(("│", "┃"))}
+    for name in BUILTIN_ORDER:
+        assert name in first_cells, f"{name} not shown whole in the name column at {width} columns"
