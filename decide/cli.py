@@ -464,7 +464,8 @@ def new_command(
     """Write a commented scenario template (or a bundled example) to start from."""
     text = scenario_template() if example is None else run_api("new", lambda: example_text(example))
     run_api("new", lambda: write_text_atomic(path, text, overwrite=force))
-    sys.stderr.write(f"wrote {path}; edit it, then run: decide compare {path}\n")
+    shown = one_line(str(path))
+    sys.stderr.write(f"wrote {shown}; edit it, then run: decide compare {shown}\n")
 
 
 class _Interrupted(BaseException):
