@@ -29,6 +29,7 @@ import sys
 import time
 import warnings
 from collections.abc import Callable
+from functools import partial
 from pathlib import Path
 
 from decide.decision.optimize import optimize
@@ -88,7 +89,7 @@ def main() -> None:
         for name, study in EXACT_STUDIES.items():
             prob = exact_problem(study)
             dec = optimize(prob)
-            seconds = median_seconds(lambda prob=prob: optimize(prob), 3)
+            seconds = median_seconds(partial(optimize, prob), 3)
             rows.append((f"optimize {name} (exact, cap {EXACT_CAP:,})", f"n = {dec.n_per_group:,}", seconds, 2.0))
 
     # the installed console script beside this interpreter, else the same entry point by -c

@@ -25,6 +25,7 @@ from __future__ import annotations
 import statistics
 import time
 from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 
@@ -166,17 +167,17 @@ def main() -> None:
 # pytest-benchmark entry points (not collected by the default test run)
 
 
-def test_bench_normal_sizes(benchmark) -> None:
+def test_bench_normal_sizes(benchmark: Any) -> None:
     x = mixed_inputs(N_SOLVES)
     benchmark(ours, x)
 
 
-def test_bench_statsmodels_loop(benchmark) -> None:
+def test_bench_statsmodels_loop(benchmark: Any) -> None:
     x = mixed_inputs(N_SOLVES)
     benchmark.pedantic(reference_loop, args=(x, 200), rounds=3)
 
 
-def test_bench_exact_points(benchmark) -> None:
+def test_bench_exact_points(benchmark: Any) -> None:
     runs = [exact_point(d) for d in ("cohort-risk", "cohort-rate", "case-control")]
     benchmark(lambda: [run() for run in runs])
 

@@ -13,6 +13,7 @@ capped at 1.  Count ranges are cut where the neglected tail mass is below
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from functools import cache
 
 import numpy as np
@@ -74,7 +75,9 @@ def poisson_p(x: int, mean: float, sides: int) -> float:
     return central(upper, float(stats.poisson.cdf(x, mean)), sides)
 
 
-def _rejected_mass(x1, w1, x0, w0, pvalue, alpha):
+def _rejected_mass(
+    x1: np.ndarray, w1: np.ndarray, x0: np.ndarray, w0: np.ndarray, pvalue: Callable[[int, int], float], alpha: float
+) -> float:
     total = 0.0
     for a, wa in zip(x1, w1, strict=True):
         for b, wb in zip(x0, w0, strict=True):

@@ -6,11 +6,14 @@ installed copy, in a development set-up the editable install or ``PYTHONPATH``.
 checkout would shadow an installed copy with the checkout's ``decide/``; that
 entry is taken off again here, before any test imports ``decide`` (tests run
 with ``--import-mode=importlib``, so pytest itself adds no folder of ours).
+The first process records where ``decide`` is then found; pytest-xdist's
+workers, which put the working folder first again, follow that record.
 (``tests/test_installed.py`` fails under ``CI=true`` if the checkout is tested.)
 """
 
 from __future__ import annotations
 
+import importlib.util
 import os
 import sys
 from pathlib import Path
@@ -18,18 +21,30 @@ from pathlib import Path
 from hypothesis import HealthCheck, settings
 
 CHECKOUT = Path(__file__).resolve().parents[1]
+#: Set by the first pytest process: the folder ``decide`` is imported from.
+_UNDER_TEST = "DECIDE_TESTS_IMPORT_FROM"
 
 
-def _drop_working_folder() -> None:
-    """Take off ``sys.path[0]`` if it is the checkout put there by ``python -m`` (not ``PYTHONPATH``)."""
-    if sys.flags.safe_path or not sys.path or "decide" in sys.modules:
+def _is_checkout(entry: str) -> bool:
+    return Path(entry or os.curdir).resolve() == CHECKOUT
+
+
+def _keep_the_checkout_off_the_path() -> None:
+    """Import ``decide`` from where Python would without ``python -m``'s working folder."""
+    if "decide" in sys.modules:
         return
-    first = sys.path[0]
-    if Path(first or os.curdir).resolve() == CHECKOUT:
-        del sys.path[0]
+    chosen = os.environ.get(_UNDER_TEST)
+    if chosen is None:  # the first process
+        if not sys.flags.safe_path and sys.path and _is_checkout(sys.path[0]):
+            del sys.path[0]
+        spec = importlib.util.find_spec("decide")
+        origin = spec.origin if spec is not None else None
+        os.environ[_UNDER_TEST] = chosen = str(Path(origin).resolve().parents[1]) if origin else ""
+    elif chosen and Path(chosen) != CHECKOUT:  # a worker; the checkout was not chosen
+        sys.path[:] = [entry for entry in sys.path if not _is_checkout(entry)]
 
 
-_drop_working_folder()
+_keep_the_checkout_off_the_path()
 # The tests' shared helpers (brute_force, decision_helpers) are imported by name.
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import get_design
@@ -40,11 +42,11 @@ def fixed_size_problem(
     )
 
 
-def power_kwargs(problem: Problem, *, with_test: bool = True) -> dict[str, object]:
+def power_kwargs(problem: Problem, *, with_test: bool = True) -> dict[str, Any]:
     """The keywords of :func:`decide.power.power` that describe the problem's study."""
     s = problem.study
     d = get_design(s.design)
-    out: dict[str, object] = {
+    out: dict[str, Any] = {
         "allocation": s.allocation if d.allocation_name else None,
         "years": s.years if d.uses_years else None,
         "sides": s.sides,

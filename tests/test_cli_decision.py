@@ -13,6 +13,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import os
 import subprocess
 import sys
 import zipfile
@@ -56,7 +57,7 @@ COMPARE_KEYS = (DECISION_KEYS - {"no_study"}) | {
 }
 
 
-def run(*args: str) -> Any:
+def run(*args: str | Path) -> Any:
     return CliRunner().invoke(app, [str(a) for a in args], env=ENV)
 
 
@@ -332,6 +333,8 @@ def test_missing_policy_dir_is_one_line(tmp_path: Path) -> None:
     one_line_error(run("policies", "--policy-dir", tmp_path / "absent"), "absent", "no such policy folder")
 
 
+# Building a wheel takes seconds: CI runs it (CI set in the environment), local runs skip it.
+@pytest.mark.skipif(not os.environ.get("CI"), reason="builds a wheel; runs where CI is set")
 @pytest.mark.slow
 def test_non_editable_wheel_carries_the_bundled_policies(tmp_path: Path) -> None:
     pytest.importorskip("hatchling")  # the build backend, used in place (--no-build-isolation)

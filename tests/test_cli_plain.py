@@ -194,7 +194,7 @@ def keys_of(data: Any) -> list[str]:
     return []
 
 
-MACHINE_RUNS = [
+MACHINE_RUNS: list[list[Any]] = [
     ["solve", "--design", "cohort-rate", "--baseline", "5e-5", "--years", "5", "--effect", "2.5",
      "--alpha", "0.05", "--n-per-group", "30000", "--test", "normal", "--json"],
     ["optimize", DEPOT, "--json"],

@@ -2,7 +2,7 @@
 
 Each reported number is recomputed in the test from its definition:
 
-* ``loss_parts`` add up to ``expected_loss``;
+* ``expected_loss`` is the sum of the three parts, each recomputed here:
 * ``missed = p E[beta(theta) M(theta)]`` and
   ``false_alarm = (1 - p) alpha_attained F``, the power and attained alpha
   taken from ``decide.power.power`` (a path separate from the optimiser's);
@@ -13,7 +13,7 @@ Each reported number is recomputed in the test from its definition:
 * ``P(harm | negative) = p beta / (p beta + (1 - p)(1 - alpha))`` (Bayes' rule).
 
 Finally a seeded Monte Carlo simulation of the whole decision process
-(harm or not, an effect from the prior, counts from the design's Poisson
+(harm or not, an effect from the prior above 1, counts from the design's Poisson
 distributions, the exact conditional test by scipy p-values, the costs
 charged) must agree with the expected loss within four standard errors.
 """
@@ -86,6 +86,7 @@ def recompute(problem: Problem, dec: Decision) -> dict[str, float]:
     # (composite Gauss-Legendre, 128 panels, a panel edge at the cost's kink at effect 1)
     effects, weights = problem.effect.nodes(128, kink=1.0 if cost.is_derived else None)
     missed_cost = cost.missed_cost(effects)
+    assert dec.alpha is not None and dec.n_per_group is not None and dec.test is not None
     r = power(
         s.design,
         dec.alpha,
@@ -101,6 +102,7 @@ def recompute(problem: Problem, dec: Decision) -> dict[str, float]:
     p = problem.p_harm
     attained = float(r.attained_alpha[0])
     beta = float(np.sum(weights * (1 - r.power)))
+    assert dec.n_per_group is not None
     return {
         "missed": p * float(np.sum(weights * (1 - r.power) * missed_cost)),
         "false_alarm": (1 - p) * attained * cost.false_alarm,
@@ -127,9 +129,10 @@ def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> N
         ref = recompute(problem, dec)
         parts = dec.loss_parts
         assert parts is not None and set(parts) == {"missed", "false_alarm", "study"}
-        assert sum(parts.values()) == pytest.approx(dec.expected_loss, rel=1e-12)
         # the engine neglects count tails below 1e-12 (decide.power), hence the abs terms
         scale = ref["clear_now"] / problem.p_harm + problem.consequences.false_alarm  # E[M] + F
+        total = ref["missed"] + ref["false_alarm"] + ref["study"]
+        assert dec.expected_loss == pytest.approx(total, rel=1e-9, abs=1e-11 * scale)
         assert parts["missed"] == pytest.approx(ref["missed"], rel=1e-9, abs=1e-11 * scale)
         assert parts["false_alarm"] == pytest.approx(ref["false_alarm"], rel=1e-9, abs=1e-11 * scale)
         assert parts["study"] == pytest.approx(ref["study"], rel=1e-12)
@@ -137,10 +140,13 @@ def test_every_feasible_policy_reports_consistent_numbers(problem: Problem) -> N
         assert dec.attained_alpha == pytest.approx(ref["attained"], rel=1e-9, abs=1e-12)
         assert dec.beta == pytest.approx(ref["beta"], rel=1e-9, abs=1e-12)
         assert dec.no_study == pytest.approx({"flag_now": ref["flag_now"], "clear_now": ref["clear_now"]}, rel=1e-12)
-        assert dec.net_benefit == pytest.approx(min(ref["flag_now"], ref["clear_now"]) - dec.expected_loss, rel=1e-9)
+        assert dec.net_benefit == pytest.approx(
+            min(ref["flag_now"], ref["clear_now"]) - total, rel=1e-9, abs=1e-11 * scale
+        )
         assert dec.p_harm_given_negative == pytest.approx(ref["given_negative"], rel=1e-8)
         assert dec.p_harm_given_positive == pytest.approx(ref["given_positive"], rel=1e-8)
         says_no_study = "No study is worth its cost" in recommendation(dec)
+        assert dec.net_benefit is not None
         assert says_no_study == (dec.feasible and dec.net_benefit <= 0)
         assert (dec.action in ("flag-now", "clear-now")) == says_no_study
 
@@ -162,8 +168,16 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
     flag, clear = 0.7 * 1e6, 0.3 * 1e6
     assert dec.no_study == pytest.approx({"flag_now": flag, "clear_now": clear})
     assert dec.feasible
+    assert dec.expected_loss is not None
     assert dec.expected_loss > 5e5 > min(flag, clear)
-    assert dec.net_benefit == pytest.approx(min(flag, clear) - dec.expected_loss)
+    # the loss of the chosen test recomputed from its definition, power from decide.power.power
+    assert dec.alpha is not None and dec.n_per_group is not None
+    r = power("cohort-rate", dec.alpha, dec.n_per_group, 2.0, 1e-3, allocation=1.0, years=5.0, test="normal")
+    assert dec.n_total is not None
+    loss = 0.3 * (1 - float(r.power)) * 1e6 + 0.7 * float(r.attained_alpha) * 1e6 + 5e5 + 5.0 * dec.n_total
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-9)
+    assert dec.net_benefit == pytest.approx(min(flag, clear) - loss, rel=1e-9)
+    assert dec.net_benefit is not None
     assert dec.net_benefit < 0
     assert recommendation(dec).startswith("No study is worth its cost")
     assert "clear now" in recommendation(dec)  # clearing costs 3e5, flagging 7e5
@@ -177,6 +191,7 @@ def test_no_study_is_recommended_when_every_study_costs_more_than_it_saves() -> 
         prob.constraints,
     )
     worth = optimize(cheap)
+    assert worth.net_benefit is not None
     assert worth.net_benefit > 0
     assert "No study is worth its cost" not in recommendation(worth)
     assert recommendation(worth).startswith(f"Study {worth.n_per_group:,} ")
@@ -199,7 +214,18 @@ def test_two_sided_probabilities_stay_probabilities() -> None:
     )
     dec = optimize(prob)
     for value in (dec.alpha, dec.attained_alpha, dec.beta, dec.power, dec.power_at_design_effect):
-        assert 0.0 <= value <= 1.0
+        assert value is not None and 0.0 <= value <= 1.0
+    # the same test through decide.power.power, and its loss from the definition
+    with pytest.warns(ApproximationWarning):  # 2.5 expected cases per group
+        assert dec.alpha is not None
+        r = power("cohort-rate", dec.alpha, 500, 1.5, 1e-3, allocation=1.0, years=5.0, sides=2, test="normal")
+    assert dec.alpha is not None and dec.attained_alpha is not None
+    assert dec.alpha > 0.99 and dec.attained_alpha == pytest.approx(float(r.attained_alpha), rel=1e-12)
+    assert dec.beta == pytest.approx(1 - float(r.power), rel=1e-6, abs=1e-15)
+    loss = 0.9 * 1e6 * (1 - float(r.power)) + 0.1 * 1e6 * float(r.attained_alpha) + 1.0 * 1000
+    assert dec.expected_loss == pytest.approx(loss, rel=1e-12)
+    # flagging always (alpha -> 1) costs (1 - p) F plus the study: nothing does better here
+    assert dec.expected_loss == pytest.approx(0.1 * 1e6 + 1000, rel=1e-11)
 
 
 def test_seeded_simulation_of_the_decision_process_agrees_with_expected_loss() -> None:
@@ -210,12 +236,17 @@ def test_seeded_simulation_of_the_decision_process_agrees_with_expected_loss() -
     assert dec.test == "exact" and dec.feasible
     s, cost = prob.study, prob.consequences
     n = dec.n_per_group
+    assert n is not None and dec.alpha is not None and dec.expected_loss is not None and dec.loss_parts is not None
     n0 = int(np.floor(s.allocation * n + 0.5))
     share = n / (n + n0)  # T1 / (T1 + T0), equal follow-up
     rng = np.random.default_rng(20240611)
     draws = 400_000
     harmful = rng.random(draws) < prob.p_harm
-    theta = prob.effect.median * np.exp(prob.effect.log_sd * rng.standard_normal(draws))
+    # the effect under harm: the lognormal prior above a ratio of 1 (inverse-cdf draws of the
+    # standard normal truncated below at the point where the ratio is 1)
+    at_one = stats.norm.cdf(-np.log(prob.effect.median) / prob.effect.log_sd)
+    u = stats.norm.ppf(at_one + rng.random(draws) * (1 - at_one))
+    theta = prob.effect.median * np.exp(prob.effect.log_sd * u)
     x1 = rng.poisson(s.baseline * n * s.years * np.where(harmful, theta, 1.0))
     x0 = rng.poisson(s.baseline * n0 * s.years, size=draws)
     # one-sided conditional binomial test: P(Bin(x1 + x0, share) >= x1)

@@ -102,22 +102,25 @@ def test_normal_fixed_size_alpha_is_the_bayes_critical_value(
     alpha = stats.norm.sf(z)
     assert dec.test == "normal"
     assert dec.n_per_group == n
-    assert dec.alpha == pytest.approx(alpha, rel=1e-6, abs=0)
-    assert dec.attained_alpha == pytest.approx(alpha, rel=1e-6, abs=0)
-    assert 1 - dec.power == pytest.approx(stats.norm.cdf(z - d), rel=1e-6, abs=0)
+    # measured 3.2e-8: the loss is flat at its minimum, so the optimal z is found to about 1e-8; five times
+    assert dec.alpha == pytest.approx(alpha, rel=2e-7, abs=0)
+    assert dec.attained_alpha == pytest.approx(alpha, rel=2e-7, abs=0)
+    assert dec.power is not None
+    assert 1 - dec.power == pytest.approx(stats.norm.cdf(z - d), rel=2e-7, abs=0)
     loss = p * M * stats.norm.cdf(z - d) + (1 - p) * F * alpha + 1.0 * n
     assert dec.expected_loss == pytest.approx(loss, rel=1e-9)
     # the defining property: phi(z* - d) / phi(z*) = k
     k = (1 - p) * F / (p * M)
     z_dec = stats.norm.isf(dec.alpha)
-    assert stats.norm.pdf(z_dec - d) / stats.norm.pdf(z_dec) == pytest.approx(k, rel=1e-5)
+    # measured 5.7e-8; about five times
+    assert stats.norm.pdf(z_dec - d) / stats.norm.pdf(z_dec) == pytest.approx(k, rel=3e-7)
 
 
 def marginal_value(n: float, p: float, F: float, M: float, sir: float, baseline: float, years: float) -> float:
     """p M phi(z* - d) d / (2n): the fall in expected error loss per extra subject."""
     d = shift(n, baseline, years, sir)
     z = bayes_z(p, F, M, d)
-    return p * M * stats.norm.pdf(z - d) * d / (2 * n)
+    return float(p * M * stats.norm.pdf(z - d) * d / (2 * n))
 
 
 # (p_harm, F, M, SIR, baseline, years, per_subject)
@@ -141,7 +144,7 @@ def test_joint_optimum_meets_the_envelope_condition(
     )
     assert dec.test == "normal" and dec.feasible
     n = dec.n_per_group
-    assert dec.n_total == n
+    assert n is not None and dec.n_total == n
     args = (p, F, M, sir, baseline, years)
     # integer rounding: the marginal value is above the cost one subject before
     # the optimum and below it one subject after
@@ -152,7 +155,8 @@ def test_joint_optimum_meets_the_envelope_condition(
     assert abs(root - n) <= 1.0
     # alpha at that n is the fixed-n Bayes critical value
     z = bayes_z(p, F, M, shift(n, baseline, years, sir))
-    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-6, abs=0)
+    # measured 1.7e-8 (z found to about 1e-8 on a flat loss); about five times
+    assert dec.alpha == pytest.approx(stats.norm.sf(z), rel=1e-7, abs=0)
 
 
 @pytest.mark.parametrize(
@@ -184,5 +188,6 @@ def test_exact_fixed_size_critical_count_is_the_bayes_count(
     counts = np.arange(1, int(stats.poisson.isf(1e-15, sir * E)) + 2)
     losses = p * M * stats.poisson.cdf(counts - 1, sir * E) + (1 - p) * F * stats.poisson.sf(counts - 1, E)
     assert counts[np.argmin(losses)] == c
+    assert dec.loss_parts is not None
     errors = dec.loss_parts["missed"] + dec.loss_parts["false_alarm"]
     assert errors == pytest.approx(losses.min(), rel=1e-9, abs=(p * M + (1 - p) * F) * tail)

@@ -128,7 +128,7 @@ def test_csv_carries_the_action_and_both_posterior_probabilities() -> None:
     from decide.report.tables import to_csv
 
     cmp = compare(problem(fixed=5e5), [POLICIES["loss-optimal"]])
-    (row,) = list(csv.DictReader(io.StringIO(to_csv(cmp))))
+    (row,) = list(csv.DictReader(io.StringIO(to_csv(cmp.decisions))))
     d = cmp[0]
     assert row["action"] == "clear-now"
     assert d.p_harm_given_positive is not None and d.p_harm_given_negative is not None

@@ -1,8 +1,8 @@
 """Properties of the decision engine on random problems (hypothesis).
 
-* Optimality: the loss of ``optimize`` is within 0.1 % of a brute-force
+* Optimality: the loss of ``optimize`` agrees to 5e-8 with a brute-force
   minimum over every whole size in the allowed range and, at each size, a
-  dense grid of normal critical values (refined around the best) or every
+  grid of normal critical values (refined around the best) or every
   attainable critical region of the exact test.  For the reference-rate
   exact test the regions come from ``scipy.stats.poisson`` (reject
   ``O >= c`` for every ``c``); for the other designs from
@@ -93,16 +93,17 @@ def problems(draw: st.DrawFn, constant_missed: bool = False, budget: bool = Fals
         **missed,
     )
     low_n = draw(st.integers(5, 300))
+    spread = draw(st.integers(0, 25))
     cons = Constraints(
         min_n_per_group=low_n,
-        max_n_per_group=low_n + draw(st.integers(0, 25)),
+        max_n_per_group=low_n + spread,
         max_alpha=draw(st.sampled_from([1.0, 1.0, 0.1])),
         min_power=draw(st.sampled_from([0.0, 0.0, 0.3])),
     )
     prob = Problem(study, prior, draw(st.floats(0.05, 0.8)), cost, cons)
     if budget and draw(st.booleans()):
         model = build_model(prob)
-        smallest, largest = (float(model.study_cost(np.array(float(n)))) for n in (low_n, cons.max_n_per_group))
+        smallest, largest = (float(model.study_cost(np.array(float(n)))) for n in (low_n, low_n + spread))
         limit = smallest + draw(st.floats(0.0, 1.0)) * (largest - smallest)
         prob = dataclasses.replace(prob, constraints=dataclasses.replace(cons, budget=limit))
     return prob
@@ -113,10 +114,11 @@ def problems(draw: st.DrawFn, constant_missed: bool = False, budget: bool = Fals
 
 
 def normal_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
-    """Least error loss of the normal test at each size over critical values z (dense, then refined)."""
+    """Least error loss of the normal test at each size over critical values z (coarse, then refined)."""
     model = build_model(problem)
     s, cons, p = problem.study, problem.constraints, problem.p_harm
-    lowest = 1e-9 if s.sides == 2 else -6.0  # two-sided alphas above 1 are not tests
+    # levels up to 1 - 1e-12, the range the optimiser searches (two-sided alphas above 1 are not tests)
+    lowest = float(-special.ndtri((1 - 1e-12) / 2) if s.sides == 2 else special.ndtri(1e-12))
 
     def loss(z: np.ndarray) -> np.ndarray:  # z: (sizes, grid)
         alpha = s.sides * special.ndtr(-z)
@@ -137,12 +139,21 @@ def normal_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
         ok = (alpha <= cons.max_alpha * (1 + 1e-9)) & (agg[..., DESIGN] >= cons.min_power - 1e-9)
         return np.where(ok, err, np.inf)
 
-    z = np.broadcast_to(np.linspace(lowest, 12.0, 1201), (sizes.size, 1201))
-    coarse = loss(z)
-    best = z[np.arange(sizes.size), np.argmin(coarse, axis=1)]
+    # a coarse grid of critical values, then three refinements of 41 points within a step of
+    # the best so far: the step falls from 0.075 to 9e-6 with 364 evaluations per size
+    z = np.broadcast_to(np.linspace(lowest, 12.0, 241), (sizes.size, 241))
+    values = loss(z)
+    found = values.min(axis=1)
+    best = z[np.arange(sizes.size), np.argmin(values, axis=1)]
     step = z[0, 1] - z[0, 0]
-    fine = np.maximum(best[:, None] + np.linspace(-step, step, 401), lowest)
-    return np.minimum(coarse.min(axis=1), loss(fine).min(axis=1))
+    for _ in range(3):
+        z = np.maximum(best[:, None] + np.linspace(-step, step, 41), lowest)
+        values = loss(z)
+        better = values.min(axis=1) < found
+        found = np.where(better, values.min(axis=1), found)
+        best = np.where(better, z[np.arange(sizes.size), np.argmin(values, axis=1)], best)
+        step /= 20
+    return np.asarray(found)
 
 
 def exact_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
@@ -162,12 +173,12 @@ def exact_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
         valid = attained < 1
         err = p * np.maximum(model.expected_missed - agg[..., MISSED], 0.0) + (1 - p) * false_alarm * attained
         ok = valid & (attained <= cons.max_alpha * (1 + 1e-9)) & (agg[..., DESIGN] >= cons.min_power - 1e-9)
-        return np.where(ok, err, np.inf).min(axis=1)
+        return np.asarray(np.where(ok, err, np.inf).min(axis=1))
     out = np.full(sizes.size, np.inf)
     for idx, opts in exact_batches(model, sizes):
-        c = opts.chars
-        err = model.error_loss(c.attained, c.missed)
-        ok = opts.valid & (c.nominal <= cons.max_alpha * (1 + 1e-9)) & (c.design_power >= cons.min_power - 1e-9)
+        ch = opts.chars
+        err = model.error_loss(ch.attained, ch.missed)
+        ok = opts.valid & (ch.nominal <= cons.max_alpha * (1 + 1e-9)) & (ch.design_power >= cons.min_power - 1e-9)
         out[idx] = np.where(ok, err, np.inf).min(axis=1)
     return out
 
@@ -175,6 +186,7 @@ def exact_error_loss(problem: Problem, sizes: np.ndarray) -> np.ndarray:
 def brute_force_minimum(problem: Problem) -> float:
     model = build_model(problem)
     cons = problem.constraints
+    assert cons.max_n_per_group is not None
     sizes = np.arange(cons.min_n_per_group, cons.max_n_per_group + 1, dtype=np.float64)
     exact = model.uses_exact(sizes)
     err = np.full(sizes.size, np.inf)
@@ -190,15 +202,17 @@ def brute_force_minimum(problem: Problem) -> float:
 
 @settings(max_examples=25)
 @given(problems(budget=True))
-def test_optimize_is_within_a_tenth_of_a_percent_of_brute_force(problem: Problem) -> None:
+def test_optimize_matches_the_brute_force_minimum(problem: Problem) -> None:
     dec = optimize(problem)
     best = brute_force_minimum(problem)
     if not np.isfinite(best):
         assert not dec.feasible
         return
     assert dec.feasible
-    assert dec.expected_loss <= best * (1 + 1e-3)
-    assert best <= dec.expected_loss * (1 + 1e-3)
+    # measured over these examples: |loss / brute force - 1| <= 1.1e-8, from the brute force
+    # integrating the prior with the optimiser's search rule while the decision reports the
+    # refined integral (at most 2e-11 where the two rules agree); allow about five times that
+    assert dec.expected_loss == pytest.approx(best, rel=5e-8)
 
 
 # --------------------------------------------------------------------------
@@ -215,6 +229,7 @@ def test_a_costlier_miss_never_lowers_the_optimal_power(problem: Problem, factor
     )
     first, second = optimize(problem), optimize(dearer)
     if first.feasible and second.feasible:
+        assert first.power is not None and second.power is not None
         assert second.power >= first.power - 1e-9
 
 
@@ -225,6 +240,7 @@ def test_a_costlier_subject_never_raises_the_optimal_size(problem: Problem, fact
     dearer = dataclasses.replace(problem, consequences=dataclasses.replace(cost, per_subject=cost.per_subject * factor))
     first, second = optimize(problem), optimize(dearer)
     if first.feasible and second.feasible:
+        assert first.n_total is not None and second.n_total is not None
         assert second.n_total <= first.n_total
 
 
@@ -253,6 +269,9 @@ def test_every_feasible_policy_keeps_its_rules_and_the_constraints(problem: Prob
             continue
         pol = POLICIES[dec.policy]
         n = dec.n_per_group
+        # a feasible decision reports every number
+        assert n is not None and dec.loss_parts is not None and dec.alpha is not None and dec.beta is not None
+        assert dec.attained_alpha is not None and dec.power_at_design_effect is not None
         assert cons.min_n_per_group <= n
         assert cons.max_n_per_group is None or n <= cons.max_n_per_group
         if cons.budget is not None:
@@ -269,6 +288,7 @@ def test_every_feasible_policy_keeps_its_rules_and_the_constraints(problem: Prob
         if pol.alpha_rule == "equal-to-beta" and dec.test == "normal":
             assert dec.attained_alpha == pytest.approx(dec.beta, abs=1e-6)
         if pol.size_rule == "largest-allowed":
+            assert cons.max_n_per_group is not None
             sizes = np.arange(cons.min_n_per_group, cons.max_n_per_group + 1, dtype=np.float64)
             if cons.budget is not None:
                 sizes = sizes[model.study_cost(sizes) <= cons.budget * (1 + 1e-12)]
@@ -279,5 +299,6 @@ def test_every_feasible_policy_keeps_its_rules_and_the_constraints(problem: Prob
             test = "exact" if dec.test == "exact" else "normal"
             lower = dec.alpha * (1 - (1e-9 if test == "exact" else 1e-6))
             beta, design_power, attained = prior_beta_and_design_power(problem, lower, n, test)
+            assert pol.power is not None
             fails = design_power < pol.power - 1e-12 or (pol.beta_at_most_alpha and beta > attained + 1e-12)
             assert fails

@@ -38,7 +38,8 @@ from decide.scenario.bundled import first_bundled_dir
 
 REPO = Path(__file__).resolve().parents[1]
 PACKAGE = Path(decide.__file__).resolve().parent
-IN_CI = os.environ.get("CI") == "true"
+IN_CI = os.environ.get("CI") == "true"  # as .ci/run (and most CI services) set it
+BUILDS = bool(os.environ.get("CI"))  # the builds run where CI is set at all
 #: decide was installed from a wheel (not imported from a checkout or an editable install).
 FROM_WHEEL = (PACKAGE / "_policies").is_dir()
 PYPROJECT = tomllib.loads((REPO / "pyproject.toml").read_text(encoding="utf-8"))
@@ -56,6 +57,11 @@ def child_env() -> dict[str, str]:
 def test_ci_tests_the_installed_package_not_the_checkout() -> None:
     assert not PACKAGE.is_relative_to(REPO), f"the checkout's decide was tested: {PACKAGE}"
     assert FROM_WHEEL, f"decide at {PACKAGE} was not installed from a wheel"
+
+
+def test_this_process_tests_the_decide_the_first_one_found() -> None:
+    # pytest-xdist workers put the working folder first on sys.path; conftest.py undoes that.
+    assert str(PACKAGE.parent) == os.environ["DECIDE_TESTS_IMPORT_FROM"]
 
 
 def test_version_is_written_once_in_pyproject() -> None:
@@ -144,7 +150,7 @@ def test_python_dash_m_writes_an_example_away_from_the_checkout(tmp_path: Path) 
     assert (tmp_path / "start.toml").read_bytes() == (REPO / "scenarios" / "solvent-cohort.toml").read_bytes()
 
 
-@pytest.mark.skipif(not IN_CI, reason="builds the sdist and a wheel from it: CI=true only")
+@pytest.mark.skipif(not BUILDS, reason="builds the sdist and a wheel from it; runs where CI is set")
 def test_sdist_builds_a_wheel_with_everything(tmp_path: Path) -> None:
     # What a user installing from the sdist gets: build it as pyproject says,
     # unpack it, and build the wheel from the unpacked tree.

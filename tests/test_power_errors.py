@@ -4,19 +4,20 @@ from __future__ import annotations
 
 import json
 import math
+from typing import Any, NoReturn
 
 import pytest
-from typer.testing import CliRunner
+from typer.testing import CliRunner, Result
 
 from decide import ApproximationWarning, DecideError, InfeasibleError, power
 from decide.cli import app
-from decide.engine.solve import solve
+from decide.engine.solve import Solution, solve
 from decide.report.numbers import for_json
 
 GOOD = {"baseline": 0.01, "effect": 3.0, "alpha": 0.05, "power": 0.8}
 
 
-def _solve(design: str = "cohort-risk", **changes):
+def _solve(design: str = "cohort-risk", **changes: Any) -> Solution:
     kwargs = {**GOOD, **changes}
     return solve(design, **{k: v for k, v in kwargs.items() if v is not None})
 
@@ -57,7 +58,7 @@ def _solve(design: str = "cohort-risk", **changes):
         ("cohort-risk", {"max_n_per_group": 0}, r"^max_n_per_group must be a whole number not less than 1"),
     ],
 )
-def test_impossible_input(design, changes, match) -> None:
+def test_impossible_input(design: str, changes: dict[str, Any], match: str) -> None:
     with pytest.raises(DecideError, match=match) as info:
         _solve(design, **changes)
     assert not isinstance(info.value, InfeasibleError)
@@ -65,7 +66,7 @@ def test_impossible_input(design, changes, match) -> None:
 
 
 @pytest.mark.parametrize("n", [0, -5, 10.5])
-def test_sizes_must_be_whole_and_positive(n) -> None:
+def test_sizes_must_be_whole_and_positive(n: float) -> None:
     with pytest.raises(DecideError, match=r"^n_per_group must be a whole number not less than 1"):
         _solve(power=None, n_per_group=n)
     with pytest.raises(DecideError, match=r"^n_per_group must be a whole number not less than 1"):
@@ -89,7 +90,9 @@ def test_power_rejects_bad_arrays() -> None:
 @pytest.mark.parametrize(
     ("design", "changes", "match"),
     [
-        # a size beyond the cap, normal and exact
+        # a size beyond the cap, normal and exact; the normal size is statsmodels' (0.15):
+        # samplesize_proportions_2indep_onetail(diff=0.01, prop2=0.01, power=0.8, ratio=1,
+        #     alpha=0.05, alternative="larger") = 1825.899..., rounded up to a whole subject
         ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100}, r"^n_per_group: the normal test needs 1,826"),
         ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100, "test": "exact"},
          r"^n_per_group: no size up to the cap of 100 reaches power 0\.8"),
@@ -105,7 +108,7 @@ def test_power_rejects_bad_arrays() -> None:
          r"^alpha: no significance level below 1 gives power 0\.99 with 5 per group"),
     ],
 )
-def test_infeasible(design, changes, match) -> None:
+def test_infeasible(design: str, changes: dict[str, Any], match: str) -> None:
     with pytest.raises(InfeasibleError, match=match):
         _solve(design, **changes)
 
@@ -136,7 +139,7 @@ def runner() -> CliRunner:
     return CliRunner()
 
 
-def _run(runner: CliRunner, *args: str):
+def _run(runner: CliRunner, *args: str) -> Result:
     return runner.invoke(app, ["solve", *args])
 
 
@@ -146,11 +149,12 @@ SOLVE_KEYS = {
 }
 
 
-def _no_nan(text: str) -> dict:
-    def refuse(token: str):
+def _no_nan(text: str) -> dict[str, Any]:
+    def refuse(token: str) -> NoReturn:
         raise AssertionError(f"non-standard JSON constant {token}")
 
-    return json.loads(text, parse_constant=refuse)
+    data: dict[str, Any] = json.loads(text, parse_constant=refuse)
+    return data
 
 
 @pytest.mark.parametrize(
@@ -170,7 +174,7 @@ def _no_nan(text: str) -> dict:
         (["--design", "no-such-design", "--baseline", "0.1"], "--design"),
     ],
 )
-def test_cli_bad_input_exit_2_one_line(runner, args, option) -> None:
+def test_cli_bad_input_exit_2_one_line(runner: CliRunner, args: list[str], option: str) -> None:
     result = _run(runner, *args)
     assert result.exit_code == 2
     err = result.stderr
@@ -179,14 +183,14 @@ def test_cli_bad_input_exit_2_one_line(runner, args, option) -> None:
     assert option in err
 
 
-def test_cli_leaving_two_out_exit_2(runner) -> None:
+def test_cli_leaving_two_out_exit_2(runner: CliRunner) -> None:
     result = _run(runner, "--design", "cohort-risk", "--baseline", "0.01", "--effect", "2")
     assert result.exit_code == 2
     assert result.stderr.count("\n") == 1
     assert "--power" in result.stderr and "--n-per-group" in result.stderr
 
 
-def test_cli_infeasible_exit_1(runner) -> None:
+def test_cli_infeasible_exit_1(runner: CliRunner) -> None:
     result = _run(
         runner, "--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8",
         "--alpha", "0.05", "--max-n-per-group", "10",
@@ -209,7 +213,7 @@ def test_cli_infeasible_exit_1(runner) -> None:
          "--n-per-group", "300", "--continuity", "--test", "normal"],
     ],
 )
-def test_cli_json(runner, args) -> None:
+def test_cli_json(runner: CliRunner, args: list[str]) -> None:
     result = _run(runner, *args, "--json")
     assert result.exit_code == 0, result.stderr
     data = _no_nan(result.stdout)
@@ -220,7 +224,7 @@ def test_cli_json(runner, args) -> None:
     assert isinstance(data["warnings"], list)
 
 
-def test_cli_json_matches_api(runner) -> None:
+def test_cli_json_matches_api(runner: CliRunner) -> None:
     # Schlesselman (1974) worked example through the command line: 188 + 188
     result = _run(
         runner, "--design", "case-control", "--baseline", "0.3", "--effect", "2", "--power", "0.9",

@@ -10,6 +10,7 @@ group is ``allocation * n`` rounded half up, computed here.
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import brute_force as bf
 import numpy as np
@@ -35,7 +36,7 @@ def _half_up(x: float) -> int:
     ("n", "allocation", "p0", "rr"),
     [(40, 1.0, 0.05, 3.0), (25, 2.0, 0.10, 2.5), (15, 0.5, 0.20, 2.0), (300, 1.5, 0.005, 4.0)],
 )
-def test_cohort_risk_fisher_brute_force(n, allocation, p0, rr, sides) -> None:
+def test_cohort_risk_fisher_brute_force(n: int, allocation: float, p0: float, rr: float, sides: int) -> None:
     n0 = _half_up(allocation * n)
     got = power("cohort-risk", ALPHAS, n, rr, p0, allocation=allocation, sides=sides, test="exact")
     for i, alpha in enumerate(ALPHAS):
@@ -50,7 +51,7 @@ def test_cohort_risk_fisher_brute_force(n, allocation, p0, rr, sides) -> None:
     ("n", "allocation", "p0", "odds_ratio"),
     [(30, 1.0, 0.2, 3.0), (20, 3.0, 0.3, 4.0), (45, 1.5, 0.1, 2.5), (9, 2.5, 0.4, 0.3)],
 )
-def test_case_control_fisher_brute_force(n, allocation, p0, odds_ratio, sides) -> None:
+def test_case_control_fisher_brute_force(n: int, allocation: float, p0: float, odds_ratio: float, sides: int) -> None:
     n0 = _half_up(allocation * n)
     p1 = bf.exposed_share_of_cases(odds_ratio, p0)
     got = power("case-control", ALPHAS, n, odds_ratio, p0, allocation=allocation, sides=sides, test="exact")
@@ -66,7 +67,9 @@ def test_case_control_fisher_brute_force(n, allocation, p0, odds_ratio, sides) -
     ("n", "allocation", "years", "rate", "ratio"),
     [(100, 1.0, 2.0, 0.02, 3.0), (50, 2.5, 1.5, 0.05, 2.0), (7, 0.5, 3.0, 0.3, 5.0), (2000, 1.0, 1.0, 1e-3, 2.0)],
 )
-def test_cohort_rate_conditional_brute_force(n, allocation, years, rate, ratio, sides) -> None:
+def test_cohort_rate_conditional_brute_force(
+    n: int, allocation: float, years: float, rate: float, ratio: float, sides: int
+) -> None:
     t1, t0 = n * years, _half_up(allocation * n) * years
     got = power(
         "cohort-rate", ALPHAS, n, ratio, rate, allocation=allocation, years=years, sides=sides, test="exact"
@@ -83,7 +86,7 @@ def test_cohort_rate_conditional_brute_force(n, allocation, years, rate, ratio, 
     ("n", "years", "rate", "sir"),
     [(1000, 2.0, 1e-3, 3.0), (50, 1.0, 0.01, 8.0), (3000, 5.0, 2e-3, 1.4), (40, 0.5, 0.05, 0.4)],
 )
-def test_reference_rate_poisson_brute_force(n, years, rate, sir, sides) -> None:
+def test_reference_rate_poisson_brute_force(n: int, years: float, rate: float, sir: float, sides: int) -> None:
     got = power("reference-rate", ALPHAS, n, sir, rate, years=years, sides=sides, test="exact")
     for i, alpha in enumerate(ALPHAS):
         want_power, want_size = bf.one_poisson(rate * n * years, sir, alpha, sides)
@@ -94,12 +97,13 @@ def test_reference_rate_poisson_brute_force(n, years, rate, sir, sides) -> None:
 
 def test_attained_alpha_is_power_at_no_effect() -> None:
     # attained alpha = power at effect 1, for every design and both sidednesses
-    for design, baseline, extra in [
+    studies: list[tuple[str, float, dict[str, Any]]] = [
         ("cohort-risk", 0.03, {"allocation": 2.0}),
         ("case-control", 0.2, {"allocation": 1.0}),
         ("cohort-rate", 0.01, {"allocation": 1.5, "years": 2.0}),
         ("reference-rate", 0.01, {"years": 2.0}),
-    ]:
+    ]
+    for design, baseline, extra in studies:
         for sides in (1, 2):
             r = power(design, ALPHAS, 120, 2.5, baseline, sides=sides, test="exact", **extra)
             r1 = power(design, ALPHAS, 120, 1.0, baseline, sides=sides, test="exact", **extra)
@@ -141,7 +145,7 @@ SIZE_CASES = [
 @pytest.mark.parametrize(
     "case", SIZE_CASES, ids=lambda c: f"{c[0]}-{c[5]}sided-{c[1]}-{c[2]}" if isinstance(c, tuple) else None
 )
-def test_exact_size_solver_against_every_size(case) -> None:
+def test_exact_size_solver_against_every_size(case: tuple[Any, ...]) -> None:
     design, baseline, effect, alpha, target, sides, allocation, years = case
     s = solve(
         design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
@@ -171,13 +175,16 @@ def test_exact_size_solver_against_every_size(case) -> None:
         (3e-4, 4.0, 2.5, 0.1, 0.5),
     ],
 )
-def test_reference_rate_segment_solver_against_scipy(baseline, years, sir, alpha, target) -> None:
+def test_reference_rate_segment_solver_against_scipy(
+    baseline: float, years: float, sir: float, alpha: float, target: float
+) -> None:
     # one-sided reference-rate sizes come from a closed-form segment solver;
     # check it against scipy.stats.poisson at every whole size
     s = solve(
         "reference-rate", baseline=baseline, effect=sir, alpha=alpha, power=target, years=years,
         test="exact",
     )
+    assert s.n_checked is not None
     n = np.arange(1, s.n_checked + 1, dtype=np.float64)
     expected = baseline * years * n
     c = np.arange(0, 200)

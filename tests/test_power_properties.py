@@ -10,6 +10,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pytest
 from hypothesis import assume, given, settings
@@ -22,18 +24,26 @@ from decide.engine.solve import normal_size, solve
 from decide.engine.study import check_setting
 
 DESIGNS = ("cohort-risk", "case-control", "cohort-rate", "reference-rate")
+#: design, baseline, effect, allocation and years (keywords), sides, continuity
+Drawn = tuple[str, float, float, dict[str, Any], int, bool]
 quiet = pytest.mark.filterwarnings("ignore::decide.errors.ApproximationWarning")
 
 
 @st.composite
-def studies(draw, designs=DESIGNS, low_baseline=1e-5, max_effect=10.0, binary=None):
+def studies(
+    draw: st.DrawFn,
+    designs: tuple[str, ...] = DESIGNS,
+    low_baseline: float = 1e-5,
+    max_effect: float = 10.0,
+    binary: bool | None = None,
+) -> Drawn:
     """A design with a baseline, an effect above 1, allocation, years and sides."""
     design = draw(st.sampled_from(designs))
     effect = draw(st.floats(1.1, max_effect))
     baseline = draw(st.floats(low_baseline, 0.5))
     if design == "cohort-risk":
         baseline = min(baseline, 0.9 / effect)
-    extra: dict = {}
+    extra: dict[str, Any] = {}
     if design != "reference-rate":
         extra["allocation"] = draw(st.sampled_from([0.5, 1.0, 2.0, 4.0]))
     if design in ("cohort-rate", "reference-rate"):
@@ -53,7 +63,7 @@ def _nondecreasing(x: np.ndarray, tol: float = 1e-12) -> bool:
 
 @quiet
 @given(studies(), st.floats(0, np.log(1e7)))
-def test_normal_power_rises_with_alpha_and_size(study, log_n) -> None:
+def test_normal_power_rises_with_alpha_and_size(study: Drawn, log_n: float) -> None:
     design, baseline, effect, extra, sides, cc = study
     n = float(np.ceil(np.exp(log_n)))
     alphas = np.array([1e-4, 0.001, 0.01, 0.025, 0.05, 0.1, 0.2, 0.4])
@@ -66,7 +76,7 @@ def test_normal_power_rises_with_alpha_and_size(study, log_n) -> None:
 
 @quiet
 @given(studies(), st.floats(np.log(20), np.log(1e7)), st.sampled_from([0.01, 0.05, 0.1]))
-def test_normal_one_sided_power_rises_with_effect(study, log_n, alpha) -> None:
+def test_normal_one_sided_power_rises_with_effect(study: Drawn, log_n: float, alpha: float) -> None:
     # Where a cell expects fewer than 10 the normal approximation's null
     # variance grows with the effect faster than the shift, and the formula
     # (like statsmodels' power_proportions_2indep) can dip below alpha just
@@ -82,7 +92,7 @@ def test_normal_one_sided_power_rises_with_effect(study, log_n, alpha) -> None:
 
 @quiet
 @given(studies(), st.floats(np.log(20), np.log(1e7)), st.sampled_from([0.01, 0.05, 0.1]))
-def test_normal_two_sided_power_rises_with_effect_above_alpha(study, log_n, alpha) -> None:
+def test_normal_two_sided_power_rises_with_effect_above_alpha(study: Drawn, log_n: float, alpha: float) -> None:
     # Two-sided: with unequal null and alternative variances the test is
     # biased (power dips below alpha just above effect 1); past that dip,
     # power rises with the effect.
@@ -98,7 +108,7 @@ def test_normal_two_sided_power_rises_with_effect_above_alpha(study, log_n, alph
 
 @settings(max_examples=25)
 @given(studies(low_baseline=1e-3), st.floats(0.5, 40.0))
-def test_exact_power_rises_with_alpha_and_effect(study, expected_cases) -> None:
+def test_exact_power_rises_with_alpha_and_effect(study: Drawn, expected_cases: float) -> None:
     design, baseline, effect, extra, sides, _ = study
     # a size giving a handful of expected cases in the exposed group
     n = float(max(1, round(expected_cases / (baseline * extra.get("years", 1.0)))))
@@ -119,7 +129,9 @@ def test_exact_power_rises_with_alpha_and_effect(study, expected_cases) -> None:
 # round trips, normal test
 
 
-def _near_tail(design, alpha, n, effect, baseline, sides, cc, extra) -> float:
+def _near_tail(
+    design: str, alpha: float, n: int, effect: float, baseline: float, sides: int, cc: bool, extra: dict[str, Any]
+) -> float:
     """Normal power without the far tail (what the size formula inverts)."""
     r = power(design, alpha / sides, n, effect, baseline, sides=1, test="normal", continuity=cc, **extra)
     return float(r.power)
@@ -131,7 +143,7 @@ def _near_tail(design, alpha, n, effect, baseline, sides, cc, extra) -> float:
     st.floats(0.001, 0.2),
     st.floats(0.5, 0.99),
 )
-def test_normal_size_round_trip(study, alpha, target) -> None:
+def test_normal_size_round_trip(study: Drawn, alpha: float, target: float) -> None:
     design, baseline, effect, extra, sides, cc = study
     assume(target > alpha + 0.05)
     s = solve(design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
@@ -145,7 +157,7 @@ def test_normal_size_round_trip(study, alpha, target) -> None:
 
 @quiet
 @given(studies(low_baseline=1e-4), st.floats(0.005, 0.2), st.floats(0.5, 0.99))
-def test_normal_alpha_round_trip(study, alpha0, target) -> None:
+def test_normal_alpha_round_trip(study: Drawn, alpha0: float, target: float) -> None:
     design, baseline, effect, extra, sides, cc = study
     assume(target > alpha0 + 0.05)
     setting = check_setting(design, baseline, extra.get("allocation"), extra.get("years"), sides, "normal", cc)
@@ -159,7 +171,7 @@ def test_normal_alpha_round_trip(study, alpha0, target) -> None:
 
 @quiet
 @given(studies(low_baseline=1e-4), st.floats(0.005, 0.2), st.floats(0.5, 0.99))
-def test_normal_effect_round_trip(study, alpha, target) -> None:
+def test_normal_effect_round_trip(study: Drawn, alpha: float, target: float) -> None:
     design, baseline, effect0, extra, sides, cc = study
     assume(target > alpha + 0.05)
     setting = check_setting(design, baseline, extra.get("allocation"), extra.get("years"), sides, "normal", cc)
@@ -175,13 +187,15 @@ def test_normal_effect_round_trip(study, alpha, target) -> None:
 # round trips, exact test
 
 
-def _exact_power(design, alpha, n, effect, baseline, sides, extra) -> np.ndarray:
+def _exact_power(
+    design: str, alpha: float | np.ndarray, n: int, effect: float, baseline: float, sides: int, extra: dict[str, Any]
+) -> np.ndarray:
     return power(design, alpha, n, effect, baseline, sides=sides, test="exact", **extra).power
 
 
 @settings(max_examples=10)
 @given(studies(low_baseline=0.005), st.sampled_from([0.01, 0.05, 0.1]), st.sampled_from([0.5, 0.8, 0.9]))
-def test_exact_size_round_trip(study, alpha, target) -> None:
+def test_exact_size_round_trip(study: Drawn, alpha: float, target: float) -> None:
     design, baseline, effect, extra, sides, _ = study
     assume(effect >= 2.0)
     s = solve(design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
@@ -197,7 +211,7 @@ def test_exact_size_round_trip(study, alpha, target) -> None:
 
 @settings(max_examples=12)
 @given(studies(low_baseline=0.005), st.floats(1.0, 30.0), st.sampled_from([0.5, 0.8, 0.9]))
-def test_exact_alpha_round_trip(study, expected_cases, target) -> None:
+def test_exact_alpha_round_trip(study: Drawn, expected_cases: float, target: float) -> None:
     design, baseline, effect, extra, sides, _ = study
     n = int(max(1, round(expected_cases / (baseline * extra.get("years", 1.0)))))
     assume(n <= 3000)
@@ -221,7 +235,7 @@ def test_exact_alpha_round_trip(study, expected_cases, target) -> None:
 @settings(max_examples=12)
 @given(studies(low_baseline=0.005), st.floats(3.0, 30.0), st.sampled_from([0.5, 0.8, 0.9]),
        st.sampled_from([0.01, 0.05]))
-def test_exact_effect_round_trip(study, expected_cases, target, alpha) -> None:
+def test_exact_effect_round_trip(study: Drawn, expected_cases: float, target: float, alpha: float) -> None:
     design, baseline, _, extra, sides, _ = study
     n = int(max(1, round(expected_cases / (baseline * extra.get("years", 1.0)))))
     assume(n <= 3000)
@@ -249,8 +263,10 @@ def test_exact_effect_round_trip(study, expected_cases, target, alpha) -> None:
     st.sampled_from([1, 2]),
     st.sampled_from(["normal", "exact"]),
 )
-def test_person_time_rescaling(design, baseline, years, k, effect, n, sides, test) -> None:
-    extra = {"allocation": 1.5} if design == "cohort-rate" else {}
+def test_person_time_rescaling(
+    design: str, baseline: float, years: float, k: float, effect: float, n: int, sides: int, test: str
+) -> None:
+    extra: dict[str, Any] = {"allocation": 1.5} if design == "cohort-rate" else {}
     alphas = np.array([0.01, 0.05])
     a = power(design, alphas, n, effect, baseline, years=years, sides=sides, test=test, **extra)
     b = power(design, alphas, n, effect, baseline * k, years=years / k, sides=sides, test=test, **extra)

@@ -30,9 +30,10 @@ def _p1_from_or(odds_ratio: float, p0: float) -> float:
     ("p0", "p1", "table_n"),
     [
         # Fleiss, Statistical Methods for Rates and Proportions, 2nd ed. (1981),
-        # and Fleiss, Levin & Paik, 3rd ed. (2003): the appendix table of sizes
-        # per group for two proportions, continuity-corrected; from memory
-        # (REFERENCES.md), table number not re-read.
+        # and Fleiss, Levin & Paik, 3rd ed. (2003), Wiley: the appendix table of
+        # sizes per group for two proportions, continuity-corrected; from memory,
+        # table number not re-read.  The test also recomputes each value from the
+        # published formula (Casagrande, Pike & Smith 1978).
         (0.05, 0.10, 474),
         (0.10, 0.20, 219),
     ],
@@ -45,6 +46,10 @@ def test_fleiss_table_corrected_sizes(p0: float, p1: float, table_n: int) -> Non
     assert s.n_per_group == table_n
     assert s.n_total == 2 * table_n
     assert s.test == "normal-cc"
+    # Casagrande, Pike & Smith (1978) Biometrics 34:483-486, computed here: the table's value
+    # is the corrected size rounded up
+    n = _uncorrected_size(p1, p0, 1.0, 0.05, 0.20, 2)
+    assert np.ceil(n / 4 * (1 + np.sqrt(1 + 4 / (n * (p1 - p0)))) ** 2) == table_n
     assert s.power >= 0.80
 
 
@@ -67,7 +72,9 @@ def _uncorrected_size(p1: float, p0: float, r: float, alpha: float, beta: float,
         (0.30, 2.0, 3.0, 0.05, 0.20, 2),
     ],
 )
-def test_continuity_corrected_size_formula(p0, rr, r, alpha, beta, sides) -> None:
+def test_continuity_corrected_size_formula(
+    p0: float, rr: float, r: float, alpha: float, beta: float, sides: int
+) -> None:
     # Casagrande, Pike & Smith (1978) Biometrics 34:483-486 (r = 1) and
     # Fleiss, Tytun & Ury (1980) Biometrics 36:343-346 (unequal groups):
     # n_cc = n/4 * (1 + sqrt(1 + 2(r+1)/(r n |d|)))^2, computed here.
@@ -102,12 +109,17 @@ def test_continuity_corrected_size_reaches_power_exactly() -> None:
 def test_schlesselman_worked_example() -> None:
     # Schlesselman (1974) Am J Epidemiol 99:381-384 form; worked example
     # p0 = 0.30, OR = 2, two-sided alpha 0.05, power 0.90 -> 188 cases and
-    # 188 controls, pbar = 0.3808 (verified, see REFERENCES.md).
+    # 188 controls, pbar = 0.3808 (from memory, not re-read in the paper).  The
+    # size is also recomputed from the paper's formula below.
     s = solve("case-control", baseline=0.30, effect=2.0, alpha=0.05, power=0.90, sides=2, test="normal")
     assert s.n_per_group == 188
     assert s.n_total == 376
     p1 = _p1_from_or(2.0, 0.30)
     assert round((p1 + 0.30) / 2, 4) == 0.3808
+    # n = (z_a sqrt(2 pbar qbar) + z_b sqrt(p1 q1 + p0 q0))^2 / (p1 - p0)^2 = 187.8, computed here
+    pbar = (p1 + 0.30) / 2
+    top = Z(0.975) * np.sqrt(2 * pbar * (1 - pbar)) + Z(0.90) * np.sqrt(p1 * (1 - p1) + 0.30 * 0.70)
+    assert np.ceil(top**2 / (p1 - 0.30) ** 2) == 188
     assert s.expected_cases["exposed controls"] == pytest.approx(188 * 0.30)
     assert s.expected_cases["exposed cases"] == pytest.approx(188 * p1)
 
@@ -121,7 +133,9 @@ def test_schlesselman_worked_example() -> None:
     [(1.5, 0.05, 0.20, 1), (2.0, 0.05, 0.10, 1), (3.0, 0.01, 0.20, 1), (1.2, 0.05, 0.20, 2), (5.0, 0.05, 0.5, 2)],
 )
 @pytest.mark.parametrize(("baseline", "years"), [(1e-3, 1.0), (2e-5, 7.5)])
-def test_square_root_expected_cases(sir, alpha, beta, sides, baseline, years) -> None:
+def test_square_root_expected_cases(
+    sir: float, alpha: float, beta: float, sides: int, baseline: float, years: float
+) -> None:
     # Breslow & Day vol. II (1987) ch. 7, square-root form (from memory):
     # E = (z_a + z_b)^2 / (4 (sqrt(SIR) - 1)^2), computed here.
     expected = (Z(1 - alpha / sides) + Z(1 - beta)) ** 2 / (4 * (np.sqrt(sir) - 1) ** 2)
@@ -130,7 +144,7 @@ def test_square_root_expected_cases(sir, alpha, beta, sides, baseline, years) ->
     assert n * years * baseline == pytest.approx(expected, rel=1e-10)
 
 
-def _scipy_poisson_test(expected: np.ndarray, sir: np.ndarray, alpha: np.ndarray):
+def _scipy_poisson_test(expected: np.ndarray, sir: np.ndarray, alpha: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Critical count c = min{c : P(Pois(E) >= c) <= alpha}; power P(Pois(SIR*E) >= c)."""
     c = np.arange(0, 400)
     upper = stats.poisson.sf(c[None, :] - 1, expected[:, None])

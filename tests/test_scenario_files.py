@@ -526,7 +526,7 @@ def test_model_vocabulary_matches_the_core() -> None:
 def test_models_are_frozen() -> None:
     model = load_scenario(SCENARIOS[0]).model
     with pytest.raises(ValueError, match="frozen"):
-        model.title = "changed"  # type: ignore[misc]
+        model.title = "changed"
 
 
 # --- atomic writes ----------------------------------------------------------

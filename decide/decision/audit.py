@@ -104,6 +104,9 @@ def audit(
 
     Examples
     --------
+    A usage example, not a check (the tests check audits against finite
+    differences of the power and against Bayes' rule):
+
     >>> a = audit("cohort-rate", baseline=1e-3, alpha=0.05, effect=2.0, p_harm=0.1,
     ...           per_subject=100.0, power=0.8, years=5.0, test="normal")
     >>> a.n_per_group, round(a.implied_cost_ratio, 2)

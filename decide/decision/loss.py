@@ -32,17 +32,18 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from numpy.typing import NDArray
 from scipy import special
 
-from ..designs._base import FloatArray
+from ..designs._base import FloatArray, NormalMoments
 from ..engine import exact as _exact
 from ..engine import normal as _normal
 from ..engine.selection import uses_exact
 from ..engine.study import Setting
-from .prior import SEARCH_PANELS
+from .prior import SEARCH_PANELS, TRUNCATION_NOTED_ABOVE
 from .problem import Problem
 
 #: Rows of the weight matrix: cost-weighted, prior-averaged, at the design effect.
@@ -62,7 +63,9 @@ class LossModel:
     cost-weighted sums over the prior (row ``MISSED``, applied to miss
     probabilities), prior averages (``AVERAGE``) and values at the design
     effect (``DESIGN``).  ``expected_missed`` is ``E[M(effect)]``, integrated
-    to :data:`SETTLE_TOL`.
+    to :data:`SETTLE_TOL`.  Every expectation is over the effect under harm,
+    the prior truncated to ratios above 1 (:class:`~decide.decision.prior.EffectPrior`);
+    ``notes`` says so when that leaves out more than 1 % of the stated prior.
     """
 
     problem: Problem
@@ -70,6 +73,7 @@ class LossModel:
     effects: FloatArray
     weights: FloatArray
     expected_missed: float
+    notes: tuple[str, ...] = ()
 
     @property
     def flag_now(self) -> float:
@@ -110,6 +114,13 @@ class LossModel:
         limit = float(self.setting.design.effect_limit(self.setting.baseline))
         return np.minimum(nodes, limit * (1 - 1e-9)), w
 
+    @cached_property
+    def normal_moments(self) -> tuple[NormalMoments, NormalMoments]:
+        """Moments of the normal statistic at ``effects`` and under no effect (computed once)."""
+        s = self.setting
+        m = s.design.normal_moments(s.baseline, self.effects, s.allocation, s.years, s.continuity)
+        return m, s.design.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity)
+
     def uses_exact(self, n: FloatArray) -> NDArray[np.bool_]:
         """Where the test at size ``n`` is exact (see :func:`decide.engine.selection.uses_exact`)."""
         return uses_exact(self.setting, n, np.full(np.shape(n), self.effects[-1]))
@@ -136,7 +147,17 @@ def build_model(problem: Problem) -> LossModel:
 
     return LossModel(
         problem=problem, setting=model.setting, effects=effects, weights=weights,
-        expected_missed=float(_refine(expected)[0]),
+        expected_missed=float(_refine(expected)[0]), notes=_truncation_notes(problem),
+    )
+
+
+def _truncation_notes(problem: Problem) -> tuple[str, ...]:
+    share = problem.effect.truncated_share
+    if problem.effect.is_point or share <= TRUNCATION_NOTED_ABOVE:
+        return ()
+    return (
+        f"the effect prior puts {100 * share:.3g} % of its mass at or below a ratio of 1, which is no harm: "
+        "the effect under harm is taken as the prior above 1, rescaled to sum to 1",
     )
 
 
@@ -194,9 +215,7 @@ class OperatingPoint:
 def normal_at(model: LossModel, n: FloatArray, z: FloatArray) -> Characteristics:
     """Characteristics of the normal test with critical value ``z`` at size ``n``."""
     s = model.setting
-    d = s.design
-    m = d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity)
-    m0 = d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity)
+    m, m0 = model.normal_moments
     nn, zz = np.broadcast_arrays(np.asarray(n, dtype=np.float64), np.asarray(z, dtype=np.float64))
     pw = _normal.power_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights.T
     miss = _normal.miss_at_z(m, nn[..., None], zz[..., None], s.sides) @ model.weights[MISSED]

@@ -188,7 +188,7 @@ def _study_facts(model: LossModel, policy: Policy, n: float, start: Decision) ->
         p_harm_given_negative=p.p_harm * beta / neg if neg > 0 else None,
         p_harm_given_positive=p.p_harm * accurate.power / pos if pos > 0 else None,
         detectable_effect=detectable_effect(model, c.nominal, n, exact),
-        warnings=tuple(_approximation_notes(model, n, exact)),
+        warnings=(*model.notes, *_approximation_notes(model, n, exact)),
         implied_cost_ratio=ratio,
         implied_cost_ratio_range=ratio_range,
     )

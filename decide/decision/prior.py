@@ -7,6 +7,9 @@ References
    prior on the effect).
 .. [2] Davis, P. J. and Rabinowitz, P. (1984). *Methods of Numerical
    Integration*, 2nd ed., Academic Press, ch. 2 (compound Gauss-Legendre rules).
+.. [3] Johnson, N. L., Kotz, S. and Balakrishnan, N. (1994). *Continuous
+   Univariate Distributions*, vol. 1, 2nd ed., Wiley, ch. 13 (truncated normal
+   distributions) and ch. 14 (lognormal distributions).
 """
 
 from __future__ import annotations
@@ -26,6 +29,9 @@ SEARCH_PANELS, ORDER = 16, 6
 #: Half-width, in prior standard deviations, of the range integrated over;
 #: the prior mass beyond is below 1e-13.
 REACH = 7.5
+#: Share of a lognormal prior at or below a ratio of 1 above which a decision
+#: notes that the effect under harm leaves it out.
+TRUNCATION_NOTED_ABOVE = 0.01
 
 
 @lru_cache(maxsize=8)
@@ -56,6 +62,16 @@ class EffectPrior:
 
     The *design effect* is the median: the effect that power targets of
     conventional policies refer to.
+
+    Notes
+    -----
+    The prior describes the effect *if the exposure is harmful*, so a ratio
+    at or below 1 is no harm.  A lognormal stated by its median and spread may
+    still put some mass there; the effect under harm is then the lognormal
+    conditioned on a ratio above 1, that is truncated at 1 and renormalised
+    (:attr:`truncated_share` is the mass left out).  :meth:`nodes` integrates
+    that conditional law; :meth:`quantile` and :meth:`mass_below` describe the
+    lognormal as stated.
     """
 
     median: float
@@ -96,22 +112,34 @@ class EffectPrior:
     def is_point(self) -> bool:
         return self.log_sd == 0.0
 
+    @property
+    def truncated_share(self) -> float:
+        """Share of the stated prior at or below a ratio of 1, left out of the effect under harm."""
+        if self.is_point:
+            return float(self.median <= 1.0)
+        return float(special.ndtr(-np.log(self.median) / self.log_sd))
+
     def nodes(
         self, panels: int = SEARCH_PANELS, kink: float | None = None
     ) -> tuple[FloatArray, FloatArray]:
-        """Effects and weights that integrate functions of the effect over the prior.
+        """Effects and weights that integrate functions of the effect under harm.
 
         Composite Gauss-Legendre in the standard normal variable ``u`` of
         ``log(effect) = log(median) + log_sd * u``, over ``|u| <= 7.5``
         (shifted up by ``log_sd``, where integrands grow with the effect),
         with a panel edge at ``kink`` (an effect where the integrand bends,
-        such as a missed-hazard cost proportional to ``effect - 1``).
+        such as a missed-hazard cost proportional to ``effect - 1``).  The
+        range starts no lower than a ratio of 1 and the weights sum to 1: the
+        prior truncated at 1 and renormalised (see the class notes).
         A point effect gives one node of weight 1.
         """
         if self.is_point:
             return np.array([self.median]), np.array([1.0])
+        at_one = float(-np.log(self.median) / self.log_sd)
+        lo = max(-REACH, at_one)
+        hi = max(REACH, lo + REACH) + self.log_sd
         breaks = () if kink is None else (float(np.log(kink / self.median) / self.log_sd),)
-        u, w = composite_rule(-REACH, REACH + self.log_sd, panels, breaks)
+        u, w = composite_rule(lo, hi, panels, breaks)
         w = w * np.exp(-u * u / 2) / np.sqrt(2 * np.pi)
         return self.median * np.exp(self.log_sd * u), w / w.sum()
 

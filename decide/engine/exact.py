@@ -30,7 +30,7 @@ References
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import NDArray
@@ -62,12 +62,14 @@ class CountGrid:
     alt_exposed : (B, Q, W1) the same under each of ``Q`` effects
     other : (B, W0) probabilities of the comparison count (both hypotheses)
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
+    exposed_counts : (B, W1) the exposed counts of the rows (padding continues past the window)
     """
 
     null_exposed: FloatArray
     alt_exposed: FloatArray
     other: FloatArray
     p_value: FloatArray
+    exposed_counts: FloatArray
 
 
 def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
@@ -78,6 +80,23 @@ def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
         lo = stats.poisson.ppf(TAIL, m.parameter)
         hi = stats.poisson.isf(TAIL, m.parameter)
     return np.asarray(lo, dtype=np.float64), np.asarray(hi, dtype=np.float64)
+
+
+def _alt_window(m: Marginal) -> tuple[FloatArray, FloatArray]:
+    """The union of the windows along a trailing axis of effects: (B,) each.
+
+    Binomial counts of fixed trials and Poisson counts are stochastically
+    increasing in their parameter, so each tail quantile is too: the union
+    runs from the low end at the smallest parameter to the high end at the
+    largest, and only those two are computed.
+    """
+    if m.parameter.ndim < 2:
+        return _window(m)
+    rows = np.arange(m.parameter.shape[0])
+    trials = np.broadcast_to(m.trials, m.parameter.shape)
+    ends = np.stack([np.argmin(m.parameter, axis=-1), np.argmax(m.parameter, axis=-1)], axis=1)
+    lo, hi = _window(Marginal(m.family, trials[rows[:, None], ends], m.parameter[rows[:, None], ends]))
+    return lo[:, 0], hi[:, 1]
 
 
 def _pmf(family: str, trials: FloatArray, parameter: FloatArray, x: FloatArray) -> FloatArray:
@@ -207,9 +226,9 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     every effect.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    lo1 = np.minimum(lo_null, lo_alt.min(axis=-1))
-    hi1 = np.maximum(hi_null, hi_alt.max(axis=-1))
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    lo1 = np.minimum(lo_null, lo_alt)
+    hi1 = np.maximum(hi_null, hi_alt)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -238,7 +257,7 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
         assert model.n_exposed is not None and model.n_other is not None
         p = _row_tails(x1, x0, hi1, hi0, _hypergeometric(model.n_exposed, model.n_other), sides)
     p = np.where(valid1[:, :, None] & valid0[:, None, :], p, np.inf)
-    return CountGrid(null_exposed, alt_exposed, other, p)
+    return CountGrid(null_exposed, alt_exposed, other, p, x1)
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
@@ -318,8 +337,8 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     (about as many again) and the working copies made along the way.
     """
     lo_null, hi_null = _window(model.exposed_null)
-    lo_alt, hi_alt = _window(model.exposed_alt)
-    w1 = np.maximum(hi_null, hi_alt.max(axis=-1)) - np.minimum(lo_null, lo_alt.min(axis=-1)) + 1
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
@@ -349,3 +368,91 @@ def chunks(rows: int, cells_per_row: int) -> Iterator[slice]:
     step = max(1, CELL_BUDGET // max(1, cells_per_row))
     for start in range(0, rows, step):
         yield slice(start, min(rows, start + step))
+
+
+def _lowest_per_group(group: IntArray, key: FloatArray, groups: int) -> IntArray:
+    """Index of the member with the smallest ``key`` in each of ``groups`` groups."""
+    order = np.lexsort((key, group))
+    return np.asarray(order[np.searchsorted(group[order], np.arange(groups))], dtype=np.int64)
+
+
+def study_models(members: CountModel, study: IntArray, studies: int) -> CountModel:
+    """One model per study, its effect axis spanning the exposed windows of its members.
+
+    ``members`` holds one row per requested (study, effect) with an effect
+    axis of one; ``study`` numbers each row's study (size, baseline,
+    allocation, years) from 0 to ``studies - 1``.  The model returned holds,
+    per study, the member whose exposed window starts lowest and the member
+    whose window ends highest, so that :func:`build_grid` lays out one window
+    covering every member's.  The rejection region and the comparison count do
+    not depend on the effect, so that one grid serves every member.
+    """
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    lo, hi = _window(alt)
+    ends = np.stack(
+        [_lowest_per_group(study, lo.reshape(-1), studies), _lowest_per_group(study, -hi.reshape(-1), studies)],
+        axis=1,
+    )
+    spans = Marginal(alt.family, np.asarray(trials[ends]), np.asarray(alt.parameter.reshape(-1)[ends]))
+    return replace(take_rows(members, ends[:, 0]), exposed_alt=spans)
+
+
+def _caught(grid: CountGrid, rows: IntArray, alpha: FloatArray) -> FloatArray:
+    """Per exposed count, the comparison-count mass the level-``alpha`` test rejects: (P, W1)."""
+    out = np.empty((rows.size, grid.p_value.shape[1]))
+    for part in chunks(rows.size, grid.p_value.shape[1] * grid.p_value.shape[2]):
+        r = rows[part]
+        reject = grid.p_value[r] <= (alpha[part] * (1 + REL_TOL))[:, None, None]
+        out[part] = np.einsum("pij,pj->pi", reject, grid.other[r])
+    return out
+
+
+def _grouped(label: IntArray, groups: int) -> tuple[IntArray, IntArray]:
+    """Members sorted by ``label`` and where each label's run starts (``groups + 1`` bounds)."""
+    order = np.argsort(label, kind="stable")
+    return order, np.searchsorted(label[order], np.arange(groups + 1))
+
+
+def shared_power(
+    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
+) -> tuple[FloatArray, FloatArray]:
+    """Power and attained size of exact tests, one grid per study shared by its effects and alphas.
+
+    For each distinct (study, alpha) the mass the test rejects is summed over
+    the comparison count once, ``caught(x1) = sum_x0 [p(x1, x0) <= alpha]
+    P(x0)``; the power at each effect is then ``sum_x1 P_effect(x1)
+    caught(x1)`` and the attained size the same sum under no effect.
+    """
+    studies = int(study.max()) + 1
+    model = study_models(members, study, studies)
+    pairs, pair_of = np.unique(np.stack([study.astype(np.float64), alpha]), axis=1, return_inverse=True)
+    pair_of = pair_of.reshape(-1)
+    pair_study = pairs[0].astype(np.int64)
+    groups = list(batches(model))
+    label = np.empty(studies, dtype=np.int64)
+    local = np.empty(studies, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        label[idx], local[idx] = g, np.arange(idx.size)
+    pair_order, pair_bounds = _grouped(label[pair_study], len(groups))
+    member_order, member_bounds = _grouped(label[study], len(groups))
+    alt = members.exposed_alt
+    trials = np.broadcast_to(alt.trials, alt.parameter.shape).reshape(-1)
+    parameter = alt.parameter.reshape(-1)
+    out_power, out_size = np.empty(study.size), np.empty(study.size)
+    position = np.empty(pair_study.size, dtype=np.int64)
+    for g, idx in enumerate(groups):
+        grid = build_grid(take_rows(model, idx), sides)
+        these = pair_order[pair_bounds[g] : pair_bounds[g + 1]]
+        position[these] = np.arange(these.size)
+        caught = _caught(grid, local[pair_study[these]], pairs[1][these])
+        size = np.einsum("pi,pi->p", grid.null_exposed[local[pair_study[these]]], caught)
+        mine = member_order[member_bounds[g] : member_bounds[g + 1]]
+        for part in chunks(mine.size, grid.p_value.shape[1]):
+            els = mine[part]
+            x1 = grid.exposed_counts[local[study[els]]]
+            pmf = _pmf(alt.family, trials[els][:, None], parameter[els][:, None], x1)
+            at = position[pair_of[els]]
+            out_power[els] = np.einsum("mi,mi->m", pmf, caught[at])
+            out_size[els] = size[at]
+    return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)

@@ -4,6 +4,14 @@
 >>> r = power("reference-rate", alpha=0.05, n_per_group=1000, effect=3.0, baseline=1e-3, years=2)
 >>> r.test_used(), round(float(r.power), 4), round(float(r.attained_alpha), 4)
 ('exact', 0.5543, 0.0166)
+
+The same numbers from scipy: 2 cases are expected, and the exact test at 0.05
+flags 6 or more (P(5 or more) = 0.053 is above 0.05); its size and its power
+against 3 times the expected 2 cases are Poisson tail sums.
+
+>>> from scipy.stats import poisson
+>>> round(float(poisson.sf(4, 2.0)), 3), round(float(poisson.sf(5, 6.0)), 4), round(float(poisson.sf(5, 2.0)), 4)
+(0.053, 0.5543, 0.0166)
 """
 
 from __future__ import annotations
@@ -119,35 +127,17 @@ def exact_power(
 ) -> tuple[FloatArray, FloatArray]:
     """Power and attained size of the exact test for 1-D arrays (clean inputs).
 
-    Each distinct study (all but alpha) gets one grid, ordered once by
-    p-value, so any number of alphas on it cost a comparison each.  Grids are
-    grouped by size and built in batches that keep memory bounded.
+    The rejection region of the exact test at a level depends on the study
+    (size, baseline, allocation, years) and the level, never on the effect,
+    so each distinct study gets one grid of count pairs, shared by every
+    effect and alpha asked of it (:func:`decide.engine.exact.shared_power`).
+    Grids are grouped by size and built in batches that keep memory bounded.
     """
-    keys = np.stack(np.broadcast_arrays(n, effect, baseline, allocation, years))
-    uniq, back = np.unique(keys, axis=1, return_inverse=True)
-    back = back.ravel()
-    nn, e, b, r, y = uniq
-    full = design.count_model(nn, b, e[:, None], r, y)
-    by_key = np.argsort(back, kind="stable")
-    first = np.searchsorted(back[by_key], np.arange(nn.size + 1))
-    alpha = np.broadcast_to(alpha, back.shape)
-    out_power = np.empty(back.shape)
-    out_size = np.empty(back.shape)
-    for idx in _exact.batches(full):
-        path = _exact.rejection_path(_exact.build_grid(_exact.take_rows(full, idx), sides), np.ones((1, 1)))
-        lengths = first[idx + 1] - first[idx]
-        local = np.repeat(np.arange(idx.size), lengths)
-        offset = np.arange(local.size) - np.repeat(np.cumsum(lengths) - lengths, lengths)
-        members = by_key[np.repeat(first[idx], lengths) + offset]
-        for part in _exact.chunks(members.size, path.p_value.shape[1]):
-            rows, els = local[part], members[part]
-            limit = (alpha[els] * (1 + _exact.REL_TOL))[:, None]
-            k = (path.p_value[rows] <= limit).sum(axis=1)
-            hit = k > 0
-            at = np.maximum(k - 1, 0)
-            out_power[els] = np.where(hit, path.weighted[rows, 0, at], 0.0)
-            out_size[els] = np.where(hit, path.null[rows, at], 0.0)
-    return out_power, out_size
+    arrays = np.broadcast_arrays(n, effect, baseline, allocation, years, alpha)
+    nn, e, b, r, y, a = (np.asarray(x, dtype=np.float64) for x in arrays)
+    _, study = np.unique(np.stack([nn, b, r, y]), axis=1, return_inverse=True)
+    members = design.count_model(nn, b, e[:, None], r, y)
+    return _exact.shared_power(members, study.reshape(-1).astype(np.int64), a, sides)
 
 
 def evaluate(
@@ -261,6 +251,9 @@ def power(
 
     Examples
     --------
+    A usage example, not a check (the tests check exact power against scipy
+    enumerations and a seeded simulation):
+
     >>> from decide import power
     >>> r = power("cohort-risk", 0.05, 2000, 3.0, 8e-4)
     >>> r.test_used(), round(float(r.power), 3)
