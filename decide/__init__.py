@@ -5,7 +5,8 @@ responsible body; defer to applicable regulations, the competent authority
 and licensed professional judgment.
 
 The main entry points are re-exported here: :func:`power`, :func:`solve`,
-:func:`optimize`, :func:`compare`, :func:`decide_policy` and :func:`audit`.
+:func:`optimize`, :func:`compare`, :func:`decide_policy`, :func:`audit` and
+:func:`interpret` (a finished study's counts read against a scenario).
 (The modules of the same names stay importable as ``decide.solve`` and so
 on with ``from decide.solve import ...``.)
 """
@@ -16,6 +17,7 @@ from importlib.metadata import PackageNotFoundError
 from importlib.metadata import version as _installed_version
 
 from .decision.audit import Audit, audit
+from .decision.interpret import Interpretation, interpret
 from .decision.optimize import Comparison, Decision, compare, decide_policy, optimize
 from .decision.policies import LOSS_OPTIMAL, Policy
 from .decision.prior import EffectPrior
@@ -43,6 +45,7 @@ __all__ = [
     "Decision",
     "EffectPrior",
     "InfeasibleError",
+    "Interpretation",
     "Policy",
     "PowerResult",
     "Problem",
@@ -53,6 +56,7 @@ __all__ = [
     "compare",
     "decide_policy",
     "get_design",
+    "interpret",
     "optimize",
     "power",
     "solve",

@@ -24,11 +24,12 @@ from typer.core import TyperGroup
 from .decision.audit import audit as _audit
 from .decision.optimize import compare as _compare
 from .decision.optimize import optimize as _optimize
+from .decision.prior import EffectPrior
 from .engine.solve import MAX_N_PER_GROUP
 from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
+from .report import audit_words, tables
 from .report import console as render
-from .report import tables
 from .report.inputs import scenario_inputs
 from .report.numbers import for_json
 from .report.progress import busy
@@ -61,6 +62,12 @@ _OPTIONS = {
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
     "example": "--example",
+    "missed_hazard": "--missed-hazard",
+    "false_alarm": "--false-alarm",
+    "effect.low": "--effect-low",
+    "effect.high": "--effect-high",
+    "effect.level": "--effect-level",
+    "confidence": "--confidence",
 }
 _DEBUG = {"on": False}
 
@@ -325,20 +332,44 @@ def _echo(loaded: LoadedScenario) -> dict[str, Any]:
     }
 
 
+MarkdownFlag = Annotated[bool, typer.Option("--markdown", help="Print a Markdown document.")]
+OutputPath = Annotated[Path | None, typer.Option(help="Write to this file (not overwritten unless --force).")]
+ForceFlag = Annotated[bool, typer.Option("--force", help="Overwrite --output.")]
+
+
+def _check_document_flags(command: str, as_json: bool, as_markdown: bool, output: Path | None) -> None:
+    """Refuse conflicting output flags before any computing."""
+    if as_json and as_markdown:
+        _fail(f"decide {command}: choose one of --json and --markdown", 2)
+    if output is not None and not (as_json or as_markdown):
+        _fail(f"decide {command}: --output needs one of --json or --markdown", 2)
+
+
 @app.command("optimize")
-def optimize_command(scenario: ScenarioPath, as_json: JsonFlag = False) -> None:
+def optimize_command(
+    scenario: ScenarioPath,
+    as_json: JsonFlag = False,
+    as_markdown: MarkdownFlag = False,
+    output: OutputPath = None,
+    force: ForceFlag = False,
+) -> None:
     """Find the alpha, beta and size that minimise expected loss for a scenario."""
+    _check_document_flags("optimize", as_json, as_markdown, output)
+    _check_output("optimize", output, force)
     loaded = run_api("optimize", lambda: load_scenario(scenario))
-    with busy("Finding the loss-optimal study...", enabled=not as_json):
+    with busy("Finding the loss-optimal study...", enabled=not (as_json or as_markdown)):
         decision = run_api("optimize", lambda: _optimize(loaded.problem))
-    if as_json:
-        emit_json({"scenario": loaded.title, **decision_record(decision, loaded.currency or "")})
+    currency = loaded.currency or ""
+    if as_json or as_markdown:
+        text = (json_text({"scenario": loaded.title, **decision_record(decision, currency)}) if as_json
+                else tables.decision_markdown(decision, loaded.title, _inputs(loaded), currency))
+        run_api("optimize", lambda: _emit_text(text, output, force))
     else:
         con = render.make_console()
         if decision.action in ("flag-now", "clear-now"):  # lead with it: no study is worth its cost
-            con.print(render.literal_text(recommendation(decision, loaded.currency or ""), "bold"))
-        con.print(render.inputs_table(_inputs(loaded), loaded.currency or ""))
-        con.print(render.decision_table(decision, loaded.title, loaded.currency or ""))
+            con.print(render.literal_text(recommendation(decision, currency), "bold"))
+        con.print(render.inputs_table(_inputs(loaded), currency))
+        con.print(render.decision_table(decision, loaded.title, currency))
     if not decision.feasible:
         raise typer.Exit(1)
 
@@ -390,6 +421,55 @@ def compare_command(
     run_api("compare", lambda: _emit_text(text, output, force))
 
 
+def _chosen_policies(command: str, policy: list[str] | None, policy_dir: list[Path] | None) -> list[Any]:
+    known = run_api(command, lambda: load_policies(policy_dir or ()))
+    if not policy:
+        return list(known.values())
+    unknown = [p for p in policy if p not in known]
+    if unknown:
+        _fail(f"decide {command}: --policy must be one of {', '.join(known)}, but got {unknown[0]!r}", 2)
+    return [known[p] for p in dict.fromkeys(policy)]
+
+
+@app.command("interpret")
+def interpret_command(
+    scenario: ScenarioPath,
+    data: Annotated[Path, typer.Option("--data", help="Observed data file (TOML, an [observed] table).")],
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Policy whose verdict to show (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    confidence: Annotated[float, typer.Option(help="Confidence of the exact interval.")] = 0.95,
+    as_json: JsonFlag = False,
+    as_markdown: Annotated[bool, typer.Option("--markdown", help="Print Markdown.")] = False,
+    output: Annotated[Path | None, typer.Option(help="Write to this file (not overwritten unless --force).")] = None,
+    force: Annotated[bool, typer.Option("--force", help="Overwrite --output.")] = False,
+) -> None:
+    """Read a finished study's counts: estimate, verdict per policy, probability of harm, what is ruled out."""
+    from .decision.interpret import interpret as _interpret
+    from .report import interpretation as shown
+    from .scenario.observed_file import load_observed
+
+    if as_json and as_markdown:
+        _fail("decide interpret: choose one of --json and --markdown", 2)
+    if output is not None and not (as_json or as_markdown):
+        _fail("decide interpret: --output needs --json or --markdown", 2)
+    _check_output("interpret", output, force)
+    loaded = run_api("interpret", lambda: load_scenario(scenario))
+    counts = run_api("interpret", lambda: load_observed(data, loaded.problem))
+    chosen = _chosen_policies("interpret", policy, policy_dir)
+    result = run_api("interpret", lambda: _interpret(loaded.problem, counts, chosen, confidence))
+    unit = loaded.currency or ""
+    if as_json:
+        text = json_text(shown.interpretation_record(result, loaded.title, unit))
+    elif as_markdown:
+        text = shown.to_markdown(result, loaded.title, unit)
+    else:
+        render.make_console().print(shown.interpretation_table(result, loaded.title, unit))
+        return
+    run_api("interpret", lambda: _emit_text(text, output, force))
+
+
 @app.command("audit")
 def audit_command(
     design: Annotated[Design, typer.Option(help="Study design.")],
@@ -404,21 +484,52 @@ def audit_command(
     years: Annotated[float | None, typer.Option(help="Follow-up years per subject.")] = None,
     sides: Annotated[int, typer.Option(help="1 = one-sided test of harm, 2 = two-sided.")] = 1,
     test: Annotated[Test, typer.Option(help="normal, exact, or auto.")] = Test.auto,
+    missed_hazard: Annotated[
+        float | None, typer.Option(help="The protocol's cost of a missed hazard (with --false-alarm).")
+    ] = None,
+    false_alarm: Annotated[
+        float | None, typer.Option(help="The protocol's cost of a false alarm (with --missed-hazard).")
+    ] = None,
+    fixed_cost: Annotated[float, typer.Option(help="Fixed study cost, with the protocol's costs.")] = 0.0,
+    effect_low: Annotated[
+        float | None, typer.Option(help="Lognormal effect prior: low end of its central interval.")
+    ] = None,
+    effect_high: Annotated[
+        float | None, typer.Option(help="Lognormal effect prior: high end of its central interval.")
+    ] = None,
+    effect_level: Annotated[float, typer.Option(help="Probability inside --effect-low..--effect-high.")] = 0.9,
     unit: Annotated[str, typer.Option(help="Label for costs in the output.")] = "",
     as_json: JsonFlag = False,
+    as_markdown: MarkdownFlag = False,
+    output: OutputPath = None,
+    force: ForceFlag = False,
 ) -> None:
-    """Reveal the value judgments a protocol's alpha and size imply."""
+    """Reveal the value judgments a protocol's alpha and size imply, and judge it by its own costs."""
+    _check_document_flags("audit", as_json, as_markdown, output)
+    _check_output("audit", output, force)
+    if (effect_low is None) != (effect_high is None):
+        _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
+    if (effect_low is not None) and missed_hazard is None:
+        _fail("decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
+              "(--missed-hazard and --false-alarm)", 2)
+    prior = None
+    if effect_low is not None and effect_high is not None:
+        low, high = effect_low, effect_high
+        prior = run_api("audit", lambda: EffectPrior.from_interval(low, high, effect_level))
+
     def call() -> Any:
         return _audit(
             design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
             per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
-            years=years, sides=sides, test=test.value,
+            years=years, sides=sides, test=test.value, missed_hazard=missed_hazard,
+            false_alarm=false_alarm, fixed=fixed_cost, prior=prior,
         )
 
-    with busy("Auditing the protocol...", enabled=not as_json):
+    with busy("Auditing the protocol...", enabled=not (as_json or as_markdown)):
         result = run_api("audit", call)
-    if as_json:
-        emit_json(result.to_dict())
+    if as_json or as_markdown:
+        text = json_text(result.to_dict()) if as_json else audit_words.markdown(result, unit)
+        run_api("audit", lambda: _emit_text(text, output, force))
     else:
         render.make_console().print(render.audit_table(result, unit))
 
@@ -438,12 +549,17 @@ def policies_command(policy_dir: PolicyDirs = None, as_json: JsonFlag = False) -
 
 @app.command("schema")
 def schema_command(
-    kind: Annotated[str, typer.Argument(help="scenario or policy.")] = "scenario",
+    kind: Annotated[str, typer.Argument(help="scenario, policy or observed.")] = "scenario",
 ) -> None:
-    """Print the JSON Schema of scenario (or policy) files."""
-    if kind not in ("scenario", "policy"):
-        _fail(f"decide schema: KIND must be scenario or policy, but got {kind!r}", 2)
-    schema = scenario_json_schema() if kind == "scenario" else policy_json_schema()
+    """Print the JSON Schema of scenario (or policy, or observed-data) files."""
+    if kind not in ("scenario", "policy", "observed"):
+        _fail(f"decide schema: KIND must be observed, scenario or policy, but got {kind!r}", 2)
+    if kind == "observed":
+        from .scenario.observed_file import observed_json_schema
+
+        schema = observed_json_schema()
+    else:
+        schema = scenario_json_schema() if kind == "scenario" else policy_json_schema()
     sys.stdout.write(json.dumps(schema, indent=2) + "\n")  # a JSON Schema keeps its own keys ($defs, ...)
 
 

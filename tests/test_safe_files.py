@@ -521,3 +521,38 @@ def test_sigkill_never_damages_the_file_and_one_writer_wins(tmp_path: Path) -> N
     for codes, text in report["contests"]:
         assert sorted(codes) == [0] + [3] * 5
         assert text == f"writer {codes.index(0)}\n"
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["optimize", str(SCENARIO), "--markdown"],
+        [
+            "audit",
+            "--design",
+            "cohort-risk",
+            "--baseline",
+            "8e-4",
+            "--alpha",
+            "0.05",
+            "--effect",
+            "3",
+            "--p-harm",
+            "0.15",
+            "--per-subject",
+            "250",
+            "--n-per-group",
+            "2150",
+            "--json",
+        ],
+        ["interpret", str(SCENARIO), "--data", "no-such-data.toml", "--json"],
+    ],
+    ids=["optimize", "audit", "interpret"],
+)
+def test_every_output_option_is_checked_first(args: list[str], tmp_path: Path) -> None:
+    # The output check comes before reading the data or computing (the data file above does not exist).
+    target = tmp_path / "absent" / "out.txt"
+    err = one_line(run(*args, "--output", target))
+    assert err == (
+        f"decide {args[0]}: --output {target}: cannot be written: the folder {tmp_path / 'absent'} does not exist\n"
+    )

@@ -12,7 +12,12 @@ the prior probability of harm and the cost per subject, the audit reports
   implied ratio this also implies a false-alarm cost;
 * what a negative result would and would not rule out: the effects it
   detects with power 0.5, 0.8 and 0.95, and the probability of harm left
-  after a negative result.
+  after a negative result;
+* the decision rule in counts (:mod:`decide.engine.rule`);
+* when the protocol's costs are given (the cost of a missed hazard and of a
+  false alarm, with an optional lognormal effect prior), its own expected
+  loss, its regret against the loss-optimal design of the same problem, and
+  the net benefit of running it over deciding now.
 
 References
 ----------
@@ -34,14 +39,17 @@ from .. import _checks
 from .._results import PlainData
 from ..designs import get_design
 from ..engine.power import evaluate
+from ..engine.rule import DecisionRule, decision_rule
 from ..engine.solve import solve
 from ..errors import DecideError
 from .choice import choose_tests
 from .implied import implied_ratio_exact, implied_ratio_normal
 from .loss import build_model, normal_at
+from .optimize import decide_policy as _decide_policy
+from .optimize import optimize as _optimize
 from .policies import Policy
 from .prior import EffectPrior
-from .problem import Consequences, Problem, Study
+from .problem import Consequences, Constraints, Problem, Study
 
 DETECTION_LEVELS = (0.5, 0.8, 0.95)
 
@@ -53,6 +61,9 @@ class Audit(PlainData):
     ``implied_missed_hazard`` and ``implied_false_alarm`` are in the unit of
     ``per_subject``.  ``detectable_effects`` maps a power to the smallest
     effect detected with it (``None`` where none up to the cap is).
+    ``rule`` is the protocol's test in counts; ``prior`` the effect prior as
+    entered (``None`` for a point); ``losses`` the protocol judged by its
+    own costs (``None`` when none were given).
     """
 
     design: str
@@ -78,6 +89,40 @@ class Audit(PlainData):
     detectable_effects: dict[str, float | None]
     rules_out: str
     warnings: tuple[str, ...] = field(default=())
+    rule: DecisionRule | None = None
+    prior: str | None = None
+    losses: ProtocolLosses | None = None
+
+
+@dataclass(frozen=True)
+class ProtocolLosses(PlainData):
+    """The protocol judged by its own stated costs and prior.
+
+    ``expected_loss`` and ``loss_parts`` are the protocol's (alpha and size
+    as they stand); ``net_benefit`` is the loss of the better no-study action
+    (``no_study``) less the protocol's.  ``optimal_action`` is the best
+    action for the same problem: the loss-optimal study (``study``, with its
+    size, shown alpha and test) or, when no study is worth its cost,
+    ``flag-now`` or ``clear-now``; ``optimal_expected_loss`` is its loss and
+    ``regret`` the protocol's extra expected loss over it.
+    ``stated_cost_ratio`` is the expected missed-hazard cost over the
+    false-alarm cost, to set beside the implied one.
+    """
+
+    missed_hazard: float
+    false_alarm: float
+    fixed: float
+    expected_loss: float
+    loss_parts: dict[str, float]
+    no_study: dict[str, float]
+    net_benefit: float
+    regret: float
+    stated_cost_ratio: float
+    optimal_action: str
+    optimal_n_per_group: int | None
+    optimal_alpha: str | None
+    optimal_test: str | None
+    optimal_expected_loss: float
 
 
 
@@ -96,11 +141,20 @@ def audit(
     sides: int = 1,
     test: str = "auto",
     continuity: bool = False,
+    missed_hazard: float | None = None,
+    false_alarm: float | None = None,
+    fixed: float = 0.0,
+    prior: EffectPrior | None = None,
 ) -> Audit:
     """Audit a protocol given its size, or the target power it was sized for.
 
-    Exactly one of ``power`` and ``n_per_group`` is given.  The cost ratio
-    refers to a constant missed-hazard cost (a point effect).
+    Exactly one of ``power`` and ``n_per_group`` is given.  The implied cost
+    ratio refers to a constant missed-hazard cost at ``effect`` (the effect
+    the protocol was sized for).  Give ``missed_hazard`` and ``false_alarm``
+    (with ``fixed`` study costs and an effect ``prior``, a point at
+    ``effect`` by default) to judge the protocol by its own costs: its
+    expected loss, its regret against the loss-optimal design and the net
+    benefit of running it.
 
     Examples
     --------
@@ -119,6 +173,11 @@ def audit(
         )
     _checks.open_unit("p_harm", p_harm)
     _checks.non_negative("per_subject", per_subject)
+    if (missed_hazard is None) != (false_alarm is None):
+        raise DecideError(
+            "give both missed_hazard and false_alarm (the protocol's costs), or neither",
+            ("missed_hazard", "false_alarm"),
+        )
     sol = solve(
         design, baseline=baseline, alpha=alpha, power=power, n_per_group=n_per_group,
         effect=effect, allocation=allocation, years=years, sides=sides, test=test,
@@ -129,9 +188,9 @@ def audit(
     problem = Problem(study, EffectPrior.point(effect), p_harm,
                       Consequences(false_alarm=1.0, per_subject=per_subject, missed_hazard=1.0))
     model = build_model(problem)
-    fixed = Policy("protocol", "Protocol", "", "fixed", "largest-allowed", alpha=alpha)
+    as_is = Policy("protocol", "Protocol", "", "fixed", "largest-allowed", alpha=alpha)
     n = float(sol.n_per_group)
-    ch = choose_tests(model, fixed, np.array([n]))
+    ch = choose_tests(model, as_is, np.array([n]))
     warnings: list[str] = list(sol.warnings)
     rng: tuple[float, float] | None
     if exact:
@@ -148,22 +207,58 @@ def audit(
         c = normal_at(model, np.array([n - h, n + h]), np.full(2, float(ch.z[0])))
         slope = float((c.design_power[1] - c.design_power[0]) / (2 * h))
     per_n = 1.0 + (sol.n_total - sol.n_per_group) / sol.n_per_group
-    missed = per_subject * per_n / (p_harm * slope) if slope > 0 and per_subject > 0 else None
-    false_alarm = missed / ratio if missed is not None and ratio else None
+    implied_missed = per_subject * per_n / (p_harm * slope) if slope > 0 and per_subject > 0 else None
+    implied_false_alarm = implied_missed / ratio if implied_missed is not None and ratio else None
     detect = {f"{lv:g}": _detect(sol, lv) for lv in DETECTION_LEVELS}
     neg = p_harm * sol.beta + (1 - p_harm) * (1 - sol.attained_alpha)
     pos = p_harm * sol.power + (1 - p_harm) * sol.attained_alpha
+    rule = decision_rule(model.setting, n, alpha, exact=exact, effect=effect)
+    losses = None
+    if missed_hazard is not None and false_alarm is not None:
+        stated = Problem(study, prior or EffectPrior.point(effect), p_harm,
+                         Consequences(false_alarm=false_alarm, per_subject=per_subject, fixed=fixed,
+                                      missed_hazard=missed_hazard))
+        losses = _protocol_losses(stated, alpha, int(n), test)
     return Audit(
         design=sol.design, test=sol.test, method=sol.method, sides=sides, alpha=alpha,
         attained_alpha=sol.attained_alpha, power=sol.power, beta=sol.beta, effect=effect,
         n_per_group=sol.n_per_group, n_total=sol.n_total, p_harm=p_harm, per_subject=per_subject,
         implied_cost_ratio=ratio, implied_cost_ratio_range=rng, marginal_power_per_subject=slope,
-        implied_missed_hazard=missed, implied_false_alarm=false_alarm,
+        implied_missed_hazard=implied_missed, implied_false_alarm=implied_false_alarm,
         p_harm_given_negative=p_harm * sol.beta / neg,
         p_harm_given_positive=p_harm * sol.power / pos,
-        detectable_effects=detect, rules_out=_rules_out(detect, sol.effect),
-        warnings=tuple(warnings),
+        detectable_effects=detect, rules_out=_rules_out(detect, effect, get_design(design).effect_name),
+        warnings=tuple(warnings), rule=rule, prior=None if prior is None else prior.describe(),
+        losses=losses,
     )
+
+
+def _protocol_losses(problem: Problem, alpha: float, n: int, test: str) -> ProtocolLosses:
+    """The protocol's expected loss by its stated costs, and the loss-optimal design beside it."""
+    capped = Problem(problem.study, problem.effect, problem.p_harm, problem.consequences,
+                     Constraints(max_n_per_group=n, min_n_per_group=n))
+    protocol = _decide_policy(capped, Policy("protocol", "Protocol", "The protocol as it stands.", "fixed",
+                                            "largest-allowed", alpha=alpha))
+    s = problem.study
+    best = _optimize(Problem(Study(s.design, s.baseline, s.allocation, s.years, s.sides, test, s.continuity),
+                            problem.effect, problem.p_harm, problem.consequences))
+    assert protocol.expected_loss is not None and protocol.loss_parts is not None
+    assert protocol.net_benefit is not None
+    study = best.action == "study" and best.expected_loss is not None
+    best_loss = float(best.expected_loss) if study and best.expected_loss is not None else best.no_study_loss
+    action = "study" if study else best.no_study_action
+    c = problem.consequences
+    assert c.missed_hazard is not None
+    return ProtocolLosses(
+        missed_hazard=c.missed_hazard, false_alarm=c.false_alarm, fixed=c.fixed,
+        expected_loss=protocol.expected_loss, loss_parts=protocol.loss_parts, no_study=protocol.no_study,
+        net_benefit=protocol.net_benefit, regret=protocol.expected_loss - best_loss,
+        stated_cost_ratio=protocol.stated_cost_ratio, optimal_action=action,
+        optimal_n_per_group=best.n_per_group if study else None,
+        optimal_alpha=best.rule.cutoff_shown if study and best.rule is not None else None,
+        optimal_test=best.test if study else None, optimal_expected_loss=best_loss,
+    )
+
 
 
 def _exact_slope(model: Any, alpha: float, n: float) -> float:
@@ -191,16 +286,19 @@ def _detect(sol: Any, level: float) -> float | None:
         return None
 
 
-def _rules_out(detect: dict[str, float | None], effect: float) -> str:
+def _rules_out(detect: dict[str, float | None], effect: float, effect_name: str) -> str:
+    """What the study's power says about effects it could miss, as power statements only."""
     hi, mid, lo = detect.get("0.95"), detect.get("0.8"), detect.get("0.5")
+    an = "an" if effect_name[0] in "aeiou" else "a"
     parts = []
-    if hi is not None:
-        parts.append(f"A negative result makes effects of {hi:.3g} or more unlikely (power 0.95 or more against them).")
     if mid is not None:
-        parts.append(f"Effects from {mid:.3g} up are detected with power 0.8 or more.")
+        parts.append(f"A study this size would have detected {an} {effect_name} of {mid:.3g} with 80% power"
+                     + (f", and one of {hi:.3g} with 95% power." if hi is not None else "."))
+    elif hi is not None:
+        parts.append(f"A study this size would have detected {an} {effect_name} of {hi:.3g} with 95% power.")
     if lo is not None:
-        parts.append(f"Effects below {lo:.3g} would more likely than not be missed, so a negative "
-                     "result does not rule them out.")
+        parts.append(f"Against {an} {effect_name} below {lo:.3g} its power is under 50%: such an effect would "
+                     "be missed more often than detected, so a negative result says little about it.")
     if lo is not None and effect < lo:
-        parts.append(f"That includes the protocol's own effect of {effect:.3g}.")
+        parts.append(f"That includes the protocol's own {effect_name} of {effect:.3g}.")
     return " ".join(parts)

@@ -32,6 +32,7 @@ import numpy as np
 
 from .._results import PlainData
 from ..designs import AUTO_EXACT_BELOW, EXACT_UP_TO
+from ..engine.rule import DecisionRule, decision_rule
 from ..engine.selection import smallest_count
 from .choice import choose_tests
 from .implied import detectable_effect, implied_ratio_exact, implied_ratio_normal
@@ -60,7 +61,11 @@ class Decision(PlainData):
     false-alarm cost at which the chosen alpha would be loss-optimal for the
     chosen size; for an exact test that is a range, ``implied_cost_ratio_range``
     (low, high), and ``implied_cost_ratio`` its geometric middle.
-    ``regret`` is set by :func:`compare`.
+    ``regret`` is set by :func:`compare`.  ``rule`` states the chosen test in
+    counts (:class:`~decide.engine.rule.DecisionRule`); for a normal test
+    ``attained_alpha`` is the normal approximation's level, which the loss
+    uses, and ``rule.false_alarm`` its real false-alarm probability under the
+    exact law of the counts.
     """
 
     policy: str
@@ -95,6 +100,7 @@ class Decision(PlainData):
     implied_cost_ratio_range: tuple[float, float] | None = None
     regret: float | None = None
     warnings: tuple[str, ...] = field(default=())
+    rule: DecisionRule | None = None
 
 
 def _approximation_notes(model: LossModel, n: float, exact: bool) -> list[str]:
@@ -191,6 +197,7 @@ def _study_facts(model: LossModel, policy: Policy, n: float, start: Decision) ->
         warnings=(*model.notes, *_approximation_notes(model, n, exact)),
         implied_cost_ratio=ratio,
         implied_cost_ratio_range=ratio_range,
+        rule=decision_rule(model.setting, n, c.nominal, exact=exact, effect=float(model.effects[-1])),
     )
 
 

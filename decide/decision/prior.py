@@ -61,7 +61,9 @@ class EffectPrior:
     median ``median`` and log-scale standard deviation ``log_sd``.
 
     The *design effect* is the median: the effect that power targets of
-    conventional policies refer to.
+    conventional policies refer to.  ``entered`` keeps the central interval
+    ``(low, high, level)`` a lognormal prior was given by, so that it can be
+    shown back as entered.
 
     Notes
     -----
@@ -76,6 +78,7 @@ class EffectPrior:
 
     median: float
     log_sd: float = 0.0
+    entered: tuple[float, float, float] | None = None
 
     @classmethod
     def point(cls, ratio: float) -> EffectPrior:
@@ -106,7 +109,17 @@ class EffectPrior:
                 f"effect.median must lie between effect.low and effect.high, but got {med:g}",
                 ("effect.median", "effect.low", "effect.high"),
             )
-        return cls(med, float((np.log(hi) - np.log(lo)) / (2 * z)))
+        return cls(med, float((np.log(hi) - np.log(lo)) / (2 * z)), (lo, hi, lev))
+
+    def describe(self) -> str:
+        """The prior in words, as it was entered."""
+        if self.is_point:
+            return f"{self.median:g}"
+        if self.entered is not None:
+            lo, hi, level = self.entered
+            return f"lognormal, median {self.median:.3g}, {level * 100:g}% between {lo:g} and {hi:g}"
+        return (f"lognormal, median {self.median:.3g}, 90% between {self.quantile(0.05):.3g} "
+                f"and {self.quantile(0.95):.3g}")
 
     @property
     def is_point(self) -> bool:

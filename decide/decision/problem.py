@@ -193,11 +193,7 @@ class Problem:
         setting = self.study.setting()
         d = setting.design
         e = self.effect
-        if e.is_point:
-            effect = f"{e.median:g}"
-        else:
-            effect = (f"lognormal, median {e.median:.3g}, 90% between {e.quantile(0.05):.3g} "
-                      f"and {e.quantile(0.95):.3g}")
+        effect = e.describe()
         c = self.consequences
         if c.missed_hazard is not None:
             missed = f"{c.missed_hazard:g}"

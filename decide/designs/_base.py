@@ -173,6 +173,31 @@ class StudyDesign(ABC):
         ), dtype=np.float64)
 
     @abstractmethod
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """The normal test statistic computed from observed counts.
+
+        ``exposed`` is the count the exact test looks at (exposed cases, or
+        exposed cases among cases for case-control), ``other`` the comparison
+        count (ignored by one-group designs); the study is ``n`` exposed
+        subjects (or cases) with its comparison group of
+        :meth:`comparison_size`.  Returns the statistic in null standard
+        errors toward harm and toward protection (they differ only by a
+        continuity correction): the test flags harm when the first reaches
+        the critical value ``z`` (and, two-sided, protection when the second
+        falls to ``-z``).  ``nan`` where the statistic is undefined (no case
+        at all); such counts never flag.
+        """
+
+    @abstractmethod
     def count_model(
         self,
         n: FloatArray,

@@ -56,3 +56,23 @@ def count_model(n1: FloatArray, n0: FloatArray, p1: FloatArray, p0: FloatArray) 
         n_exposed=n1,
         n_other=n0,
     )
+
+
+def normal_statistic(
+    x1: FloatArray, x0: FloatArray, n1: FloatArray, n0: FloatArray, continuity: bool
+) -> tuple[FloatArray, FloatArray]:
+    """``(p1_hat - p0_hat -+ c) / se0`` from observed counts, pooled null standard error.
+
+    ``se0 = sqrt(pbar*(1 - pbar)*(1/n1 + 1/n0))`` with ``pbar`` the pooled
+    proportion; ``c = (1/n1 + 1/n0)/2`` when continuity-corrected.  ``nan``
+    where ``pbar`` is 0 or 1.
+    """
+    inv = 1 / n1 + 1 / n0
+    pooled = (x1 + x0) / (n1 + n0)
+    se = np.sqrt(pooled * (1 - pooled) * inv)
+    diff = x1 / n1 - x0 / n0
+    c = inv / 2 if continuity else np.zeros_like(inv)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        up = np.where(se > 0, (diff - c) / se, np.nan)
+        down = np.where(se > 0, (diff + c) / se, np.nan)
+    return np.asarray(up, dtype=np.float64), np.asarray(down, dtype=np.float64)

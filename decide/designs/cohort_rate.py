@@ -81,6 +81,31 @@ class CohortRate(StudyDesign):
             "unexposed cases": baseline * self.comparison_size(n, allocation) * years,
         }
 
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """``log(rate ratio) * sqrt(N pi (1 - pi))``, ``N`` the observed total, ``pi`` the exposed share.
+
+        The null variance of the log rate ratio at the observed total, as the
+        design formula takes it at the expected total.  With no case in either
+        group the log rate ratio has no value: the statistic is ``nan`` and
+        such counts never flag.
+        """
+        t1 = n * years
+        t0 = self.comparison_size(n, allocation) * years
+        share = t1 / (t1 + t0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = (np.log(exposed / t1) - np.log(other / t0)) * np.sqrt((exposed + other) * share * (1 - share))
+        z = np.asarray(np.where((exposed > 0) & (other > 0), z, np.nan), dtype=np.float64)
+        return z, z
+
     def count_model(
         self,
         n: FloatArray,

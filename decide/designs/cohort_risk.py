@@ -74,6 +74,20 @@ class CohortRisk(StudyDesign):
             "unexposed non-cases": n0 * (1 - baseline),
         }
 
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        return _two_proportions.normal_statistic(
+            exposed, other, n, self.comparison_size(n, allocation), continuity
+        )
+
     def count_model(
         self,
         n: FloatArray,

@@ -72,6 +72,20 @@ class ReferenceRate(StudyDesign):
         expected = baseline * n * years
         return {"exposed cases": effect * expected, "expected at the reference rate": expected}
 
+    def normal_statistic(
+        self,
+        exposed: FloatArray,
+        other: FloatArray,
+        n: FloatArray,
+        baseline: FloatArray,
+        allocation: FloatArray,
+        years: FloatArray,
+        continuity: bool,
+    ) -> tuple[FloatArray, FloatArray]:
+        """``2 * (sqrt(O) - sqrt(E))``, the square-root transform of the observed count."""
+        z = np.asarray(2 * (np.sqrt(exposed) - np.sqrt(baseline * n * years)), dtype=np.float64)
+        return z, z
+
     def count_model(
         self,
         n: FloatArray,

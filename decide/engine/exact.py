@@ -63,6 +63,7 @@ class CountGrid:
     other : (B, W0) probabilities of the comparison count (both hypotheses)
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
     exposed_counts : (B, W1) the exposed counts of the rows (padding continues past the window)
+    other_counts : (B, W0) the comparison counts of its columns (0 for one group)
     """
 
     null_exposed: FloatArray
@@ -70,6 +71,7 @@ class CountGrid:
     other: FloatArray
     p_value: FloatArray
     exposed_counts: FloatArray
+    other_counts: FloatArray
 
 
 def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
@@ -120,28 +122,19 @@ def _poisson_p(x1: FloatArray, mean: FloatArray, sides: int) -> FloatArray:
     return np.asarray(np.minimum(1.0, 2 * np.minimum(upper, lower))[:, :, None])
 
 
-def _row_tails(
-    x1: FloatArray,
-    x0: FloatArray,
-    hi1: FloatArray,
-    hi0: FloatArray,
-    law: Callable[[FloatArray], _RowLaw],
-    sides: int,
-) -> FloatArray:
-    """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
+def _row_span(
+    t: FloatArray, tvalid: NDArray[np.bool_], law: Callable[[FloatArray], _RowLaw]
+) -> tuple[FloatArray, FloatArray, FloatArray, FloatArray]:
+    """Null law of ``x1`` given each total ``t`` (B, T), over the span of its mass.
 
-    Each row holds the null distribution of ``x1`` given ``t`` over the span
-    of its mass: 11 standard deviations and 11 counts either side of the mean,
-    where the tails beyond hold less than about 1e-20.  The row is built from
-    the exact ratio of successive probabilities and normalised over that
-    span, which avoids the cancellation of log-factorials of large groups.
-    Grid points below the span get upper p-value 1 (lower 0), points above it
-    upper p-value 0 (lower 1): p-values under about 1e-20 are reported as 0.
+    Each row spans 11 standard deviations and 11 counts either side of the
+    mean, where the tails beyond hold less than about 1e-20.  The row is
+    built from the exact ratio of successive probabilities and normalised
+    over that span, which avoids the cancellation of log-factorials of large
+    groups.  Returns the first and last count of each row (B, T), the counts
+    (B, T, W) and their probabilities (zero on padding).
     """
     reach = 11.0
-    lo1 = x1[:, 0]
-    tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
-    t, tvalid = _axis(tmin, tmax)  # (B, T)
     rows = law(t)
     lo = np.maximum(rows.support_lo, np.floor(rows.mean - reach * rows.sd - reach))
     hi = np.minimum(rows.support_hi, np.ceil(rows.mean + reach * rows.sd + reach))
@@ -155,6 +148,28 @@ def _row_tails(
     logf = np.where(x <= hi[:, :, None], logf, -np.inf)
     f = np.exp(logf - logf.max(axis=2, keepdims=True))
     f /= f.sum(axis=2, keepdims=True)
+    return lo, hi, x, f
+
+
+def _row_tails(
+    x1: FloatArray,
+    x0: FloatArray,
+    hi1: FloatArray,
+    hi0: FloatArray,
+    law: Callable[[FloatArray], _RowLaw],
+    sides: int,
+) -> FloatArray:
+    """Conditional p-values on the grid, one row per total ``t = x1 + x0``.
+
+    The rows come from :func:`_row_span`.  Grid points below the span get
+    upper p-value 1 (lower 0), points above it upper p-value 0 (lower 1):
+    p-values under about 1e-20 are reported as 0.
+    """
+    lo1 = x1[:, 0]
+    tmin, tmax = lo1 + x0[:, 0], hi1 + hi0
+    t, tvalid = _axis(tmin, tmax)  # (B, T)
+    lo, hi, x, f = _row_span(t, tvalid, law)
+    width = x.shape[2]
     b = np.arange(x1.shape[0])[:, None, None]
     row = np.clip((x1[:, :, None] + x0[:, None, :] - tmin[:, None, None]).astype(np.int64), 0, t.shape[1] - 1)
     offset = x1[:, :, None] - lo[b, row]
@@ -250,14 +265,55 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     if model.conditional == "poisson":
         assert model.reference_mean is not None
         p = _poisson_p(x1, model.reference_mean, sides)
-    elif model.conditional == "binomial":
-        assert model.share_exposed is not None
-        p = _row_tails(x1, x0, hi1, hi0, _binomial(model.share_exposed), sides)
     else:
-        assert model.n_exposed is not None and model.n_other is not None
-        p = _row_tails(x1, x0, hi1, hi0, _hypergeometric(model.n_exposed, model.n_other), sides)
+        p = _row_tails(x1, x0, hi1, hi0, _conditional_law(model), sides)
     p = np.where(valid1[:, :, None] & valid0[:, None, :], p, np.inf)
-    return CountGrid(null_exposed, alt_exposed, other, p, x1)
+    return CountGrid(null_exposed, alt_exposed, other, p, x1, x0)
+
+
+def _conditional_law(model: CountModel) -> Callable[[FloatArray], _RowLaw]:
+    if model.conditional == "binomial":
+        assert model.share_exposed is not None
+        return _binomial(model.share_exposed)
+    assert model.n_exposed is not None and model.n_other is not None
+    return _hypergeometric(model.n_exposed, model.n_other)
+
+
+def poisson_p_values(counts: FloatArray, mean: FloatArray, sides: int) -> FloatArray:
+    """Exact p-values (B, W) of exposed ``counts`` (B, W) against Poisson means (B,)."""
+    return np.asarray(_poisson_p(counts, mean, sides)[:, :, 0])
+
+
+@dataclass(frozen=True)
+class ConditionalRows:
+    """The null law of the exposed count given each total, for a batch of studies.
+
+    ``counts`` (B, T, W) runs over each row's span (see :func:`_row_span`),
+    ``upper`` and ``lower`` are ``P(x1 >= count | total)`` and
+    ``P(x1 <= count | total)``; ``first`` and ``last`` (B, T) bound the span
+    and ``least`` and ``most`` the counts possible at all given the total.
+    Counts above the span have upper tail below about 1e-20 (taken as 0),
+    counts below it lower tail below that.
+    """
+
+    counts: FloatArray
+    upper: FloatArray
+    lower: FloatArray
+    first: FloatArray
+    last: FloatArray
+    least: FloatArray
+    most: FloatArray
+
+
+def conditional_rows(model: CountModel, totals: FloatArray) -> ConditionalRows:
+    """Conditional tails of the exposed count given ``totals`` (B, T), for the two-group tests."""
+    law = _conditional_law(model)
+    lo, hi, x, f = _row_span(totals, np.ones(totals.shape, dtype=bool), law)
+    support = law(totals)
+    inside = x <= hi[:, :, None]
+    upper = np.where(inside, np.cumsum(f[:, :, ::-1], axis=2)[:, :, ::-1], 0.0)
+    lower = np.where(inside, np.cumsum(f, axis=2), 1.0)
+    return ConditionalRows(x, upper, lower, lo, hi, support.support_lo, support.support_hi)
 
 
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:

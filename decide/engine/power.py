@@ -76,6 +76,28 @@ class PowerResult:
         """Probability of missing the effect, ``1 - power``."""
         return np.asarray(1.0 - self.power)
 
+    def false_alarm(self) -> FloatArray:
+        """Probability of a flag when the exposure is harmless, under the exact law of the counts.
+
+        For the exact test this is ``attained_alpha``.  For the normal test it
+        is its real false-alarm probability, summed over the count outcomes of
+        the exact-power grid whose normal p-value is at most ``alpha``; it is
+        ``nan`` (not computed) where a cell expects more than
+        :data:`~decide.designs.EXACT_UP_TO`.  Computed on request: it costs an
+        exact grid per study.
+        """
+        from ..designs import get_design
+        from .rule import normal_false_alarm
+
+        out = np.where(self.exact, self.attained_alpha, np.nan)
+        todo = ~self.exact
+        if todo.any():
+            out[todo] = normal_false_alarm(
+                get_design(self.design), self.alpha[todo], self.n_per_group[todo], self.baseline[todo],
+                self.allocation[todo], self.years[todo], self.sides, self.continuity,
+            )
+        return np.asarray(out)
+
     def test_used(self) -> str:
         """``exact``, ``normal``, ``normal-cc`` or ``mixed`` (for arrays)."""
         if self.exact.all():

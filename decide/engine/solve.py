@@ -80,6 +80,9 @@ class Solution(PlainData):
     n_stable: int | None = None
     n_checked: int | None = None
     warnings: tuple[str, ...] = field(default=())
+    #: probability of a flag when harmless under the exact law of the counts
+    #: (the normal test's real false-alarm probability); None where not computed
+    false_alarm: float | None = None
 
 
 
@@ -476,7 +479,13 @@ def _finish(
         n_stable=n_stable,
         n_checked=n_checked,
         warnings=tuple(extra) + res.warnings,
+        false_alarm=_computed(res.false_alarm()),
     )
+
+
+def _computed(x: FloatArray) -> float | None:
+    value = float(np.ravel(x)[0])
+    return None if np.isnan(value) else value
 
 
 def _wants_exact(setting: Setting, n: float, effect: float) -> bool:

@@ -23,6 +23,7 @@ from ..decision.optimize import Comparison, Decision
 from ..decision.policies import Policy
 from ..designs import StudyDesign, get_design
 from ..engine.solve import Solution
+from . import audit_words, rule_words
 from . import numbers as nb
 from .sentences import best_action, recommendation
 from .text import CAUTION, literal, one_line
@@ -78,7 +79,8 @@ def solution_table(s: Solution) -> Group:
         t.add_row(label, Text(value, style="bold green" if solved else ""))
 
     row(f"alpha (nominal, {'one' if s.sides == 1 else 'two'}-sided)", nb.probability(s.alpha), s.solved_for == "alpha")
-    row("alpha attained (false-alarm probability)", nb.probability(s.attained_alpha))
+    row("alpha attained (real false-alarm probability)",
+        rule_words.NOT_COMPUTED if s.false_alarm is None else nb.probability(s.false_alarm))
     row("power", nb.probability(s.power), s.solved_for == "power")
     row("beta (miss probability)", nb.probability(s.beta))
     row(d.effect_name, nb.number(s.effect), s.solved_for == "effect")
@@ -118,8 +120,8 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     t.add_row("feasible", "yes" if d.feasible else _text(f"no: {d.reason}", "red"))
     if d.n_per_group is not None:
         t.add_row("test", _text(d.method or nb.MISSING))
-        t.add_row("alpha (nominal)", nb.probability(d.alpha))
-        t.add_row("alpha attained (false-alarm probability)", nb.probability(d.attained_alpha))
+        for label, value in rule_words.alpha_rows(d):
+            t.add_row(label, value)
         t.add_row("beta (miss probability, averaged over the effect)", nb.probability(d.beta))
         t.add_row(
             f"power at the design {design.effect_name} {nb.number(d.design_effect)}",
@@ -148,7 +150,8 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     t.add_row("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio))
     notes = [_text(recommendation(d, cur), "bold")]
     notes += [_text(f"Warning: {w}", "yellow") for w in d.warnings]
-    return Group(t, _notes_panel(notes))
+    notes += rule_words.decision_notes([d])
+    return Group(t, rule_words.console_rule(d.rule), _notes_panel(notes))
 
 
 def _ratio(d: Decision | Audit) -> str:
@@ -192,7 +195,9 @@ def compare_table(
     tables = [_compare_part(part, design, cur, title if i == 0 else "") for i, part in enumerate(blocks)]
     note = f"Money in {cur}; " if cur else "Money in the scenario's unit; "
     tables[-1].caption = Text(note + nb.SUFFIX_NOTE + ".")
-    return Group(*tables, Panel(Group(*_notes(decisions, cur)), border_style="dim"))
+    best = next((d for d in decisions if d.policy == "loss-optimal"), None)
+    shown = rule_words.console_rule(best.rule, "Loss-optimal decision rule") if best is not None else Group()
+    return Group(*tables, shown, Panel(Group(*_notes(decisions, cur)), border_style="dim"))
 
 
 def _balanced(
@@ -217,8 +222,8 @@ def _compare_rows(design: StudyDesign, cur: str) -> list[tuple[str, Callable[[De
     money_unit = f" ({cur})" if cur else ""
     return [
         ("meets the constraints", lambda d: Text("yes", style="green") if d.feasible else Text("no", style="red")),
-        ("alpha, nominal", lambda d: nb.probability(d.alpha)),
-        ("alpha, attained", lambda d: nb.probability(d.attained_alpha)),
+        ("alpha, nominal", rule_words.nominal_text),
+        ("alpha, attained", lambda d: nb.probability(rule_words.attained(d))),
         ("beta (averaged)", lambda d: nb.probability(d.beta)),
         ("power at design effect", lambda d: nb.probability(d.power_at_design_effect)),
         (f"{design.size_name} per group", lambda d: nb.count(d.n_per_group)),
@@ -258,31 +263,39 @@ def _notes(decisions: Sequence[Decision], currency: str = "") -> list[Text]:
     best = next((d for d in decisions if d.policy == "loss-optimal"), None)
     if best is not None:
         notes.append(_text(f"Loss-optimal: {recommendation(best, currency)}", "bold"))
+    notes += rule_words.decision_notes(list(decisions))
     notes.append(Text(CAUTION, style="dim italic"))
     return notes
 
 
 def audit_table(a: Audit, unit: str) -> Group:
-    """A protocol's implied value judgments."""
+    """A protocol's implied value judgments, and its losses by its own costs when given."""
     design = get_design(a.design)
     cur = one_line(unit)
     t = _two_columns(f"Audit of a {design.title.lower()} protocol")
     t.add_row("test", _text(a.method))
-    t.add_row("alpha (nominal / attained)", f"{nb.probability(a.alpha)} / {nb.probability(a.attained_alpha)}")
+    for label, value in rule_words.alpha_rows(a):
+        t.add_row(label, value)
     t.add_row(f"power against {design.effect_name} {nb.number(a.effect)}", nb.probability(a.power))
     t.add_row(design.size_name, nb.count(a.n_per_group))
     t.add_row("subjects in all", nb.count(a.n_total))
+    if a.prior is not None:
+        t.add_row(f"{design.effect_name} if harmful (prior, as entered)", a.prior)
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(a))
-    t.add_row("power gained per extra exposed subject", nb.number(a.marginal_power_per_subject))
+    t.add_row(f"power gained per extra {audit_words.one_subject(a.design)}", nb.number(a.marginal_power_per_subject))
     t.add_row("implied cost of a missed hazard", nb.money(a.implied_missed_hazard, cur))
     t.add_row("implied cost of a false alarm", nb.money(a.implied_false_alarm, cur))
     t.add_row("P(harmful | negative result)", nb.probability(a.p_harm_given_negative))
     t.add_row("P(harmful | positive result)", nb.probability(a.p_harm_given_positive))
     for level, effect in a.detectable_effects.items():
         t.add_row(f"{design.effect_name} detected with power {level}", nb.number(effect))
+    for label, value in audit_words.loss_rows(a, cur):
+        t.add_row(label, value)
     notes = [_text(a.rules_out, "bold")]
+    notes += [_text(line) for line in audit_words.explanations(a, cur)]
     notes += [_text(f"Note: {w}", "yellow") for w in a.warnings]
-    return Group(t, _notes_panel(notes))
+    notes += rule_words.decision_notes([a])
+    return Group(t, rule_words.console_rule(a.rule), _notes_panel(notes))
 
 
 def _policy_rule(p: Policy) -> tuple[str, str]:

@@ -35,9 +35,14 @@ def recommendation(d: Decision, currency: str = "") -> str:
     size_name = get_design(d.design).size_name
     sided = "one-sided" if d.sides == 1 else "two-sided"
     return (f"Study {d.n_per_group:,} {size_name} ({d.n_total:,} subjects in all); flag the exposure "
-            f"if the {sided} {d.test} test is significant at alpha = {d.alpha:.4g}. "
+            f"if the {sided} {d.test} test is significant at alpha = {_shown_alpha(d)}. "
             f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): "
             f"{nb.money(d.net_benefit, currency)}.")
+
+
+def _shown_alpha(d: Decision) -> str:
+    """The nominal alpha rounded into its rule's cut-off interval (never below the rule's cut-off)."""
+    return d.rule.cutoff_shown if d.rule is not None else f"{d.alpha:.4g}"
 
 
 def best_action(c: Comparison, currency: str = "") -> str:

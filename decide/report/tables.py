@@ -16,7 +16,8 @@ from ..decision.optimize import Comparison, Decision
 from ..decision.problem import Problem
 from ..designs import get_design
 from . import numbers as nb
-from .sentences import best_action, decision_record
+from . import rule_words
+from .sentences import best_action, decision_record, recommendation
 from .text import CAUTION, literal, markdown_literal
 
 #: Columns of the flat comparison formats (CSV).
@@ -94,8 +95,8 @@ _HEAD = ["policy", "meets the constraints", "alpha", "attained alpha", "beta", "
 
 
 def _markdown_row(d: Decision, cur: str) -> str:
-    cells = [markdown_literal(d.title), "yes" if d.feasible else "no", nb.probability(d.alpha),
-             nb.probability(d.attained_alpha), nb.probability(d.beta), nb.probability(d.power_at_design_effect),
+    cells = [markdown_literal(d.title), "yes" if d.feasible else "no", rule_words.nominal_text(d),
+             nb.probability(rule_words.attained(d)), nb.probability(d.beta), nb.probability(d.power_at_design_effect),
              nb.count(d.n_per_group), nb.count(d.n_total), nb.money(d.expected_loss, cur),
              nb.money(d.regret, cur), nb.probability(d.p_harm_given_negative),
              nb.probability(d.p_harm_given_positive), nb.number(d.detectable_effect),
@@ -119,5 +120,48 @@ def to_markdown(
     lines += [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in decisions if not d.feasible]
     if isinstance(decisions, Comparison):
         lines += ["", markdown_literal(best_action(decisions, currency))]
+    lines += ["", rule_words.NOMINAL_AND_ATTAINED, ""]
+    if any(d.test in ("normal", "normal-cc") for d in decisions):
+        lines += [rule_words.NORMAL_LOSS_NOTE, ""]
+    lines += ["## Decision rules", ""]
+    for d in decisions:
+        lines += rule_words.markdown_rule(d.rule, markdown_literal(d.title))
     lines += ["", f"_{CAUTION}_", ""]
+    return "\n".join(lines)
+
+
+def decision_markdown(d: Decision, title: str, inputs: list[tuple[str, str]], currency: str) -> str:
+    """One policy's decision as a Markdown document: inputs, the choice, its rule, the caution."""
+    cur = markdown_literal(currency)
+    lines = [f"# {markdown_literal(title)}", "", f"## {markdown_literal(d.title)}", ""]
+    lines += ["### Inputs", ""]
+    lines += [f"- {markdown_literal(label)}: {markdown_literal(value)}" for label, value in inputs] + [""]
+    rows: list[tuple[str, str]] = [
+        ("meets the constraints", "yes" if d.feasible else f"no: {markdown_literal(d.reason)}")]
+    if d.n_per_group is not None and d.loss_parts is not None:
+        rows += [("test", d.method or nb.MISSING), *rule_words.alpha_rows(d),
+                 ("beta (miss probability, averaged over the effect)", nb.probability(d.beta)),
+                 (f"power at the design effect {nb.number(d.design_effect)}", nb.probability(d.power_at_design_effect)),
+                 ("size per group", nb.count(d.n_per_group)), ("subjects in all", nb.count(d.n_total)),
+                 ("expected loss", nb.money(d.expected_loss, cur)),
+                 ("from missed hazards", nb.money(d.loss_parts["missed"], cur)),
+                 ("from false alarms", nb.money(d.loss_parts["false_alarm"], cur)),
+                 ("study cost", nb.money(d.loss_parts["study"], cur))]
+    rows += [("loss if flagged now, no study", nb.money(d.no_study["flag_now"], cur)),
+             ("loss if cleared now, no study", nb.money(d.no_study["clear_now"], cur)),
+             ("expected net benefit of the study", nb.money(d.net_benefit, cur)),
+             ("P(harmful \\| negative result)", nb.probability(d.p_harm_given_negative)),
+             ("P(harmful \\| positive result), the share of flags that are true",
+              nb.probability(d.p_harm_given_positive)),
+             ("smallest effect detected with power 0.8", nb.number(d.detectable_effect)),
+             ("implied cost ratio (miss : false alarm)", nb.number(d.implied_cost_ratio)),
+             ("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio))]
+    lines += ["| quantity | value |", "|---|---|"] + [f"| {k} | {v} |" for k, v in rows]
+    lines += ["", f"**{markdown_literal(recommendation(d, currency))}**", ""]
+    lines += [f"- Warning: {markdown_literal(w)}" for w in d.warnings] + ([""] if d.warnings else [])
+    lines += ["### Decision rule", ""] + rule_words.markdown_rule(d.rule)
+    lines += [rule_words.NOMINAL_AND_ATTAINED, ""]
+    if d.test in ("normal", "normal-cc"):
+        lines += [rule_words.NORMAL_LOSS_NOTE, ""]
+    lines += [f"_{CAUTION}_", ""]
     return "\n".join(lines)
