@@ -37,6 +37,7 @@ from .report.sentences import best_action, decision_record, recommendation
 from .report.text import one_line
 from .scenario import (
     LoadedScenario,
+    ScenarioError,
     check_output_path,
     example_names,
     example_text,
@@ -67,6 +68,8 @@ _OPTIONS = {
     "effect.low": "--effect-low",
     "effect.high": "--effect-high",
     "effect.level": "--effect-level",
+    "p_harm": "--p-harm",
+    "per_subject": "--per-subject",
     "confidence": "--confidence",
 }
 _DEBUG = {"on": False}
@@ -168,8 +171,13 @@ def _root(
 
 
 def _option_words(exc: DecideError) -> str:
-    """The error message with the parameters it names spelt as options."""
+    """The error message with the parameters it names spelt as options.
+
+    Errors about a file keep the file's key paths: they name no option.
+    """
     message = str(exc)
+    if isinstance(exc, ScenarioError):
+        return message
     for name in exc.params:
         if name in _OPTIONS:
             message = re.sub(rf"(?<![\w-]){re.escape(name)}(?![\w-])", _OPTIONS[name], message)
@@ -371,7 +379,7 @@ def optimize_command(
         con.print(render.inputs_table(_inputs(loaded), currency))
         con.print(render.decision_table(decision, loaded.title, currency))
     if not decision.feasible:
-        raise typer.Exit(1)
+        _fail(f"decide optimize: cannot be done: {decision.reason}", 1)
 
 
 @app.command("compare")

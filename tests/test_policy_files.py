@@ -120,16 +120,13 @@ rule = "smallest-for-power"
 """
 
 
-def test_extra_folder_overrides_in_place_and_appends(tmp_path: Path) -> None:
-    (tmp_path / "conventional-science.toml").write_text(POLICY)
+def test_extra_folder_appends_in_order(tmp_path: Path) -> None:
     (tmp_path / "zeta.toml").write_text(POLICY)
     (tmp_path / "alpha-first.toml").write_text(POLICY)
     (tmp_path / "notes.txt").write_text("not a policy")
     (tmp_path / ".hidden.toml").write_text("not = [valid")
     policies = load_policies([tmp_path])
     assert list(policies) == [*BUILTIN_ORDER, "alpha-first", "zeta"]
-    assert policies["conventional-science"].alpha == 0.01
-    assert policies["conventional-science"].title == "Invented test policy"
     assert policies["zeta"] == Policy(
         name="zeta",
         title="Invented test policy",
@@ -139,16 +136,36 @@ def test_extra_folder_overrides_in_place_and_appends(tmp_path: Path) -> None:
         alpha=0.01,
         power=0.9,
     )
+
+
+def test_a_name_taken_by_a_bundled_policy_is_refused(tmp_path: Path) -> None:
+    (tmp_path / "conventional-science.toml").write_text(POLICY)
+    with pytest.raises(PolicyFileError) as info:
+        load_policies([tmp_path])
+    bundled = builtin_policy_dir() / "conventional-science.toml"
+    assert str(info.value) == (
+        f"{tmp_path / 'conventional-science.toml'}: a policy named 'conventional-science' already comes "
+        f"from {bundled}; two policies may not share a name (rename one of the files)"
+    )
     assert load_policies()["conventional-science"].alpha == 0.05  # bundled file untouched
 
 
-def test_later_folders_override_earlier_ones(tmp_path: Path) -> None:
+def test_two_folders_may_not_share_a_policy_name(tmp_path: Path) -> None:
     first, second = tmp_path / "a", tmp_path / "b"
     first.mkdir()
     second.mkdir()
     (first / "mine.toml").write_text(POLICY)
     (second / "mine.toml").write_text(POLICY.replace("value = 0.01", "value = 0.02"))
-    assert load_policies([first, second])["mine"].alpha == 0.02
+    with pytest.raises(PolicyFileError, match=re.escape(f"{second / 'mine.toml'}: a policy named 'mine' "
+                                                        f"already comes from {first / 'mine.toml'}")):
+        load_policies([first, second])
+    assert load_policies([first, first])["mine"].alpha == 0.01  # one folder given twice is one folder
+
+
+def test_a_file_given_as_policy_folder(tmp_path: Path) -> None:
+    (tmp_path / "mine.toml").write_text(POLICY)
+    with pytest.raises(PolicyFileError, match=re.escape(f"{tmp_path / 'mine.toml'}: is a file, not a folder")):
+        load_policies([tmp_path / "mine.toml"])
 
 
 def test_missing_extra_folder(tmp_path: Path) -> None:
@@ -205,7 +222,7 @@ BAD_POLICIES = [
         "alpha out of range",
         POLICY.replace("value = 0.01", "value = 1.5"),
         "alpha.value",
-        r"must be < 1 \(got 1\.5\)",
+        r"must be strictly between 0 and 1 \(got 1\.5\)",
     ),
     (
         "power needed",

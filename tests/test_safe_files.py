@@ -131,7 +131,7 @@ def test_a_deeply_nested_file_is_one_line(tmp_path: Path) -> None:
     deep = tmp_path / "deep.toml"
     deep.write_text("title = " + "[" * 50_000 + "]" * 50_000 + "\n", encoding="utf-8")
     assert one_line(run("optimize", deep)) == (
-        f"decide optimize: {deep}: nests arrays or tables too deeply to be read\n"
+        f"decide optimize: {deep}: not valid TOML here: arrays or tables are nested too deeply to read\n"
     )
     with pytest.raises(PolicyFileError, match="too deeply"):
         load_policy_file(deep.rename(tmp_path / "deep-policy.toml"))

@@ -255,7 +255,7 @@ def test_budget_must_cover_the_smallest_study(
     assert ok.problem.constraints.budget == least
     with pytest.raises(ScenarioError) as info:
         load_text(tmp_path, edit(text, "budget = 1.0e6", f"budget = {least - 1}"))
-    assert str(info.value).endswith(f"= {least:g}) (got {least - 1!r})")
+    assert str(info.value).endswith(f"= {least:g}) (got {least - 1:g})")
     assert info.value.key == "constraints.budget"
 
 
@@ -298,25 +298,25 @@ MALFORMED = [
         "probability above 1",
         edit(BASE, "p_harm = 0.2", "p_harm = 1.2"),
         "prior.p_harm",
-        r"must be < 1 \(got 1\.2\)",
+        r"must be strictly between 0 and 1 \(got 1\.2\)",
     ),
     (
         "probability zero",
         edit(BASE, "p_harm = 0.2", "p_harm = 0"),
         "prior.p_harm",
-        r"must be > 0 \(got 0\)",
+        r"must be strictly between 0 and 1 \(got 0\)",
     ),
     (
         "negative cost",
         edit(BASE, "false_alarm = 1.0e7", "false_alarm = -3"),
         "consequences.false_alarm",
-        r"must be >= 0 \(got -3\)",
+        r"must be a finite number not below 0 \(got -3\)",
     ),
     (
         "not finite",
         edit(BASE, "per_subject = 100.0", "per_subject = inf"),
         "consequences.per_subject",
-        r"must be a finite number \(got inf\)",
+        r"must be a finite number not below 0 \(got inf\)",
     ),
     (
         "ratio and interval",
@@ -335,7 +335,7 @@ MALFORMED = [
         "ratio not above 1",
         edit(BASE, "ratio = 3.0", "ratio = 0.8"),
         "effect.ratio",
-        r"must be > 1 \(got 0\.8\)",
+        r"must be above 1 \(the effect if harmful\) \(got 0\.8\)",
     ),
     (
         "high below low",
@@ -375,9 +375,10 @@ MALFORMED = [
     ),
     (
         "allocation with reference-rate",
-        edit(BASE, 'design = "cohort-risk"', 'design = "reference-rate"'),
+        edit(edit(BASE, 'design = "cohort-risk"', 'design = "reference-rate"'), "allocation = 1.0",
+             "allocation = 2.0"),
         "study.allocation",
-        r"does not apply to the reference-rate design .*\(got 1\.0\)",
+        r"does not apply to the reference-rate design .*\(got 2\)",
     ),
     (
         "years with cohort-risk",
@@ -390,10 +391,11 @@ MALFORMED = [
         edit(
             edit(BASE, 'design = "cohort-risk"', 'design = "cohort-rate"'),
             "allocation = 1.0",
-            "continuity = false",
+            "continuity = true",
         ),
         "study.continuity",
-        r"does not apply to the cohort-rate design; it applies to cohort-risk, case-control",
+        r"does not apply to the cohort-rate design \(a correction of two proportions\); it applies to "
+        r"cohort-risk, case-control \(got true\)",
     ),
     (
         "unknown design",
@@ -406,13 +408,13 @@ MALFORMED = [
         "sides true",
         edit(BASE, "allocation = 1.0", "sides = true"),
         "study.sides",
-        r"must be 1 or 2 \(got true\)",
+        r"must be a whole number \(got true\)",
     ),
     (
         "sides 3",
         edit(BASE, "allocation = 1.0", "sides = 3"),
         "study.sides",
-        r"must be 1 or 2 \(got 3\)",
+        r"must be 1 or 2 \(a whole number\) \(got 3\)",
     ),
     ("missing key", edit(BASE, "p_harm = 0.2", ""), "prior.p_harm", r"is required but missing$"),
     ("empty title", edit(BASE, '"Invented test case"', '""'), "title", r"must not be empty"),
@@ -420,13 +422,13 @@ MALFORMED = [
         "budget below fixed cost",
         edit(BASE, "budget = 1.0e6", "budget = 500.0"),
         "constraints.budget",
-        r"must at least cover the fixed cost .*\(got 500\.0\)",
+        r"must at least cover the fixed cost .*\(got 500\)",
     ),
     (
         "max below min",
         edit(BASE, "max_n_per_group = 2000", "max_n_per_group = 5\nmin_n_per_group = 6"),
         "constraints.max_n_per_group",
-        r"must be >= constraints\.min_n_per_group \(6\) \(got 5\)",
+        r"must not be below constraints\.min_n_per_group \(6\) \(got 5\)",
     ),
     (
         "size written as float",
@@ -437,10 +439,10 @@ MALFORMED = [
     (
         "two errors",
         edit(
-            edit(BASE, "p_harm = 0.2", "p_harm = 2.0"), "false_alarm = 1.0e7", "false_alarm = -1.0"
+            edit(BASE, "p_harm = 0.2", 'p_harm = "high"'), "false_alarm = 1.0e7", 'false_alarm = "low"'
         ),
         "prior.p_harm",
-        r"\(got 2\.0\) \(and 1 more\)$",
+        r"\(got \"high\"\) \(and 1 more\)$",
     ),
 ]
 
@@ -469,7 +471,7 @@ def test_message_matches_the_documented_example(
     Path("scenario.toml").write_text(edit(BASE, "false_alarm = 1.0e7", "false_alarm = -3"))
     with pytest.raises(ScenarioError) as info:
         load_scenario("scenario.toml")
-    assert str(info.value) == "scenario.toml: consequences.false_alarm: must be >= 0 (got -3)"
+    assert str(info.value) == "scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)"
     assert info.value.params == ("consequences.false_alarm",)
 
 
@@ -511,7 +513,7 @@ def test_json_schema_describes_every_table_and_key() -> None:
     study = schema["$defs"]["StudyModel"]["properties"]
     assert study["design"]["enum"] == list(DESIGNS)
     prior = schema["$defs"]["PriorModel"]["properties"]["p_harm"]
-    assert (prior["exclusiveMinimum"], prior["exclusiveMaximum"]) == (0, 1)
+    assert prior["type"] == "number" and "strictly between 0 and 1" in prior["description"]
 
 
 def test_model_vocabulary_matches_the_core() -> None:

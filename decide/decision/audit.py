@@ -84,8 +84,8 @@ class Audit(PlainData):
     marginal_power_per_subject: float
     implied_missed_hazard: float | None
     implied_false_alarm: float | None
-    p_harm_given_negative: float
-    p_harm_given_positive: float
+    p_harm_given_negative: float | None
+    p_harm_given_positive: float | None
     detectable_effects: dict[str, float | None]
     rules_out: str
     warnings: tuple[str, ...] = field(default=())
@@ -117,7 +117,7 @@ class ProtocolLosses(PlainData):
     no_study: dict[str, float]
     net_benefit: float
     regret: float
-    stated_cost_ratio: float
+    stated_cost_ratio: float | None
     optimal_action: str
     optimal_n_per_group: int | None
     optimal_alpha: str | None
@@ -171,8 +171,8 @@ def audit(
             "give exactly one of power and n_per_group (the size, or the power it was chosen for)",
             ("power", "n_per_group"),
         )
-    _checks.open_unit("p_harm", p_harm)
-    _checks.non_negative("per_subject", per_subject)
+    p_harm = float(_checks.probability("p_harm", _checks.scalar("p_harm", p_harm)))
+    per_subject = float(_checks.cost("per_subject", _checks.scalar("per_subject", per_subject)))
     if (missed_hazard is None) != (false_alarm is None):
         raise DecideError(
             "give both missed_hazard and false_alarm (the protocol's costs), or neither",
@@ -225,8 +225,9 @@ def audit(
         n_per_group=sol.n_per_group, n_total=sol.n_total, p_harm=p_harm, per_subject=per_subject,
         implied_cost_ratio=ratio, implied_cost_ratio_range=rng, marginal_power_per_subject=slope,
         implied_missed_hazard=implied_missed, implied_false_alarm=implied_false_alarm,
-        p_harm_given_negative=p_harm * sol.beta / neg,
-        p_harm_given_positive=p_harm * sol.power / pos,
+        # None where that result cannot happen (a study too small ever to be significant)
+        p_harm_given_negative=p_harm * sol.beta / neg if neg > 0 else None,
+        p_harm_given_positive=p_harm * sol.power / pos if pos > 0 else None,
         detectable_effects=detect, rules_out=_rules_out(detect, effect, get_design(design).effect_name),
         warnings=tuple(warnings), rule=rule, prior=None if prior is None else prior.describe(),
         losses=losses,

@@ -38,6 +38,7 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import special
 
+from .._checks import EFFECT_RANGE
 from ..designs._base import FloatArray, NormalMoments
 from ..engine import exact as _exact
 from ..engine import normal as _normal
@@ -112,7 +113,8 @@ class LossModel:
         """Quadrature nodes kept below the design's effect limit, and weights."""
         nodes, w = self.problem.effect.nodes(panels, self.kink)
         limit = float(self.setting.design.effect_limit(self.setting.baseline))
-        return np.minimum(nodes, limit * (1 - 1e-9)), w
+        low, high = EFFECT_RANGE  # nodes beyond carry less than 1e-6 of the mass (checked by Problem)
+        return np.clip(nodes, low, min(limit * (1 - 1e-9), high)), w
 
     @cached_property
     def normal_moments(self) -> tuple[NormalMoments, NormalMoments]:

@@ -37,8 +37,8 @@ from ..engine.selection import smallest_count
 from .choice import choose_tests
 from .implied import detectable_effect, implied_ratio_exact, implied_ratio_normal
 from .loss import LossModel, OperatingPoint, build_model, settle
-from .policies import LOSS_OPTIMAL, Policy
-from .problem import Problem
+from .policies import LOSS_OPTIMAL, Policy, check_policies
+from .problem import Problem, check_problem
 from .rules import OK
 from .sizes import REASONS, pick_size
 
@@ -77,7 +77,7 @@ class Decision(PlainData):
     design: str
     sides: int
     design_effect: float
-    stated_cost_ratio: float
+    stated_cost_ratio: float | None
     no_study: dict[str, float]
     no_study_action: NoStudyAction
     no_study_loss: float
@@ -131,7 +131,8 @@ def _starting_point(model: LossModel, policy: Policy, reason: str | None) -> Dec
         design=model.setting.design.name,
         sides=model.setting.sides,
         design_effect=p.effect.median,
-        stated_cost_ratio=float(model.expected_missed / false_alarm if false_alarm > 0 else np.inf),
+        # no finite ratio when a false alarm costs nothing: None, which the report puts in words
+        stated_cost_ratio=float(model.expected_missed / false_alarm) if false_alarm > 0 else None,
         no_study={"flag_now": model.flag_now, "clear_now": model.clear_now},
         no_study_action=better,
         no_study_loss=min(model.flag_now, model.clear_now),
@@ -216,6 +217,9 @@ def decide_policy(problem: Problem | LossModel, policy: Policy) -> Decision:
         ``reason``, when no size within the constraints meets the policy;
         where a size beyond them would, its numbers are still given.
     """
+    if not isinstance(problem, LossModel):
+        check_problem(problem)
+    check_policies([policy])
     model = problem if isinstance(problem, LossModel) else build_model(problem)
     pick = pick_size(model, policy)
     start = _starting_point(model, policy, pick.reason)
@@ -291,6 +295,8 @@ def compare(problem: Problem, policies: Sequence[Policy]) -> Comparison:
     all actions: the loss-optimal study, or flagging or clearing now, if one
     of those costs less.
     """
+    check_problem(problem)
+    check_policies(policies)
     model = build_model(problem)
     best = decide_policy(model, LOSS_OPTIMAL)
     decisions = [best if pol == LOSS_OPTIMAL else decide_policy(model, pol) for pol in policies]

@@ -47,10 +47,11 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Literal
 
-from .._checks import open_unit
+from .._checks import probability, scalar, show
 from ..errors import DecideError
 
 AlphaRule = Literal["fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power"]
@@ -94,28 +95,45 @@ class Policy:
     beta_at_most_alpha: bool = False
 
     def __post_init__(self) -> None:
+        for key in ("name", "title", "summary"):
+            if not isinstance(getattr(self, key), str):
+                raise DecideError(f"policy {key} must be text, but got {show(getattr(self, key))}", (key,))
         where = f"policy {self.name}"
-        if self.alpha_rule not in ALPHA_RULES:
-            raise DecideError(f"{where}: alpha.rule must be one of {', '.join(ALPHA_RULES)}, "
-                              f"but got {self.alpha_rule!r}", ())
-        if self.size_rule not in SIZE_RULES:
-            raise DecideError(f"{where}: size.rule must be one of {', '.join(SIZE_RULES)}, "
-                              f"but got {self.size_rule!r}", ())
-        if (self.alpha_rule == "fixed") != (self.alpha is not None):
-            raise DecideError(f"{where}: alpha.value is needed with, and only with, alpha.rule = 'fixed'", ())
-        if self.alpha is not None:
-            open_unit(f"{where}: alpha.value", self.alpha)
-        if self.power is not None:
-            open_unit(f"{where}: power.target", self.power)
-        if (self.alpha_rule == "posterior") != (self.posterior_threshold is not None):
-            raise DecideError(
-                f"{where}: alpha.posterior_threshold is needed with, and only with, alpha.rule = 'posterior'", ()
-            )
-        if self.posterior_threshold is not None:
-            open_unit(f"{where}: alpha.posterior_threshold", self.posterior_threshold)
-        if self.power is None and (self.size_rule == "smallest-for-power" or self.alpha_rule == "for-power"):
-            raise DecideError(f"{where}: power.target is needed by the rule {self.size_rule!r}"
-                              f" / {self.alpha_rule!r}", ())
+
+        def fail(key: str, message: str) -> DecideError:
+            return DecideError(f"{where}: {key}{message}", (key,))
+
+        for key, word, rules in (("alpha.rule", self.alpha_rule, ALPHA_RULES),
+                                 ("size.rule", self.size_rule, SIZE_RULES)):
+            if word not in rules:
+                raise fail(key, f" must be one of {', '.join(rules)}, but got {show(word)}")
+        self._check_keys(fail)
+        for key, value in (("alpha.value", self.alpha), ("power.target", self.power),
+                           ("alpha.posterior_threshold", self.posterior_threshold)):
+            if value is not None:
+                try:
+                    probability(key, scalar(key, value))
+                except DecideError as e:
+                    raise DecideError(f"{where}: {e}", (key,)) from None
+        if self.alpha is not None and self.power is not None and self.power <= self.alpha:
+            raise fail("power.target", f" must be above alpha.value ({self.alpha:g}), but got {show(self.power)}")
+        if not isinstance(self.beta_at_most_alpha, bool):
+            raise fail("power.beta_at_most_alpha", f" must be true or false, but got {show(self.beta_at_most_alpha)}")
+
+    def _check_keys(self, fail: Callable[[str, str], DecideError]) -> None:
+        """Each rule's keys given with it, and only with it."""
+        rule = self.alpha_rule
+        for key, value, wanted in (("alpha.value", self.alpha, "fixed"),
+                                   ("alpha.posterior_threshold", self.posterior_threshold, "posterior")):
+            if rule == wanted and value is None:
+                raise fail(key, f': is required with rule = "{wanted}"')
+            if rule != wanted and value is not None:
+                raise fail(key, f': applies to rule = "{wanted}" only, not {rule!r}, but got {show(value)}')
+        if self.power is None:
+            rules = (("size", self.size_rule), ("alpha", self.alpha_rule))
+            needs = [f"{t}.rule = {r!r}" for t, r in rules if r in ("smallest-for-power", "for-power")]
+            if needs:
+                raise fail("power.target", f": is required with {needs[0]}")
 
 
 #: The engine's own choice: everything free, loss minimised.
@@ -126,3 +144,15 @@ LOSS_OPTIMAL = Policy(
     alpha_rule="loss-optimal",
     size_rule="loss-optimal",
 )
+
+
+def check_policies(policies: object) -> None:
+    """Refuse anything but a sequence of :class:`Policy` objects (names are looked up by the caller)."""
+    items = list(policies) if isinstance(policies, list | tuple) else None
+    bad = [p for p in items if not isinstance(p, Policy)] if items is not None else [policies]
+    if bad:
+        raise DecideError(
+            f"policies must be Policy objects (load them with decide.scenario.load_policies), "
+            f"but got {show(bad[0])}",
+            ("policies",),
+        )

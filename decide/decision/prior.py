@@ -20,7 +20,8 @@ from functools import lru_cache
 import numpy as np
 from scipy import special
 
-from .._checks import open_unit, positive
+from .. import _checks
+from .._checks import at_most, non_negative, positive, probability, within
 from ..designs._base import FloatArray
 from ..errors import DecideError
 
@@ -29,6 +30,8 @@ SEARCH_PANELS, ORDER = 16, 6
 #: Half-width, in prior standard deviations, of the range integrated over;
 #: the prior mass beyond is below 1e-13.
 REACH = 7.5
+#: The widest prior accepted: log-scale standard deviation.
+LARGEST_LOG_SD = 10.0
 #: Share of a lognormal prior at or below a ratio of 1 above which a decision
 #: notes that the effect under harm leaves it out.
 TRUNCATION_NOTED_ABOVE = 0.01
@@ -80,10 +83,21 @@ class EffectPrior:
     log_sd: float = 0.0
     entered: tuple[float, float, float] | None = None
 
+    def __post_init__(self) -> None:
+        median = positive("effect.median", _checks.scalar("effect.median", self.median))
+        within("effect.median", median, *_checks.EFFECT_RANGE)
+        log_sd = non_negative("effect.log_sd", _checks.scalar("effect.log_sd", self.log_sd))
+        at_most("effect.log_sd", log_sd, LARGEST_LOG_SD, "a spread of more than a factor e^10 per standard deviation")
+
     @classmethod
     def point(cls, ratio: float) -> EffectPrior:
-        """A single effect."""
-        return cls(float(positive("effect.ratio", ratio)))
+        """A single effect, above 1 (the effect if harmful)."""
+        r = float(positive("effect.ratio", _checks.scalar("effect.ratio", ratio)))
+        if r <= 1:
+            raise DecideError(f"effect.ratio must be above 1 (the effect if harmful), but got {_checks.show(r)}",
+                              ("effect.ratio",))
+        at_most("effect.ratio", np.asarray(r), _checks.EFFECT_RANGE[1], "the largest effect decide considers")
+        return cls(r)
 
     @classmethod
     def from_interval(
@@ -94,19 +108,22 @@ class EffectPrior:
         ``log_sd = (ln high - ln low) / (2 z)``, ``z = Phi^-1((1 + level)/2)``;
         the median defaults to the geometric mean of ``low`` and ``high``.
         """
-        lo = float(positive("effect.low", low))
-        hi = float(positive("effect.high", high))
-        lev = float(open_unit("effect.level", level))
+        top = _checks.EFFECT_RANGE[1]
+        lo = float(at_most("effect.low", positive("effect.low", _checks.scalar("effect.low", low)), top,
+                           "the largest effect decide considers"))
+        hi = float(at_most("effect.high", positive("effect.high", _checks.scalar("effect.high", high)), top,
+                           "the largest effect decide considers"))
+        lev = float(probability("effect.level", _checks.scalar("effect.level", level)))
         if hi <= lo:
             raise DecideError(
-                f"effect.high must be above effect.low, but got low {lo:g} and high {hi:g}",
+                f"effect.high must be above effect.low ({lo:g}), but got {_checks.show(hi)}",
                 ("effect.high", "effect.low"),
             )
         z = float(special.ndtri((1 + lev) / 2))
         med = float(np.sqrt(lo * hi)) if median is None else float(positive("effect.median", median))
         if not lo < med < hi:
             raise DecideError(
-                f"effect.median must lie between effect.low and effect.high, but got {med:g}",
+                f"effect.median must lie between effect.low and effect.high, but got {_checks.show(med)}",
                 ("effect.median", "effect.low", "effect.high"),
             )
         return cls(med, float((np.log(hi) - np.log(lo)) / (2 * z)), (lo, hi, lev))

@@ -10,8 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .._checks import non_negative, open_unit, positive
-from ..designs import get_design
+from .. import _checks
 from ..designs._base import FloatArray
 from ..engine.study import Setting, check_setting
 from ..errors import DecideError
@@ -20,7 +19,12 @@ from .prior import EffectPrior
 
 @dataclass(frozen=True)
 class Study:
-    """The study design and how it is analysed."""
+    """The study design and how it is analysed.
+
+    ``allocation`` and ``years`` apply to the designs that have them; any
+    other value than 1 for a design without them is refused (as in
+    :func:`decide.power`), and every value is checked when the study is made.
+    """
 
     design: str
     baseline: float
@@ -30,17 +34,32 @@ class Study:
     test: str = "auto"
     continuity: bool = False
 
+    def __post_init__(self) -> None:
+        for name in ("baseline", "allocation", "years"):
+            _checks.scalar(name, getattr(self, name))
+        self.setting()
+
     def setting(self) -> Setting:
-        d = get_design(self.design)
+        """The validated setting of the power engine."""
         return check_setting(
-            d,
-            self.baseline,
-            None if d.allocation_name is None else self.allocation,
-            self.years if d.uses_years else None,
-            self.sides,
-            self.test,
-            self.continuity,
+            self.design, self.baseline, self.allocation, self.years, self.sides, self.test, self.continuity
         )
+
+
+_DERIVATION = ("exposed_population", "background_rate", "cost_per_case", "horizon_years")
+
+
+def _derivation_limit(name: str, value: float) -> None:
+    key = f"consequences.{name}"
+    v = _checks.positive(key, value)
+    if name == "exposed_population":
+        _checks.at_most(key, v, _checks.LARGEST_POPULATION, "the largest population decide works with")
+    elif name == "background_rate":
+        _checks.within(key, v, *_checks.BASELINE_RATE_RANGE)
+    elif name == "horizon_years":
+        _checks.at_most(key, v, _checks.LONGEST_HORIZON, "the longest horizon decide works with")
+    else:
+        _checks.cost(key, v)
 
 
 @dataclass(frozen=True)
@@ -50,7 +69,9 @@ class Consequences:
     The missed-hazard cost is either given (``missed_hazard``) or derived
     from the excess cases a missed hazard lets happen:
     ``exposed_population * background_rate * (effect - 1) * cost_per_case *
-    horizon_years``, which then varies with the effect.
+    horizon_years``, which then varies with the effect.  Costs are finite,
+    not below 0 and at most :data:`decide._checks.LARGEST_COST`; a problem in
+    which neither error costs anything has nothing to decide and is refused.
     """
 
     false_alarm: float
@@ -63,31 +84,45 @@ class Consequences:
     horizon_years: float | None = None
 
     def __post_init__(self) -> None:
-        non_negative("consequences.false_alarm", self.false_alarm)
-        non_negative("consequences.per_subject", self.per_subject)
-        non_negative("consequences.fixed", self.fixed)
-        derived = (self.exposed_population, self.background_rate, self.cost_per_case, self.horizon_years)
+        self._check_form()
+        for name in ("false_alarm", "per_subject", "fixed"):
+            _checks.cost(f"consequences.{name}", _checks.scalar(f"consequences.{name}", getattr(self, name)))
         if self.missed_hazard is not None:
-            non_negative("consequences.missed_hazard", self.missed_hazard)
-            if any(v is not None for v in derived):
+            _checks.cost("consequences.missed_hazard", _checks.scalar("consequences.missed_hazard", self.missed_hazard))
+            if self.missed_hazard == 0 and self.false_alarm == 0:
                 raise DecideError(
-                    "consequences.missed_hazard: give it, or derive it from exposed_population, "
-                    "background_rate, cost_per_case and horizon_years, not both",
-                    ("consequences.missed_hazard",),
+                    "consequences: missed_hazard and false_alarm are both 0: no error costs anything, "
+                    "so there is nothing to decide",
+                    ("consequences",),
                 )
-        elif any(v is None for v in derived):
+        else:
+            for name in _DERIVATION:
+                _derivation_limit(name, _checks.scalar(f"consequences.{name}", getattr(self, name)))
+
+    def _check_form(self) -> None:
+        """The missed-hazard cost given, or all four parts of its derivation, not both."""
+        given = [k for k in _DERIVATION if getattr(self, k) is not None]
+        if self.missed_hazard is not None and given:
+            k = given[0]
             raise DecideError(
-                "consequences.missed_hazard: give it, or all of exposed_population, "
-                "background_rate, cost_per_case and horizon_years to derive it",
+                f"consequences.{k}: give missed_hazard, or derive it from exposed_population, "
+                "background_rate, cost_per_case and horizon_years, not both, "
+                f"but got {_checks.show(getattr(self, k))}",
+                (f"consequences.{k}",),
+            )
+        if self.missed_hazard is None and not given:
+            raise DecideError(
+                "consequences.missed_hazard: is required, unless exposed_population, background_rate, "
+                "cost_per_case and horizon_years are all given to derive it",
                 ("consequences.missed_hazard",),
             )
-        else:
-            for name, v in zip(
-                ("exposed_population", "background_rate", "cost_per_case", "horizon_years"),
-                derived,
-                strict=True,
-            ):
-                positive(f"consequences.{name}", float(v))  # type: ignore[arg-type]
+        missing = [k for k in _DERIVATION if getattr(self, k) is None]
+        if self.missed_hazard is None and missing:
+            raise DecideError(
+                f"consequences.{missing[0]}: is required with consequences.{given[0]}: deriving "
+                "missed_hazard needs exposed_population, background_rate, cost_per_case and horizon_years",
+                (f"consequences.{missing[0]}",),
+            )
 
     @property
     def is_derived(self) -> bool:
@@ -115,20 +150,20 @@ class Constraints:
 
     def __post_init__(self) -> None:
         if self.max_n_per_group is not None:
-            positive("constraints.max_n_per_group", self.max_n_per_group)
-        positive("constraints.min_n_per_group", self.min_n_per_group)
+            _checks.whole_at_least_one("constraints.max_n_per_group", self.max_n_per_group)
+        _checks.whole_at_least_one("constraints.min_n_per_group", self.min_n_per_group)
         if self.max_n_per_group is not None and self.max_n_per_group < self.min_n_per_group:
             raise DecideError(
-                "constraints.max_n_per_group must not be below constraints.min_n_per_group, "
-                f"but got {self.max_n_per_group} and {self.min_n_per_group}",
+                "constraints.max_n_per_group must not be below constraints.min_n_per_group "
+                f"({self.min_n_per_group}), but got {self.max_n_per_group}",
                 ("constraints.max_n_per_group",),
             )
-        if self.max_alpha != 1.0:
-            open_unit("constraints.max_alpha", self.max_alpha)
-        if self.min_power != 0.0:
-            open_unit("constraints.min_power", self.min_power)
+        if _checks.scalar("constraints.max_alpha", self.max_alpha) != 1.0:
+            _checks.probability("constraints.max_alpha", self.max_alpha)
+        if _checks.scalar("constraints.min_power", self.min_power) != 0.0:
+            _checks.probability("constraints.min_power", self.min_power)
         if self.budget is not None:
-            positive("constraints.budget", self.budget)
+            _checks.positive("constraints.budget", _checks.scalar("constraints.budget", self.budget))
 
 
 @dataclass(frozen=True)
@@ -161,7 +196,15 @@ class Problem:
     title: str = ""
 
     def __post_init__(self) -> None:
-        open_unit("prior.p_harm", self.p_harm)
+        for name, kind in (("study", Study), ("effect", EffectPrior), ("consequences", Consequences),
+                           ("constraints", Constraints)):
+            if not isinstance(getattr(self, name), kind):
+                raise DecideError(
+                    f"{name} must be a {kind.__name__}, but got {_checks.show(getattr(self, name))}", (name,)
+                )
+        if not isinstance(self.title, str):
+            raise DecideError(f"title must be text, but got {_checks.show(self.title)}", ("title",))
+        _checks.probability("prior.p_harm", _checks.scalar("prior.p_harm", self.p_harm))
         setting = self.study.setting()
         limit = float(setting.design.effect_limit(setting.baseline))
         top = self.effect.median if self.effect.is_point else self.effect.quantile(1 - 1e-6)
@@ -171,6 +214,13 @@ class Problem:
                 f"(the exposed risk must stay below 1), but the effect reaches {top:g}",
                 ("effect",),
             )
+        largest = _checks.EFFECT_RANGE[1]
+        if top > largest:
+            raise DecideError(
+                f"effect: the effect must stay below {largest:g}, the largest effect decide considers, "
+                f"but the prior reaches {top:.3g} at its 1 - 1e-6 quantile; narrow the prior",
+                ("effect",),
+            )
         cons, cost = self.constraints, self.consequences
         if cons.budget is not None:
             smallest = float(cons.min_n_per_group)
@@ -178,8 +228,9 @@ class Problem:
             need = cost.fixed + cost.per_subject * n_total
             if need > cons.budget:
                 raise DecideError(
-                    f"constraints.budget must cover the fixed cost and the smallest study ({need:g}), "
-                    f"but got {cons.budget:g}",
+                    "constraints.budget must at least cover the fixed cost plus the smallest allowed study "
+                    f"({cost.fixed:g} + {n_total:.0f} subjects x {cost.per_subject:g} = {need:g}), "
+                    f"but got {_checks.show(cons.budget)}",
                     ("constraints.budget",),
                 )
         if self.effect.median <= 1:
@@ -228,3 +279,8 @@ class Problem:
         rows.append(("constraints", "; ".join(limits) or "none"))
         return rows
 
+
+def check_problem(problem: object) -> None:
+    """Refuse anything but a :class:`Problem` where one is needed."""
+    if not isinstance(problem, Problem):
+        raise DecideError(f"problem must be a Problem, but got {_checks.show(problem)}", ("problem",))

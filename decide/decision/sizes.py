@@ -65,6 +65,8 @@ def _largest_affordable(model: LossModel) -> int | None:
     if cons.budget is not None and c.per_subject > 0:
         per = c.per_subject * float(model.n_total(np.asarray(1e6))) / 1e6  # cost per exposed subject
         guess = np.floor((cons.budget - c.fixed) / per) + 2
+        if not guess <= SIZE_CEILING:  # beyond the largest size considered (or inf): that size binds
+            return SIZE_CEILING if top is None else min(top, SIZE_CEILING)
         cand = np.arange(max(1.0, guess - 4), guess + 1)
         fits = cand[model.study_cost(cand) <= cons.budget * (1 + 1e-12)]
         n_budget = int(fits.max()) if fits.size else 0

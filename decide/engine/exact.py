@@ -37,6 +37,7 @@ from numpy.typing import NDArray
 from scipy import special, stats
 
 from ..designs._base import CountModel, FloatArray, Marginal
+from ..errors import InfeasibleError
 
 #: Tail mass left out at each end of each count's window.
 TAIL = 1e-13
@@ -48,6 +49,11 @@ REL_TOL = 1e-10
 ALPHA_FLOOR = 1e-15
 #: Rough cap on grid cells held in memory at once.
 CELL_BUDGET = 4_000_000
+#: The most count pairs one study's grid may hold: about 20 floats of working
+#: memory each, so some 650 MB and a few seconds at the limit.
+#: Beyond it :func:`build_grid` raises :class:`~decide.errors.InfeasibleError`
+#: before allocating anything.
+MAX_COUNT_PAIRS = 4_000_000
 
 IntArray = NDArray[np.int64]
 
@@ -233,6 +239,22 @@ def _binomial(share: FloatArray) -> Callable[[FloatArray], _RowLaw]:
     return law
 
 
+def _check_size(w1: FloatArray, w0: FloatArray) -> None:
+    """Refuse, before allocating, a study whose grid holds more than :data:`MAX_COUNT_PAIRS`.
+
+    Batches of several studies are kept within :data:`CELL_BUDGET` by
+    :func:`batches`; this bounds the one study a batch always holds.
+    """
+    pairs = float(np.max(w1 * w0))
+    if not pairs <= MAX_COUNT_PAIRS:
+        raise InfeasibleError(
+            f"the exact test would need {pairs:.3g} count pairs, beyond the limit of "
+            f"{MAX_COUNT_PAIRS:,} that keeps memory and time bounded; use the normal test, "
+            "which agrees closely at counts this large, or ask for a smaller study",
+            (),
+        )
+
+
 def build_grid(model: CountModel, sides: int) -> CountGrid:
     """Lay out the count pairs of a batch of studies and their p-values.
 
@@ -244,6 +266,8 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     lo_alt, hi_alt = _alt_window(model.exposed_alt)
     lo1 = np.minimum(lo_null, lo_alt)
     hi1 = np.maximum(hi_null, hi_alt)
+    lo0, hi0 = (np.zeros_like(lo1), np.zeros_like(hi1)) if model.other is None else _window(model.other)
+    _check_size(hi1 - lo1 + 1, hi0 - lo0 + 1)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
@@ -259,7 +283,6 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
         other = np.ones_like(x0)
     else:
         o = model.other
-        lo0, hi0 = _window(o)
         x0, valid0 = _axis(lo0, hi0)
         other = _pmf(o.family, o.trials[:, None], o.parameter[:, None], x0) * valid0
     if model.conditional == "poisson":
@@ -384,6 +407,17 @@ def take_rows(model: CountModel, idx: NDArray[np.int64]) -> CountModel:
         _take(model.share_exposed, idx),
         _take(model.reference_mean, idx),
     )
+
+
+def count_pairs(model: CountModel) -> FloatArray:
+    """Count pairs in each study's grid, from its count windows (cheap to compute)."""
+    lo_null, hi_null = _window(model.exposed_null)
+    lo_alt, hi_alt = _alt_window(model.exposed_alt)
+    w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
+    if model.other is None:
+        return np.asarray(w1, dtype=np.float64)
+    lo0, hi0 = _window(model.other)
+    return np.asarray(w1 * (hi0 - lo0 + 1), dtype=np.float64)
 
 
 def grid_cells(model: CountModel) -> NDArray[np.int64]:

@@ -28,7 +28,7 @@ from ..designs._base import FloatArray
 from ..errors import ApproximationWarning
 from . import exact as _exact
 from . import normal as _normal
-from .study import Setting, check_alpha_power, check_effect, check_setting
+from .study import Setting, check_effect, check_setting
 
 
 @dataclass(frozen=True)
@@ -282,8 +282,11 @@ def power(
     ('exact', 0.191)
     """
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
-    check_alpha_power(alpha, None)
     a = _checks.open_unit("alpha", alpha)
     n = _checks.whole_at_least_one("n_per_group", n_per_group)
+    _checks.broadcast(
+        ("alpha", "n_per_group", "effect", "baseline", "allocation", "years"),
+        a, n, _checks.as_float_array("effect", effect), setting.baseline, setting.allocation, setting.years,
+    )
     e = check_effect(setting, effect)
     return evaluate(setting, a, n, e)

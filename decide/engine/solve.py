@@ -41,9 +41,15 @@ from .study import Setting, check_alpha_power, check_effect, check_setting
 
 UNKNOWNS = ("alpha", "power", "n_per_group", "effect")
 #: Default cap on the exposed group (or cases) for size solves.
-MAX_N_PER_GROUP = 10**9
-#: Default cap on the effect for effect solves where the design sets none.
-MAX_EFFECT = 1e4
+MAX_N_PER_GROUP = _checks.LARGEST_SIZE
+#: Default cap on the effect for effect solves where the design sets none
+#: (the largest effect decide considers).
+MAX_EFFECT = _checks.EFFECT_RANGE[1]
+#: The largest critical count the one-group exact size search goes to.
+MAX_CRITICAL_COUNT = 2**20
+#: The most count pairs, over all the grids it builds, one exact size scan may
+#: go through (ten seconds or so at the limit).
+MAX_SEARCH_PAIRS = 10_000_000
 
 
 @dataclass(frozen=True)
@@ -169,12 +175,24 @@ def normal_effect(
 
 
 def _exact_curve(setting: Setting, alpha: float, effect: float) -> Callable[[FloatArray], FloatArray]:
+    """Exact power as a function of the size, within a budget of :data:`MAX_SEARCH_PAIRS`."""
     d = setting.design
+    spent = [0.0]
 
     def curve(n: FloatArray) -> FloatArray:
         n = np.asarray(n, dtype=np.float64)
         flat = n.ravel()
         full = np.ones_like(flat)
+        b, r, y = (float(v) * full for v in (setting.baseline, setting.allocation, setting.years))
+        pairs = _exact.count_pairs(d.count_model(flat, b, effect * full[:, None], r, y))
+        # a one-group grid needs no conditional rows: about an eighth of the work per count
+        spent[0] += float(pairs.sum()) / (8.0 if d.allocation_name is None else 1.0)
+        if spent[0] > MAX_SEARCH_PAIRS:
+            raise InfeasibleError(
+                f"n_per_group: the exact size search would go through more than {MAX_SEARCH_PAIRS:,} count "
+                "pairs, the limit that keeps its time bounded; use the normal test, which agrees closely "
+                "at counts this large"
+            )
         pw, _ = exact_power(
             d,
             alpha * full,
@@ -321,6 +339,12 @@ def _reference_rate_sizes(
             raise InfeasibleError(
                 f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}"
             )
+        if c_max >= MAX_CRITICAL_COUNT:
+            raise InfeasibleError(
+                f"n_per_group: the exact test would need a critical count above {MAX_CRITICAL_COUNT:,}, "
+                "the limit that keeps the search bounded; use the normal test, which agrees closely "
+                "at counts this large"
+            )
         c_max *= 2
     n_first = int(reach[first_ok])
     if fails.size == 0:
@@ -406,13 +430,16 @@ def solve(
     unknown = _only_unknown(
         {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect}
     )
+    alpha, power, effect = (None if v is None else _checks.scalar(k, v)
+                            for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
+    for name, value in (("baseline", baseline), ("allocation", allocation), ("years", years)):
+        if value is not None:
+            _checks.scalar(name, value)
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
-    if setting.baseline.ndim or setting.allocation.ndim or setting.years.ndim:
-        raise DecideError("solve takes single values; use the array functions for sweeps", ())
     check_alpha_power(alpha, power)
     if n_per_group is not None:
-        _checks.whole_at_least_one("n_per_group", n_per_group)
-    cap = int(_checks.whole_at_least_one("max_n_per_group", max_n_per_group))
+        n_per_group = int(_checks.scalar("n_per_group", _checks.whole_at_least_one("n_per_group", n_per_group)))
+    cap = int(_checks.scalar("max_n_per_group", _checks.whole_at_least_one("max_n_per_group", max_n_per_group)))
     if effect is not None:
         check_effect(setting, effect)
         if unknown in ("n_per_group", "alpha") and effect <= 1 and setting.sides == 1:

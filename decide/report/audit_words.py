@@ -5,6 +5,7 @@ from __future__ import annotations
 from ..decision.audit import Audit
 from ..designs import get_design
 from . import numbers as nb
+from .text import NO_FINITE_RATIO
 
 IMPLIED_MISSED_HAZARD = (
     "Implied cost of a missed hazard: the cost of missing a real hazard at which one more {unit} would "
@@ -31,7 +32,8 @@ def loss_rows(a: Audit, unit: str) -> list[tuple[str, str]]:
     rows = [
         ("stated cost of a missed hazard", _money(x.missed_hazard, unit)),
         ("stated cost of a false alarm", _money(x.false_alarm, unit)),
-        ("stated cost ratio (miss : false alarm)", nb.number(x.stated_cost_ratio)),
+        ("stated cost ratio (miss : false alarm)",
+         NO_FINITE_RATIO if x.stated_cost_ratio is None else nb.number(x.stated_cost_ratio)),
         ("expected loss of the protocol", _money(x.expected_loss, unit)),
         ("  from missed hazards", _money(x.loss_parts["missed"], unit)),
         ("  from false alarms", _money(x.loss_parts["false_alarm"], unit)),

@@ -26,7 +26,7 @@ from ..engine.solve import Solution
 from . import audit_words, rule_words
 from . import numbers as nb
 from .sentences import best_action, recommendation
-from .text import CAUTION, literal, one_line
+from .text import CAUTION, NO_FINITE_RATIO, literal, one_line
 
 _LABELS = {
     "alpha": "alpha (nominal)",
@@ -147,7 +147,8 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", nb.number(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
-    t.add_row("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio))
+    stated = NO_FINITE_RATIO if d.stated_cost_ratio is None else nb.number(d.stated_cost_ratio)
+    t.add_row("stated cost ratio (miss : false alarm)", stated)
     notes = [_text(recommendation(d, cur), "bold")]
     notes += [_text(f"Warning: {w}", "yellow") for w in d.warnings]
     notes += rule_words.decision_notes([d])
@@ -251,7 +252,7 @@ def _notes(decisions: Sequence[Decision], currency: str = "") -> list[Text]:
     notes = [
         Text(
             f"Stated cost ratio (expected missed-hazard cost : false-alarm cost): "
-            f"{nb.number(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
+            f"{_stated(decisions[0].stated_cost_ratio)}. A policy's implied cost ratio is the one at "
             "which its alpha would minimise expected loss for its size. Regret is the extra "
             "expected loss over the best of all actions (a study, or flagging or clearing now).",
             style="dim",
@@ -286,7 +287,9 @@ def audit_table(a: Audit, unit: str) -> Group:
     t.add_row("implied cost of a missed hazard", nb.money(a.implied_missed_hazard, cur))
     t.add_row("implied cost of a false alarm", nb.money(a.implied_false_alarm, cur))
     t.add_row("P(harmful | negative result)", nb.probability(a.p_harm_given_negative))
-    t.add_row("P(harmful | positive result)", nb.probability(a.p_harm_given_positive))
+    t.add_row("P(harmful | positive result)",
+              "none: a positive result cannot happen" if a.p_harm_given_positive is None
+              else nb.probability(a.p_harm_given_positive))
     for level, effect in a.detectable_effects.items():
         t.add_row(f"{design.effect_name} detected with power {level}", nb.number(effect))
     for label, value in audit_words.loss_rows(a, cur):
@@ -332,3 +335,7 @@ def policies_table(policies: Sequence[Policy], width: int, console: Console | No
             rule, power = _policy_rule(p)
             lines.append(Text(f"  alpha rule {rule}; power {power}; size rule {one_line(p.size_rule)}"))
     return Group(*lines)
+
+
+def _stated(ratio: float | None) -> str:
+    return NO_FINITE_RATIO if ratio is None else nb.number(ratio)

@@ -18,7 +18,7 @@ from ..designs import get_design
 from . import numbers as nb
 from . import rule_words
 from .sentences import best_action, decision_record, recommendation
-from .text import CAUTION, literal, markdown_literal
+from .text import CAUTION, NO_FINITE_RATIO, literal, markdown_literal
 
 #: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
@@ -116,7 +116,9 @@ def to_markdown(
         lines += ["", "## Policies", ""]
     lines += ["| " + " | ".join(_HEAD) + " |", "|" + "---|" * len(_HEAD)]
     lines += [_markdown_row(d, cur) for d in decisions]
-    lines += ["", f"Stated cost ratio (miss : false alarm): {nb.number(decisions[0].stated_cost_ratio)}.", ""]
+    ratio = decisions[0].stated_cost_ratio
+    stated = NO_FINITE_RATIO if ratio is None else nb.number(ratio)
+    lines += ["", f"Stated cost ratio (miss : false alarm): {stated}.", ""]
     lines += [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in decisions if not d.feasible]
     if isinstance(decisions, Comparison):
         lines += ["", markdown_literal(best_action(decisions, currency))]

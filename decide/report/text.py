@@ -104,3 +104,7 @@ def fmt_compact(value: Any) -> str:
 def json_safe(value: Any) -> Any:
     """Older callers' JSON preparation: :func:`numbers.for_json` (snake_case keys, non-finite as null)."""
     return numbers.for_json(value)
+
+
+#: The stated cost ratio when a false alarm costs nothing, in words.
+NO_FINITE_RATIO = "none: a false alarm costs nothing"

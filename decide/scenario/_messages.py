@@ -3,7 +3,7 @@
 Every problem with a scenario or policy file is reported as
 ``<file>: <key.path>: <reason> (got <value>)``, for example::
 
-    scenario.toml: consequences.false_alarm: must be >= 0 (got -3)
+    scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)
 
 The value is shown as it was written in TOML (strings quoted, ``true`` and
 ``false`` in lower case); ``(got ...)`` is left out where there is no single
@@ -162,13 +162,14 @@ def from_core_error(
         message = message[len(prefix) :]
     name = err.params[0] if err.params else ""
     key = f"study.{name}" if name in _STUDY_KEYS else name
-    for head in (f"{name}: ", f"{name} must ", f"{name} does "):
-        if name and message.startswith(head):
-            message = message[len(name) :].lstrip(": ")
-            break
+    if name and message.startswith(f"{name}: "):
+        message = message[len(name) + 2 :]
+    elif name and message.startswith(f"{name} "):
+        message = message[len(name) + 1 :]
     match = re.fullmatch(r"(.*), but got (.*)", message, flags=re.DOTALL)
     if match:
-        message = f"{match[1]} (got {match[2]})"
+        got = {"True": "true", "False": "false"}.get(match[2], match[2])  # as TOML spells them
+        message = f"{match[1]} (got {got})"
     return cls(file, key, message)
 
 

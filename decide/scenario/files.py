@@ -6,7 +6,7 @@ Whatever is wrong with the file (it is missing, it is not TOML, a key is
 unknown, a value has the wrong type or range, the constraints leave no study
 possible) raises :class:`ScenarioError` with a one-line message::
 
-    scenario.toml: consequences.false_alarm: must be >= 0 (got -3)
+    scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)
 
 Only regular files of at most :data:`MAX_FILE_BYTES` are read (a named pipe
 or a device is refused before reading); a UTF-8 byte-order mark is allowed.
@@ -49,6 +49,8 @@ __all__ = [
     "check_output_path",
     "load_scenario",
     "parse_scenario",
+    "parse_toml",
+    "read_small_file",
     "read_toml",
     "scenario_json_schema",
     "scenario_template",
@@ -144,16 +146,6 @@ def read_small_file(file: str, cls: type[ScenarioError] = ScenarioError) -> byte
     return data
 
 
-def parse_toml_text(text: str, file: str, cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
-    """Parse TOML text; a leading byte-order mark is allowed (some editors write one)."""
-    try:
-        return tomllib.loads(text.removeprefix("\ufeff"))
-    except tomllib.TOMLDecodeError as e:
-        raise from_toml_error(file, e, cls) from None
-    except RecursionError:
-        raise cls(file, "", "nests arrays or tables too deeply to be read") from None
-
-
 def read_toml(path: str | os.PathLike[str], cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
     """Parse a TOML file, raising ``cls`` with a one-line message on failure."""
     file = os.fspath(path)
@@ -162,7 +154,22 @@ def read_toml(path: str | os.PathLike[str], cls: type[ScenarioError] = ScenarioE
         text = data.decode("utf-8")
     except UnicodeDecodeError as e:
         raise cls(file, "", f"is not UTF-8 text (bad byte at offset {e.start})") from None
-    return parse_toml_text(text, file, cls)
+    return parse_toml(text, file, cls)
+
+
+def parse_toml(text: str, file: str, cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
+    """Parse TOML text; whatever is wrong with it becomes one line naming ``file``.
+
+    A leading byte-order mark is allowed (some editors write one).
+    """
+    try:
+        return tomllib.loads(text.removeprefix("\ufeff"))
+    except tomllib.TOMLDecodeError as e:
+        raise from_toml_error(file, e, cls) from None
+    except RecursionError:
+        raise cls(file, "", "not valid TOML here: arrays or tables are nested too deeply to read") from None
+    except ValueError as e:  # Python's own limit on the digits of a whole number
+        raise cls(file, "", f"not valid TOML here: {str(e).split(';')[0]}") from None
 
 
 def validate_model(
@@ -205,7 +212,7 @@ def load_scenario(path: str | os.PathLike[str]) -> LoadedScenario:
 
 def parse_scenario(text: str, file: str = "<scenario>") -> LoadedScenario:
     """Validate a scenario given as TOML text (``file`` names it in messages)."""
-    return scenario_from_data(parse_toml_text(text, file), file)
+    return scenario_from_data(parse_toml(text, file), file)
 
 
 class _TomlJsonSchema(GenerateJsonSchema):

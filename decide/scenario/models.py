@@ -10,34 +10,34 @@ A scenario file is TOML with one table per part of the decision problem::
     [consequences]        # what each outcome costs
     [constraints]         # limits every policy must respect (optional)
 
-The models check the shape of the file, the type and range of every value
-and the rules that tie keys together (which keys apply to which design, the
-two ways of giving the effect and the missed-hazard cost, a budget that
-allows at least the smallest study).  :meth:`ScenarioModel.to_problem` then
-builds the core :class:`~decide.problem.Problem`, whose constructors check
-what depends on the numbers together (for example that the effect keeps the
-exposed risk below 1).
+The models check the shape of the file and the type of every value, nothing
+more: which keys may appear, numbers where numbers belong, whole numbers for
+sizes, the two ways of giving the effect.  Every rule about the values
+(ranges, domain limits, which settings a design takes, costs and budget
+together) belongs to the core: :meth:`ScenarioModel.to_problem` builds the
+core :class:`~decide.decision.problem.Problem`, whose constructors check
+them, and :mod:`decide.scenario._messages` turns the core's error into the
+file's key path.  So a file and the Python API refuse the same input for the
+same reason.
 
 Field descriptions are user documentation: they appear in the JSON Schema
 (:func:`decide.scenario.scenario_json_schema`).
 
-A rule broken across keys is raised as a :class:`PydanticCustomError` of type
-``decide_rule`` whose context names the key (relative to the table that
-raised it), the reason and the value received; :mod:`decide.scenario._messages`
-turns it into the one-line message.
+A shape broken across keys (ratio and an interval both given) is raised as a
+:class:`PydanticCustomError` of type ``decide_rule`` whose context names the
+key (relative to the table that raised it), the reason and the value
+received; :mod:`decide.scenario._messages` turns it into the one-line message.
 """
 
 from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import BaseModel, ConfigDict, Field, model_validator
 from pydantic_core import PydanticCustomError
 
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
-from decide.designs import DESIGNS, get_design
 
 DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
 TestName = Literal["normal", "exact", "auto"]
@@ -53,11 +53,7 @@ def rule_error(key: str, reason: str, got: Any = NO_VALUE) -> PydanticCustomErro
 
 
 def _config(title: str) -> ConfigDict:
-    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False, title=title)
-
-
-def _designs_where(test: Any) -> str:
-    return ", ".join(name for name, d in DESIGNS.items() if test(d))
+    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=True, title=title)
 
 
 class StudyModel(BaseModel):
@@ -77,7 +73,6 @@ class StudyModel(BaseModel):
     baseline: Annotated[
         float,
         Field(
-            gt=0,
             description=(
                 "The baseline, by design. cohort-risk: risk of disease over the whole follow-up "
                 "among the unexposed (a probability). cohort-rate: incidence rate per "
@@ -89,7 +84,6 @@ class StudyModel(BaseModel):
     allocation: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "Unexposed subjects per exposed subject (cohort designs) or controls per case "
                 "(case-control). Default 1. Not for reference-rate, which has one group."
@@ -99,14 +93,13 @@ class StudyModel(BaseModel):
     years: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "Follow-up years per subject (person-time designs cohort-rate and "
                 "reference-rate only). Default 1."
             ),
         ),
     ] = None
-    sides: Literal[1, 2] = Field(
+    sides: int = Field(
         default=1,
         description="1: test for harm only (one-sided); 2: test for any difference (two-sided).",
     )
@@ -125,39 +118,6 @@ class StudyModel(BaseModel):
         ),
     )
 
-    @field_validator("sides", mode="before")
-    @classmethod
-    def _sides_not_bool(cls, value: Any) -> Any:
-        if isinstance(value, bool):
-            raise rule_error("", "must be 1 or 2", value)
-        return value
-
-    @model_validator(mode="after")
-    def _keys_fit_design(self) -> StudyModel:
-        d = get_design(self.design)
-        if self.allocation is not None and d.allocation_name is None:
-            raise rule_error(
-                "allocation",
-                f"does not apply to the {d.name} design (one group only); it applies to "
-                + _designs_where(lambda x: x.allocation_name is not None),
-                self.allocation,
-            )
-        if self.years is not None and not d.uses_years:
-            raise rule_error(
-                "years",
-                f"does not apply to the {d.name} design (it counts cases, not person-time); "
-                "it applies to " + _designs_where(lambda x: x.uses_years),
-                self.years,
-            )
-        if self.continuity is not None and not d.binomial_groups:
-            raise rule_error(
-                "continuity",
-                f"does not apply to the {d.name} design; it applies to "
-                + _designs_where(lambda x: x.binomial_groups),
-                self.continuity,
-            )
-        return self
-
     def to_study(self) -> Study:
         return Study(
             design=self.design,
@@ -169,13 +129,6 @@ class StudyModel(BaseModel):
             continuity=bool(self.continuity),
         )
 
-    def smallest_study(self, n_per_group: int) -> int:
-        """Subjects in a study with ``n_per_group`` exposed subjects (or cases)."""
-        d = get_design(self.design)
-        alloc = 1.0 if self.allocation is None else self.allocation
-        other = d.comparison_size(np.asarray(float(n_per_group)), np.asarray(alloc))
-        return n_per_group + int(other)
-
 
 class EffectModel(BaseModel):
     """The [effect] table: the effect if the exposure is harmful."""
@@ -185,7 +138,6 @@ class EffectModel(BaseModel):
     ratio: Annotated[
         float | None,
         Field(
-            gt=1,
             description=(
                 "The effect if harmful, as the design's ratio (risk ratio, rate ratio, "
                 "standardised incidence ratio or odds ratio). Give this, or low, high and "
@@ -195,26 +147,22 @@ class EffectModel(BaseModel):
     ] = None
     low: Annotated[
         float | None,
-        Field(
-            gt=0, description="Lower end of a central interval of a lognormal prior on the effect."
+        Field( description="Lower end of a central interval of a lognormal prior on the effect."
         ),
     ] = None
     high: Annotated[
         float | None,
-        Field(gt=0, description="Upper end of that interval (above low)."),
+        Field(description="Upper end of that interval (above low)."),
     ] = None
     level: Annotated[
         float | None,
         Field(
-            gt=0,
-            lt=1,
             description="Prior probability that the effect lies between low and high, e.g. 0.9.",
         ),
     ] = None
     median: Annotated[
         float | None,
         Field(
-            gt=1,
             description=(
                 "Median of the lognormal prior, between low and high (optional; default the "
                 "geometric mean of low and high). Power targets refer to it."
@@ -264,17 +212,12 @@ class PriorModel(BaseModel):
     p_harm: Annotated[
         float,
         Field(
-            gt=0,
-            lt=1,
             description=(
                 "Prior probability that the exposure is harmful (has the effect in [effect]), "
                 "strictly between 0 and 1. A value judgment of the responsible body."
             ),
         ),
     ]
-
-
-_DERIVATION = ("exposed_population", "background_rate", "cost_per_case", "horizon_years")
 
 
 class ConsequencesModel(BaseModel):
@@ -285,7 +228,6 @@ class ConsequencesModel(BaseModel):
     missed_hazard: Annotated[
         float | None,
         Field(
-            ge=0,
             description=(
                 "Cost of missing a real hazard (no finding when the exposure is harmful). Give "
                 "it, or derive it from exposed_population, background_rate, cost_per_case and "
@@ -296,7 +238,6 @@ class ConsequencesModel(BaseModel):
     exposed_population: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "People who stay exposed if a hazard is missed (to derive missed_hazard)."
             ),
@@ -305,7 +246,6 @@ class ConsequencesModel(BaseModel):
     background_rate: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "Cases per person-year among the unexposed (to derive missed_hazard); excess "
                 "cases are exposed_population * background_rate * (effect - 1) per year."
@@ -314,12 +254,11 @@ class ConsequencesModel(BaseModel):
     ] = None
     cost_per_case: Annotated[
         float | None,
-        Field(gt=0, description="Cost of one excess case (to derive missed_hazard)."),
+        Field(description="Cost of one excess case (to derive missed_hazard)."),
     ] = None
     horizon_years: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "Years the exposure goes on if a hazard is missed (to derive missed_hazard)."
             ),
@@ -328,7 +267,6 @@ class ConsequencesModel(BaseModel):
     false_alarm: Annotated[
         float,
         Field(
-            ge=0,
             description=(
                 "Cost of a false alarm: flagging a harmless exposure (needless restrictions, "
                 "substitution, lost trust)."
@@ -338,7 +276,6 @@ class ConsequencesModel(BaseModel):
     per_subject: Annotated[
         float,
         Field(
-            ge=0,
             description=(
                 "Cost of enrolling one subject, in every group alike (exposed and unexposed, "
                 "cases and controls)."
@@ -347,7 +284,7 @@ class ConsequencesModel(BaseModel):
     ]
     fixed: Annotated[
         float,
-        Field(ge=0, description="Fixed cost of running the study at all. Default 0."),
+        Field(description="Fixed cost of running the study at all. Default 0."),
     ] = 0.0
     currency: Annotated[
         str,
@@ -358,33 +295,6 @@ class ConsequencesModel(BaseModel):
             ),
         ),
     ] = ""
-
-    @model_validator(mode="after")
-    def _one_form(self) -> ConsequencesModel:
-        given = [k for k in _DERIVATION if getattr(self, k) is not None]
-        if self.missed_hazard is not None:
-            if given:
-                raise rule_error(
-                    given[0],
-                    "give missed_hazard, or derive it from exposed_population, background_rate, "
-                    "cost_per_case and horizon_years, not both",
-                    getattr(self, given[0]),
-                )
-            return self
-        if not given:
-            raise rule_error(
-                "missed_hazard",
-                "is required, unless exposed_population, background_rate, cost_per_case and "
-                "horizon_years are all given to derive it",
-            )
-        missing = [k for k in _DERIVATION if getattr(self, k) is None]
-        if missing:
-            raise rule_error(
-                missing[0],
-                f"is required with consequences.{given[0]}: deriving missed_hazard needs "
-                "exposed_population, background_rate, cost_per_case and horizon_years",
-            )
-        return self
 
     def to_consequences(self) -> Consequences:
         return Consequences(
@@ -407,7 +317,6 @@ class ConstraintsModel(BaseModel):
     max_n_per_group: Annotated[
         int | None,
         Field(
-            ge=1,
             description=(
                 "Most exposed subjects (or cases) that can be enrolled; the comparison group "
                 "follows from the allocation. Default: no cap."
@@ -416,21 +325,17 @@ class ConstraintsModel(BaseModel):
     ] = None
     min_n_per_group: Annotated[
         int,
-        Field(ge=1, description="Fewest exposed subjects (or cases) worth enrolling. Default 1."),
+        Field(description="Fewest exposed subjects (or cases) worth enrolling. Default 1."),
     ] = 1
     max_alpha: Annotated[
         float,
         Field(
-            gt=0,
-            le=1,
             description="Largest false-alarm probability any policy may accept. Default 1 (none).",
         ),
     ] = 1.0
     min_power: Annotated[
         float,
         Field(
-            ge=0,
-            lt=1,
             description=(
                 "Smallest power at the design effect any policy must reach. Default 0 (none)."
             ),
@@ -439,23 +344,12 @@ class ConstraintsModel(BaseModel):
     budget: Annotated[
         float | None,
         Field(
-            gt=0,
             description=(
                 "Most that may be spent on the study (fixed plus per-subject costs), in the "
                 "unit of [consequences]. Default: no budget limit."
             ),
         ),
     ] = None
-
-    @model_validator(mode="after")
-    def _sizes_ordered(self) -> ConstraintsModel:
-        if self.max_n_per_group is not None and self.max_n_per_group < self.min_n_per_group:
-            raise rule_error(
-                "max_n_per_group",
-                f"must be >= constraints.min_n_per_group ({self.min_n_per_group})",
-                self.max_n_per_group,
-            )
-        return self
 
     def to_constraints(self) -> Constraints:
         return Constraints(
@@ -488,24 +382,6 @@ class ScenarioModel(BaseModel):
         default_factory=ConstraintsModel,
         description="Limits every policy must respect (all optional).",
     )
-
-    @model_validator(mode="after")
-    def _budget_allows_a_study(self) -> ScenarioModel:
-        budget = self.constraints.budget
-        if budget is None:
-            return self
-        m = self.constraints.min_n_per_group
-        subjects = self.study.smallest_study(m)
-        c = self.consequences
-        least = c.fixed + c.per_subject * subjects
-        if budget < least:
-            raise rule_error(
-                "constraints.budget",
-                f"must at least cover the fixed cost plus the smallest allowed study "
-                f"({c.fixed:g} + {subjects} subjects x {c.per_subject:g} = {least:g})",
-                budget,
-            )
-        return self
 
     def to_problem(self) -> Problem:
         """The core decision problem (its constructors may raise DecideError)."""

@@ -20,8 +20,8 @@ file's stem (``conventional-science.toml`` is ``conventional-science``).
 The bundled policies live in the top-level ``policies/`` folder of a source
 checkout and are installed as ``decide/_policies`` in a wheel;
 :func:`builtin_policy_dir` finds either.  :func:`load_policies` reads them in
-:data:`BUILTIN_ORDER`, then any further folders, whose policies override
-bundled ones of the same name.
+:data:`BUILTIN_ORDER`, then any further folders; two policies may not share
+a name.
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field
 
 from decide.decision.policies import AlphaRule, Policy, SizeRule
 from decide.errors import DecideError
@@ -41,7 +41,6 @@ from decide.errors import DecideError
 from ._messages import PolicyFileError, from_core_error
 from .bundled import bundled_dir, first_bundled_dir
 from .files import read_toml, toml_json_schema, validate_model
-from .models import rule_error
 
 #: Display order of the bundled policies: conventional standards first, then
 #: standards that let alpha move, then the engine's own choice.  Bundled
@@ -61,10 +60,7 @@ _NAME = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
 
 
 def _config(title: str) -> ConfigDict:
-    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=False, title=title)
-
-
-_Probability = Annotated[float, Field(gt=0, lt=1)]
+    return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=True, title=title)
 
 
 class AlphaTable(BaseModel):
@@ -80,32 +76,14 @@ class AlphaTable(BaseModel):
         )
     )
     value: Annotated[
-        _Probability | None, Field(description='The alpha, with rule = "fixed" only.')
+        float | None, Field(description='The alpha, with rule = "fixed" only.')
     ] = None
     posterior_threshold: Annotated[
-        _Probability | None,
+        float | None,
         Field(
             description='Posterior probability of harm that flags, with rule = "posterior" only.'
         ),
     ] = None
-
-    @model_validator(mode="after")
-    def _keys_fit_rule(self) -> AlphaTable:
-        if self.rule == "fixed" and self.value is None:
-            raise rule_error("value", 'is required with rule = "fixed"')
-        if self.rule != "fixed" and self.value is not None:
-            raise rule_error(
-                "value", f'applies to rule = "fixed" only, not {self.rule!r}', self.value
-            )
-        if self.rule == "posterior" and self.posterior_threshold is None:
-            raise rule_error("posterior_threshold", 'is required with rule = "posterior"')
-        if self.rule != "posterior" and self.posterior_threshold is not None:
-            raise rule_error(
-                "posterior_threshold",
-                f'applies to rule = "posterior" only, not {self.rule!r}',
-                self.posterior_threshold,
-            )
-        return self
 
 
 class PowerTable(BaseModel):
@@ -114,7 +92,7 @@ class PowerTable(BaseModel):
     model_config = _config("[power]")
 
     target: Annotated[
-        _Probability | None,
+        float | None,
         Field(
             description=(
                 "Required power at the design effect (the ratio, or the prior's median). Needed "
@@ -153,23 +131,6 @@ class PolicyFileModel(BaseModel):
     alpha: AlphaTable = Field(description="How alpha is chosen.")
     power: PowerTable = Field(default_factory=PowerTable, description="Required power (optional).")
     size: SizeTable = Field(description="How the study size is chosen.")
-
-    @model_validator(mode="after")
-    def _power_where_needed(self) -> PolicyFileModel:
-        target = self.power.target
-        if target is None:
-            needs = [
-                f"{table}.rule = {rule!r}"
-                for table, rule in (("size", self.size.rule), ("alpha", self.alpha.rule))
-                if rule in ("smallest-for-power", "for-power")
-            ]
-            if needs:
-                raise rule_error("power.target", f"is required with {needs[0]}")
-        elif self.alpha.value is not None and target <= self.alpha.value:
-            raise rule_error(
-                "power.target", f"must be above alpha.value ({self.alpha.value:g})", target
-            )
-        return self
 
     def to_policy(self, name: str) -> Policy:
         return Policy(
@@ -225,6 +186,10 @@ def builtin_policy_dir() -> Path:
 
 
 def _policy_files(folder: Path) -> list[Path]:
+    if folder.exists() and not folder.is_dir():
+        raise PolicyFileError(
+            os.fspath(folder), "", "is a file, not a folder: --policy-dir takes a folder of policy files"
+        )
     if not folder.is_dir():
         raise PolicyFileError(os.fspath(folder), "", "no such policy folder")
     return sorted(
@@ -242,19 +207,33 @@ def load_policies(extra_dirs: Iterable[str | os.PathLike[str]] = ()) -> dict[str
 
     Bundled policies come in :data:`BUILTIN_ORDER` (others after them,
     alphabetically); each further folder's ``*.toml`` files follow in
-    alphabetical order.  A policy whose name is already taken replaces the
-    earlier one in its place, so a folder can override a bundled policy.
+    alphabetical order.  Names are unique: a policy whose name is already
+    taken (by a bundled policy or another folder's) is refused, naming both
+    files, rather than silently replacing the other.
 
     Raises
     ------
     PolicyFileError
-        For a missing folder or the first file that cannot be used.
+        For a missing folder, a file given as a folder, two policies of one
+        name, or the first file that cannot be used.
     """
     policies: dict[str, Policy] = {}
+    source: dict[str, Path] = {}
     bundled = sorted(_policy_files(builtin_policy_dir()), key=lambda p: _display_order(p.stem))
     for path in bundled + [p for d in extra_dirs for p in _policy_files(Path(d))]:
+        if path.stem in source:
+            first = source[path.stem]
+            if first.resolve() == path.resolve():
+                continue  # the same folder given twice
+            raise PolicyFileError(
+                os.fspath(path),
+                "",
+                f"a policy named {path.stem!r} already comes from {first}; "
+                "two policies may not share a name (rename one of the files)",
+            )
         policy = load_policy_file(path)
         policies[policy.name] = policy
+        source[policy.name] = path
     return policies
 
 
