@@ -11,12 +11,12 @@ import re
 import signal
 import sys
 import warnings
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
 from types import FrameType
-from typing import Annotated, Any, NoReturn
+from typing import TYPE_CHECKING, Annotated, Any, NoReturn
 
 import typer
 from typer.core import TyperGroup
@@ -25,6 +25,7 @@ from .decision.audit import audit as _audit
 from .decision.optimize import compare as _compare
 from .decision.optimize import optimize as _optimize
 from .decision.prior import EffectPrior
+from .designs import DESIGNS, StudyDesign, get_design
 from .engine.solve import MAX_N_PER_GROUP
 from .engine.solve import solve as _solve
 from .errors import DecideError, InfeasibleError
@@ -34,7 +35,7 @@ from .report.inputs import scenario_inputs
 from .report.numbers import for_json
 from .report.progress import busy
 from .report.sentences import best_action, decision_record, recommendation
-from .report.text import one_line
+from .report.text import CAUTION, one_line
 from .scenario import (
     LoadedScenario,
     ScenarioError,
@@ -63,6 +64,10 @@ _OPTIONS = {
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
     "example": "--example",
+    "vary": "--vary",
+    "draws": "--draws",
+    "studies": "--studies",
+    "points": "--points",
     "missed_hazard": "--missed-hazard",
     "false_alarm": "--false-alarm",
     "effect.low": "--effect-low",
@@ -222,11 +227,47 @@ def emit_json(data: Any) -> None:
     sys.stdout.write(json_text(data))
 
 
-class Design(StrEnum):
-    cohort_risk = "cohort-risk"
-    cohort_rate = "cohort-rate"
-    reference_rate = "reference-rate"
-    case_control = "case-control"
+def _by_design(attribute: str) -> str:
+    """One design attribute for every design, ``"value (names)"``, read from the registry."""
+    names: dict[str, list[str]] = {}
+    for name, d in DESIGNS.items():
+        if getattr(d, attribute):
+            names.setdefault(getattr(d, attribute), []).append(name)
+    return "; ".join(f"{value} ({', '.join(which)})" for value, which in names.items())
+
+
+if TYPE_CHECKING:
+    Design = str
+else:  # the --design choices are the registry's names
+    Design = StrEnum("Design", {name.replace("-", "_"): name for name in DESIGNS})
+DesignOption = Annotated[Design, typer.Option(help="Study design.", show_default=False)]
+DesignSettings = Annotated[
+    list[str] | None,
+    typer.Option(
+        "--design-setting",
+        metavar="KEY=VALUE",
+        help="A setting of the design itself, KEY=VALUE (repeatable): "
+        + "; ".join(f"{k} ({name}): {text}" for name, d in DESIGNS.items() for k, text in d.settings.items())
+        + ".",
+    ),
+]
+
+
+def _design(name: str, settings: list[str] | None) -> StudyDesign:
+    """The named design with its own settings (``KEY=VALUE`` words) set."""
+    values: dict[str, float] = {}
+    for word in settings or ():
+        key, sep, value = word.partition("=")
+        try:
+            values[key.strip()] = float(value)
+        except ValueError:
+            sep = ""
+        if not sep:
+            raise DecideError(f"--design-setting must be KEY=VALUE with a number, but got {word!r}", ())
+    try:
+        return get_design(name).configure(values)
+    except DecideError as exc:
+        raise DecideError(str(exc).replace("design_settings.", "--design-setting "), ()) from None
 
 
 class Test(StrEnum):
@@ -237,27 +278,21 @@ class Test(StrEnum):
 
 @app.command("solve")
 def solve_command(
-    design: Annotated[Design, typer.Option(help="Study design.")],
-    baseline: Annotated[
-        float,
-        typer.Option(
-            help="Risk over follow-up (cohort-risk), rate per person-year (cohort-rate), "
-            "reference rate per person-year (reference-rate) or exposure prevalence "
-            "among controls (case-control)."
-        ),
-    ],
+    design: DesignOption,
+    baseline: Annotated[float, typer.Option(help="By design: " + _by_design("baseline_name") + ".")],
     effect: Annotated[
-        float | None, typer.Option(help="Risk ratio, rate ratio, SIR or odds ratio; leave out to solve.")
+        float | None, typer.Option(help="By design: " + _by_design("effect_name") + "; leave out to solve.")
     ] = None,
     alpha: Annotated[float | None, typer.Option(help="Significance level; leave out to solve.")] = None,
     power: Annotated[float | None, typer.Option(help="Power; leave out to solve.")] = None,
     n_per_group: Annotated[
         int | None,
-        typer.Option(help="Exposed subjects (cohorts) or cases (case-control); leave out to solve."),
+        typer.Option(help="By design: " + _by_design("size_name") + "; leave out to solve."),
     ] = None,
     allocation: Annotated[
-        float | None, typer.Option(help="Unexposed per exposed, or controls per case (default 1).")
+        float | None, typer.Option(help="By design (default 1): " + _by_design("allocation_name") + ".")
     ] = None,
+    design_setting: DesignSettings = None,
     years: Annotated[
         float | None, typer.Option(help="Follow-up years per subject, person-time designs (default 1).")
     ] = None,
@@ -272,7 +307,7 @@ def solve_command(
     """Solve for whichever of alpha, power, size or effect is left out."""
     def call() -> Any:
         return _solve(
-            design.value,
+            _design(design, design_setting),
             baseline=baseline,
             alpha=alpha,
             power=power,
@@ -480,7 +515,7 @@ def interpret_command(
 
 @app.command("audit")
 def audit_command(
-    design: Annotated[Design, typer.Option(help="Study design.")],
+    design: DesignOption,
     baseline: Annotated[float, typer.Option(help="Baseline, as in 'decide solve'.")],
     alpha: Annotated[float, typer.Option(help="The protocol's significance level.")],
     effect: Annotated[float, typer.Option(help="The effect the protocol was sized for.")],
@@ -488,7 +523,8 @@ def audit_command(
     per_subject: Annotated[float, typer.Option(help="Study cost per enrolled subject.")],
     power: Annotated[float | None, typer.Option(help="The power the protocol was sized for.")] = None,
     n_per_group: Annotated[int | None, typer.Option(help="The protocol's size (instead of --power).")] = None,
-    allocation: Annotated[float | None, typer.Option(help="Unexposed per exposed, or controls per case.")] = None,
+    allocation: Annotated[float | None, typer.Option(help="By design: " + _by_design("allocation_name") + ".")] = None,
+    design_setting: DesignSettings = None,
     years: Annotated[float | None, typer.Option(help="Follow-up years per subject.")] = None,
     sides: Annotated[int, typer.Option(help="1 = one-sided test of harm, 2 = two-sided.")] = 1,
     test: Annotated[Test, typer.Option(help="normal, exact, or auto.")] = Test.auto,
@@ -527,7 +563,7 @@ def audit_command(
 
     def call() -> Any:
         return _audit(
-            design.value, baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
+            _design(design, design_setting), baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
             per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
             years=years, sides=sides, test=test.value, missed_hazard=missed_hazard,
             false_alarm=false_alarm, fixed=fixed_cost, prior=prior,
@@ -617,6 +653,171 @@ def _signals_abort() -> Iterator[None]:
     finally:
         for signum, old in previous.items():
             signal.signal(signum, old)
+
+
+# --------------------------------------------------------------------------
+# sweep and simulate
+
+
+@contextmanager
+def _progress(show: bool, what: str) -> Iterator[Callable[[int, int], None] | None]:
+    """A rich progress bar on stderr (only at a terminal), as a ``progress(done, total)`` callback."""
+    if not show or not sys.stderr.isatty():
+        yield None
+        return
+    from rich.progress import Progress
+
+    with Progress(console=render.make_console(stderr=True), transient=True) as bar:
+        task = bar.add_task(what, total=None)
+
+        def update(done: int, total: int) -> None:
+            bar.update(task, completed=done, total=total)
+
+        yield update
+
+
+def _parse_vary(items: list[str]) -> list[tuple[str, float, float]]:
+    out = []
+    for item in items:
+        name, _, span = item.partition("=")
+        lo, sep, hi = span.partition(":")
+        try:
+            if not (name and sep):
+                raise ValueError
+            out.append((name.strip(), float(lo), float(hi)))
+        except ValueError:
+            _fail(f"decide sweep: --vary must look like key.path=low:high, but got {item!r}", 2)
+    return out
+
+
+def _seed(seed: int | None) -> int:
+    if seed is not None:
+        if seed < 0:
+            _fail(f"decide: --seed must be >= 0, but got {seed}", 2)
+        return seed
+    import numpy as np
+
+    return int(np.random.SeedSequence().entropy) % 2**63  # type: ignore[arg-type]
+
+
+@app.command("sweep")
+def sweep_command(
+    scenario: ScenarioPath,
+    vary: Annotated[
+        list[str] | None,
+        typer.Option("--vary", help="Range of an input, key.path=low:high (repeatable), e.g. prior.p_harm=0.05:0.5."),
+    ] = None,
+    policy: Annotated[
+        list[str] | None, typer.Option("--policy", help="Standard to compare (repeatable; default all).")
+    ] = None,
+    policy_dir: PolicyDirs = None,
+    two_way: Annotated[bool, typer.Option("--two-way", help="A grid over two inputs (see --axes).")] = False,
+    axes: Annotated[
+        str, typer.Option(help="The two inputs of --two-way, x,y.")
+    ] = "prior.p_harm,consequences.cost_ratio",
+    points: Annotated[int, typer.Option(help="Grid points per axis of --two-way.")] = 25,
+    draws: Annotated[
+        int | None, typer.Option(help="Probabilistic analysis with this many draws from [uncertainty].")
+    ] = None,
+    seed: Annotated[int | None, typer.Option(help="Seed of the draws (printed; default: a fresh one).")] = None,
+    as_json: JsonFlag = False,
+    as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
+) -> None:
+    """Does the choice survive doubt? One-way ranges and break-even values, a two-way grid, or draws."""
+    from .decision import inputs as _inputs
+    from .decision import sensitivity as _sens
+    from .decision import uncertainty as _unc
+    from .report import sweep as _show
+    from .scenario.uncertainty import sweep_range
+
+    if as_json and as_csv:
+        _fail("decide sweep: choose one of --json and --csv", 2)
+    if draws is not None and two_way:
+        _fail("decide sweep: choose one of --two-way and --draws", 2)
+    if draws is not None and draws < 1:
+        _fail(f"decide sweep: --draws must be at least 1, but got {draws}", 2)
+    if points < 2:
+        _fail(f"decide sweep: --points must be at least 2, but got {points}", 2)
+    spans = _parse_vary(vary or [])
+    loaded = run_api("sweep", lambda: load_scenario(scenario))
+    problem = loaded.problem
+    model_unc = loaded.model.uncertainty
+    dists = model_unc.to_inputs() if model_unc is not None else {}
+    ranges = {n: run_api("sweep", lambda n=n, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
+              for n, lo, hi in spans}
+    run_api("sweep", lambda: _unc.check_uncertainty(problem, dists))
+    unit = loaded.currency or ""
+    quiet = as_json or as_csv
+    if draws is not None:
+        if not dists:
+            _fail(f"decide sweep: --draws needs an [uncertainty] table in {scenario}", 2)
+        chosen = _chosen_policies("sweep", policy, policy_dir)
+        used = _seed(seed)
+        with _progress(not quiet, "draws") as bar:
+            result = run_api("sweep", lambda: _unc.probabilistic(problem, dists, draws, used, chosen, bar))
+        _emit(result, as_json, as_csv, _show.probabilistic_csv, lambda: _show.probabilistic_tables(result, unit))
+        return
+    if two_way:
+        names = [a.strip() for a in axes.split(",")]
+        if len(names) != 2 or names[0] == names[1]:
+            _fail(f"decide sweep: --axes must name two different inputs, x,y, but got {axes!r}", 2)
+        for n in names:
+            run_api("sweep", lambda n=n: _inputs.check_name(problem, n))
+        x, y = (ranges.get(n) or run_api("sweep", lambda n=n: _inputs.default_range(problem, n)) for n in names)
+        with _progress(not quiet, "grid") as bar:
+            grid = run_api("sweep", lambda: _sens.two_way(problem, x, y, points, bar))
+        _emit(grid, as_json, as_csv, _show.two_way_csv, lambda: _show.two_way_tables(grid))
+        return
+    for name, dist in dists.items():
+        if name not in ranges and name in _inputs.input_names(problem):
+            lo, hi = sweep_range(dist)
+            if hi > lo:
+                ranges[name] = run_api("sweep", lambda n=name, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
+    chosen = _chosen_policies("sweep", policy, policy_dir)
+    names_ = list(dict.fromkeys([*_inputs.input_names(problem), *ranges]))
+    with _progress(not quiet, "inputs") as bar:
+        tor = run_api("sweep", lambda: _sens.tornado(problem, chosen, ranges, names_, bar))
+    _emit(tor, as_json, as_csv, _show.tornado_csv, lambda: _show.tornado_tables(tor, unit))
+
+
+def _emit(result: Any, as_json: bool, as_csv: bool, to_csv: Callable[[Any], str], table: Callable[[], Any]) -> None:
+    if as_json:
+        emit_json({**result.to_dict(), "caution": CAUTION})
+    elif as_csv:
+        sys.stdout.write(to_csv(result))
+    else:
+        render.make_console().print(table())
+
+
+@app.command("simulate")
+def simulate_command(
+    scenario: ScenarioPath,
+    policy: Annotated[str, typer.Option(help="The policy whose design is simulated.")] = "loss-optimal",
+    policy_dir: PolicyDirs = None,
+    studies: Annotated[int, typer.Option(help="Studies simulated under each hypothesis.")] = 100_000,
+    seed: Annotated[int | None, typer.Option(help="Seed of the simulation (printed; default: a fresh one).")] = None,
+    as_json: JsonFlag = False,
+    as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
+) -> None:
+    """Simulate studies of a chosen design and check its false-alarm probability, power and loss."""
+    from .decision.optimize import decide_policy
+    from .decision.simulate import simulate
+    from .report import sweep as _show
+
+    if as_json and as_csv:
+        _fail("decide simulate: choose one of --json and --csv", 2)
+    if studies < 1:
+        _fail(f"decide simulate: --studies must be at least 1, but got {studies}", 2)
+    used = _seed(seed)
+    loaded = run_api("simulate", lambda: load_scenario(scenario))
+    (chosen,) = _chosen_policies("simulate", [policy], policy_dir)
+    decision = run_api("simulate", lambda: decide_policy(loaded.problem, chosen))
+    result = run_api("simulate", lambda: simulate(loaded.problem, decision, studies, used))
+    unit = loaded.currency or ""
+    _emit(result, as_json, as_csv, _show.simulation_csv, lambda: _show.simulation_table(result, unit))
+    if result.flagged:
+        sys.stderr.write("decide simulate: the simulation differs from the analytic values by more than "
+                         "4 standard errors (see the table)\n")
 
 
 def main() -> None:

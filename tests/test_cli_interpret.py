@@ -17,6 +17,7 @@ from typer.testing import CliRunner
 import decide
 from decide.cli import app
 from decide.decision.observed import reader_of
+from decide.errors import DecideError
 from decide.report.text import CAUTION
 from decide.scenario import load_policies, load_scenario
 
@@ -35,11 +36,32 @@ def scenario_of(data: Path) -> Path:
     return REPO / "scenarios" / data.name
 
 
+def _has_reader(path: Path) -> bool:
+    try:
+        reader_of(load_scenario(path).problem.study.design)
+    except DecideError:
+        return False
+    return True
+
+
 def test_every_bundled_scenario_has_invented_observed_data() -> None:
-    names = {p.name for p in (REPO / "scenarios").glob("*.toml")}
+    # designs without a reader yet are refused in one line (see below)
+    names = {p.name for p in (REPO / "scenarios").glob("*.toml") if _has_reader(p)}
     assert {p.name for p in OBSERVED} == names
     for p in OBSERVED:
         assert "INVENTED" in p.read_text(encoding="utf-8")
+
+
+def test_bundled_scenarios_without_a_reader_are_refused_on_the_command_line(tmp_path: Path) -> None:
+    without = [p for p in sorted((REPO / "scenarios").glob("*.toml")) if not _has_reader(p)]
+    for path in without:
+        design = load_scenario(path).problem.study.setting().design.name
+        data = tmp_path / "data.toml"
+        data.write_text("[observed]\ncases = 3\n", encoding="utf-8")
+        res = run("interpret", str(path), "--data", str(data))
+        assert res.exit_code == 2
+        assert f"reading observed data is not available for the {design} design yet" in res.stderr
+        assert "\n" not in res.stderr.strip()
 
 
 @pytest.mark.parametrize("data", OBSERVED, ids=lambda p: p.stem)

@@ -71,6 +71,7 @@ def scipy_likelihood(design: str, obs: dict[str, float], baseline: float, theta:
 def quad_posterior(problem: Problem, obs: dict[str, float]) -> tuple[float, float]:
     """P(harm | data) and E[missed cost | data, harm] by scipy.integrate.quad over the truncated prior."""
     e, s = problem.effect, problem.study
+    design = s.setting().design.name
     m, sd = math.log(e.median), e.log_sd
     mass = special.ndtr(m / sd)  # prior mass above a ratio of 1
 
@@ -78,10 +79,10 @@ def quad_posterior(problem: Problem, obs: dict[str, float]) -> tuple[float, floa
         return float(stats.norm.pdf(v, m, sd) / mass)
 
     def lik(v: float) -> float:
-        return scipy_likelihood(s.design, obs, s.baseline, math.exp(v))
+        return scipy_likelihood(design, obs, s.baseline, math.exp(v))
 
     top = m + 9 * sd
-    if s.design == "cohort-risk":
+    if design == "cohort-risk":
         top = min(top, math.log(0.999999 / s.baseline))
     opts = {"limit": 400, "epsabs": 0.0, "epsrel": 1e-11}
     harm = integrate.quad(lambda v: lik(v) * density(v), 0.0, top, **opts)[0]
@@ -90,7 +91,7 @@ def quad_posterior(problem: Problem, obs: dict[str, float]) -> tuple[float, floa
         0.0, top, **opts,
     )[0]
     p = problem.p_harm
-    null = scipy_likelihood(s.design, obs, s.baseline, 1.0)
+    null = scipy_likelihood(design, obs, s.baseline, 1.0)
     return p * harm / (p * harm + (1 - p) * null), cost / harm
 
 

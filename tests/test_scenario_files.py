@@ -91,7 +91,7 @@ def test_bundled_scenario_loads_and_says_it_is_invented(path: Path) -> None:
 
 def test_bundled_scenarios_cover_every_design_a_prior_and_a_derived_cost() -> None:
     loaded = [load_scenario(p) for p in SCENARIOS]
-    assert {s.problem.study.design for s in loaded} == set(DESIGNS)
+    assert {s.problem.study.setting().design.name for s in loaded} == set(DESIGNS)
     assert any(not s.problem.effect.is_point for s in loaded)
     assert any(s.problem.consequences.is_derived for s in loaded)
 
@@ -177,7 +177,7 @@ def test_template_shows_every_key() -> None:
     keys = _all_keys()
     assert {"design", "ratio", "p_harm", "horizon_years", "budget"} <= set(keys)
     for key in keys:
-        assert re.search(rf"^#? ?{key} = ", text, flags=re.MULTILINE), key
+        assert re.search(rf"^#? ?({key} = |\[{key}\])", text, flags=re.MULTILINE), key
     for table in ("study", "effect", "prior", "consequences", "constraints"):
         assert f"\n[{table}]\n" in text
 
@@ -197,6 +197,18 @@ def test_template_alternatives_load_when_uncommented(tmp_path: Path) -> None:
     rate = edit(text, 'design = "cohort-risk"', 'design = "cohort-rate"')
     rate = edit(edit(rate, "# years = 5.0", "years = 5.0"), "\ncontinuity = false", "\n")
     assert load_text(tmp_path, rate, "rate.toml").problem.study.years == 5.0
+
+    matched = edit(text, 'design = "cohort-risk"', 'design = "matched-case-control"')
+    matched = edit(matched, "# design_settings = ", "design_settings = ")
+    matched = edit(edit(matched, "baseline = 0.001", "baseline = 0.2"), "\ncontinuity = false", "\n")
+    study = load_text(tmp_path, matched, "matched.toml").problem.study
+    assert study.setting().design.setting_values() == {"correlation": 0.2}
+
+
+def test_template_names_every_design() -> None:
+    text = scenario_template()
+    for name in DESIGNS:
+        assert re.search(rf"^# {re.escape(name)} ", text, flags=re.MULTILINE), name
 
 
 # --- conversion to the core problem -----------------------------------------
@@ -401,8 +413,9 @@ MALFORMED = [
         "unknown design",
         edit(BASE, 'design = "cohort-risk"', 'design = "cohort"'),
         "study.design",
-        r"must be 'cohort-risk', 'cohort-rate', 'reference-rate' or 'case-control' "
-        r"\(got \"cohort\"\)",
+        # the list of designs is read from the registry
+        r"must be " + re.escape(", ".join(repr(d) for d in list(DESIGNS)[:-1]))
+        + f" or {list(DESIGNS)[-1]!r}" + r" \(got \"cohort\"\)",
     ),
     (
         "sides true",

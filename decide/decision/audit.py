@@ -37,7 +37,7 @@ import numpy as np
 
 from .. import _checks
 from .._results import PlainData
-from ..designs import get_design
+from ..designs import StudyDesign, get_design
 from ..engine.power import evaluate
 from ..engine.rule import DecisionRule, decision_rule
 from ..engine.solve import solve
@@ -127,7 +127,7 @@ class ProtocolLosses(PlainData):
 
 
 def audit(
-    design: str,
+    design: str | StudyDesign,
     *,
     baseline: float,
     alpha: float,
@@ -209,7 +209,7 @@ def audit(
     per_n = 1.0 + (sol.n_total - sol.n_per_group) / sol.n_per_group
     implied_missed = per_subject * per_n / (p_harm * slope) if slope > 0 and per_subject > 0 else None
     implied_false_alarm = implied_missed / ratio if implied_missed is not None and ratio else None
-    detect = {f"{lv:g}": _detect(sol, lv) for lv in DETECTION_LEVELS}
+    detect = {f"{lv:g}": _detect(get_design(design), sol, lv) for lv in DETECTION_LEVELS}
     neg = p_harm * sol.beta + (1 - p_harm) * (1 - sol.attained_alpha)
     pos = p_harm * sol.power + (1 - p_harm) * sol.attained_alpha
     rule = decision_rule(model.setting, n, alpha, exact=exact, effect=effect)
@@ -272,13 +272,13 @@ def _exact_slope(model: Any, alpha: float, n: float) -> float:
     return float(np.polyfit(sizes, res.power, 1)[0])
 
 
-def _detect(sol: Any, level: float) -> float | None:
+def _detect(design: StudyDesign, sol: Any, level: float) -> float | None:
     if level <= sol.alpha:
         return None
-    allocation, years = get_design(sol.design).applicable(sol.allocation, sol.years)
+    allocation, years = design.applicable(sol.allocation, sol.years)
     try:
         return solve(
-            sol.design, baseline=sol.baseline, alpha=sol.alpha, power=level,
+            design, baseline=sol.baseline, alpha=sol.alpha, power=level,
             n_per_group=sol.n_per_group, allocation=allocation, years=years,
             sides=sol.sides, test=sol.test.replace("normal-cc", "normal"),
             continuity=sol.test == "normal-cc",

@@ -32,6 +32,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..designs import StudyDesign
 from ..designs._base import FloatArray
 from ..engine.power import evaluate
 from ..engine.solve import effect_cap, solve
@@ -144,13 +145,13 @@ def detectable_effect(model: LossModel, alpha: float, n: float, exact: bool, lev
     s = model.setting
     study = model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)
-    return _detectable(s.design.name, study.baseline, allocation, years, s.sides, s.continuity,
+    return _detectable(s.design, study.baseline, allocation, years, s.sides, s.continuity,
                        float(alpha), int(n), exact, level)
 
 
 @lru_cache(maxsize=256)
 def _detectable(
-    design: str, baseline: float, allocation: float | None, years: float | None, sides: int,
+    design: StudyDesign, baseline: float, allocation: float | None, years: float | None, sides: int,
     continuity: bool, alpha: float, n: int, exact: bool, level: float,
 ) -> float | None:
     """Cached: the policies of one comparison often share a study."""

@@ -49,6 +49,7 @@ from scipy import optimize as _opt
 from scipy import special
 
 from .._results import PlainData
+from ..designs import get_design
 from ..designs._base import FloatArray
 from ..engine.exact import REL_TOL
 from ..engine.selection import uses_exact
@@ -219,7 +220,7 @@ def _estimate(c: Counts) -> float | None:
     if c.law == "poisson":
         return c.x1 / c.size1
     assert c.x0 is not None and c.size0 is not None
-    if c.design == "case-control":
+    if reader_of(c.design).conditional_estimate:
         return _conditional_mle(c)
     if c.x0 == 0:  # infinite, or 0/0 with no case at all
         return None
@@ -468,9 +469,9 @@ def interpret(
     if not 0 < confidence < 1:
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))
     c = observed if isinstance(observed, Counts) else read_counts(problem, observed)
-    if c.design != problem.study.design:
+    if c.design != get_design(problem.study.design).name:
         raise DecideError(f"observed: counts of the {c.design} design, but the scenario's design is "
-                          f"{problem.study.design}", ("observed",))
+                          f"{get_design(problem.study.design).name}", ("observed",))
     reader = reader_of(c.design)
     baseline = float(problem.study.baseline)
     ev = evidence(c)

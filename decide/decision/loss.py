@@ -368,11 +368,8 @@ def _power_and_miss(
         e = effects[part][None, :]
         cm = s.design.count_model(n * one, s.baseline * one, e, s.allocation * one, s.years * one)
         grid = _exact.build_grid(cm, s.sides)
-        reject = grid.p_value[0] <= nominal * (1 + _exact.REL_TOL)
-        caught = reject.astype(np.float64) @ grid.other[0]
-        kept = (~reject).astype(np.float64) @ grid.other[0]
-        power[part] = grid.alt_exposed[0] @ caught
-        miss[part] = grid.alt_exposed[0] @ kept
+        caught, kept = _exact.split_mass(grid, grid.p_value <= nominal * (1 + _exact.REL_TOL))
+        power[part], miss[part] = caught[0], kept[0]
         if miss[part].max() < 1e-16:  # larger effects are caught for certain
             later = order[np.searchsorted(effects[order], effects[part].max(), side="right"):]
             power[later], miss[later] = 1.0, 0.0

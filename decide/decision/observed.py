@@ -36,6 +36,7 @@ from typing import Literal
 import numpy as np
 from scipy import special
 
+from ..designs import StudyDesign, get_design
 from ..designs._base import FloatArray
 from ..errors import DecideError
 
@@ -164,6 +165,8 @@ class Reader:
     to_law: Callable[[FloatArray, float], FloatArray]
     from_law: Callable[[FloatArray, float], FloatArray]
     keys: tuple[str, ...]
+    #: estimate the ratio by conditional maximum likelihood (else the ratio of the observed rates)
+    conditional_estimate: bool = False
 
 
 def _same(x: FloatArray, baseline: float) -> FloatArray:
@@ -192,12 +195,13 @@ READERS: dict[str, Reader] = {
                           ("cases_exposed", "person_years_exposed", "cases_unexposed", "person_years_unexposed")),
     "reference-rate": Reader(_read_reference_rate, _same, _same, ("cases", "expected | person_years")),
     "case-control": Reader(_read_case_control, _same, _same,
-                           ("cases", "exposed_cases", "controls", "exposed_controls")),
+                           ("cases", "exposed_cases", "controls", "exposed_controls"), conditional_estimate=True),
 }
 
 
-def reader_of(design: str) -> Reader:
+def reader_of(design: str | StudyDesign) -> Reader:
     """The reader of a design's observed counts; a one-line error for a design without one."""
+    design = get_design(design).name
     try:
         return READERS[design]
     except KeyError:

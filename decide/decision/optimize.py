@@ -143,8 +143,9 @@ def _test_name(model: LossModel, exact: bool) -> tuple[str, str]:
     """The test's short name and its method, in the design's words."""
     d, cc = model.setting.design, model.setting.continuity
     if exact:
-        return "exact", d.exact_method
-    return ("normal-cc" if cc else "normal"), d.normal_method + (", continuity-corrected" if cc else "")
+        return "exact", d.exact_method + d.describe_settings()
+    normal = d.normal_method + d.describe_settings() + (", continuity-corrected" if cc else "")
+    return ("normal-cc" if cc else "normal"), normal
 
 
 def _implied(

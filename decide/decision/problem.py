@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .. import _checks
+from ..designs import StudyDesign
 from ..designs._base import FloatArray
 from ..engine.study import Setting, check_setting
 from ..errors import DecideError
@@ -26,7 +27,7 @@ class Study:
     :func:`decide.power`), and every value is checked when the study is made.
     """
 
-    design: str
+    design: str | StudyDesign
     baseline: float
     allocation: float = 1.0
     years: float = 1.0
@@ -211,7 +212,7 @@ class Problem:
         if top >= limit:
             raise DecideError(
                 f"effect: the effect must stay below {limit:g} for baseline {self.study.baseline:g} "
-                f"(the exposed risk must stay below 1), but the effect reaches {top:g}",
+                f"({setting.design.effect_limit_reason}), but the effect reaches {top:g}",
                 ("effect",),
             )
         largest = _checks.EFFECT_RANGE[1]
@@ -260,8 +261,9 @@ class Problem:
             ("cost of a false alarm", f"{c.false_alarm:g}"),
             ("study cost", f"{c.per_subject:g} per subject + {c.fixed:g} fixed"),
         ]
-        if d.allocation_name is not None:
-            rows.insert(2, (d.allocation_name, f"{self.study.allocation:g}"))
+        if d.groups == 2:
+            rows.insert(2, (str(d.allocation_name), f"{self.study.allocation:g}"))
+        rows[1:1] = [(f"design setting: {key}", f"{value:g}") for key, value in d.setting_values().items()]
         if d.uses_years:
             rows.insert(2, ("follow-up years per subject", f"{self.study.years:g}"))
         k = self.constraints

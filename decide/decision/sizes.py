@@ -185,7 +185,7 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) 
             a = float(cand[j - 1]) if j > 0 else a
         else:
             a = float(cand[-1])
-    span = EVERY_SIZE["one-group" if model.setting.design.allocation_name is None else "two-group"]
+    span = EVERY_SIZE["one-group" if model.setting.design.groups == 1 else "two-group"]
     early_sizes = np.arange(lo, b) if b - lo <= span else np.arange(max(lo, b - 64), b)
     if early_sizes.size:
         early = choose_tests(model, policy, early_sizes).meets_rules
@@ -204,7 +204,7 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     """
     if policy.alpha_rule != "fixed" or policy.power is None or policy.alpha is None:
         return None, OK
-    if model.setting.design.allocation_name is not None:
+    if model.setting.design.groups != 1:
         return None, OK  # two-group designs barely saw-tooth; the general search is faster
     s, study = model.setting, model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)

@@ -1,23 +1,35 @@
 """Study designs, one module each, behind :class:`StudyDesign`.
 
 To add a design, write a module with a :class:`StudyDesign` subclass and a
-module-level ``DESIGN`` instance, and list it in :data:`DESIGNS`.
+module-level ``DESIGN`` instance, and add the module's name to
+:data:`MODULES`: every list of designs (the command line's choices, the
+scenario schema and template, the README's table, checked by a test) is read
+from :data:`DESIGNS`.
 """
 
 from __future__ import annotations
 
+from importlib import import_module
+
 from ..errors import DecideError
-from . import case_control, cohort_rate, cohort_risk, reference_rate
 from ._base import AUTO_EXACT_BELOW, EXACT_UP_TO, CountModel, Marginal, NormalMoments, StudyDesign
 
-DESIGNS: dict[str, StudyDesign] = {
-    d.name: d
-    for d in (cohort_risk.DESIGN, cohort_rate.DESIGN, reference_rate.DESIGN, case_control.DESIGN)
-}
+#: The design modules, in the order their designs are listed to users.
+MODULES = ("cohort_risk", "cohort_rate", "reference_rate", "case_control", "matched_case_control")
+
+
+def _load(module: str) -> StudyDesign:
+    design = import_module(f"{__name__}.{module}").DESIGN
+    assert isinstance(design, StudyDesign), module
+    return design
+
+
+#: The designs by name (each module's ``DESIGN``), in the order of :data:`MODULES`.
+DESIGNS: dict[str, StudyDesign] = {d.name: d for d in map(_load, MODULES)}
 
 
 def get_design(design: str | StudyDesign) -> StudyDesign:
-    """Look a design up by name (``cohort-risk``, ``cohort-rate``, ...)."""
+    """Look a design up by name (a key of :data:`DESIGNS`); a design object is returned as is."""
     if isinstance(design, StudyDesign):
         return design
     try:

@@ -15,11 +15,14 @@ do the rest, so a new design is one new module with one class.
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
+from collections.abc import Mapping
 from dataclasses import dataclass
-from typing import ClassVar, Literal
+from typing import Any, ClassVar, Literal
 
 import numpy as np
 from numpy.typing import NDArray
+
+from ..errors import DecideError
 
 FloatArray = NDArray[np.float64]
 
@@ -66,7 +69,11 @@ class CountModel:
     ``exposed_null`` and ``exposed_alt`` describe the exposed count under no
     effect and under the stated effect (the latter may carry an extra
     trailing axis of effects); ``other`` is the comparison count, distributed
-    alike under both hypotheses, or ``None`` for a one-group design.
+    alike under both hypotheses unless ``other_alt`` gives its law under the
+    effect, or ``None`` for a one-group design.  The two counts are
+    independent, unless ``units`` is given: then they are two cells of one
+    multinomial over ``units`` independent units (matched sets), the third
+    cell holding the rest.
     ``conditional`` names the exact test run on the counts:
 
     ``"fisher"``
@@ -87,21 +94,90 @@ class CountModel:
     n_other: FloatArray | None = None
     share_exposed: FloatArray | None = None
     reference_mean: FloatArray | None = None
+    other_alt: Marginal | None = None
+    units: FloatArray | None = None
 
 
 class StudyDesign(ABC):
-    """A study design: its vocabulary, its normal moments and its counts."""
+    """A study design: its vocabulary, its capabilities, its normal moments and its counts.
 
+    The engines, the decision layer, the file formats and the command line
+    ask a design what it can do through the class attributes below and
+    never test its name.
+    """
+
+    #: the design's name in files and on the command line
     name: ClassVar[str]
     title: ClassVar[str]
     effect_name: ClassVar[str]
     baseline_name: ClassVar[str]
+    #: what ``n_per_group`` counts (exposed subjects, cases, matched sets)
     size_name: ClassVar[str]
+    #: groups of subjects the study enrols: 1 (one cohort against a known
+    #: rate) or 2 (a second group of ``allocation * n`` subjects)
+    groups: ClassVar[int]
+    #: what ``allocation`` means (two-group designs); ``None`` for one group
     allocation_name: ClassVar[str | None]
     uses_years: ClassVar[bool]
+    #: whether the normal test may be continuity-corrected (two proportions)
     binomial_groups: ClassVar[bool]
+    #: the exact test run on the counts (as :attr:`CountModel.conditional`)
+    exact_test: ClassVar[Literal["fisher", "binomial", "poisson"]]
     normal_method: ClassVar[str]
     exact_method: ClassVar[str]
+    #: the count a decision rule in counts is stated in, and the total it is conditional on
+    #: (``None`` for a one-group test)
+    count_words: ClassVar[tuple[str, str | None]] = ("exposed cases", "cases (exposed and unexposed)")
+    #: why ``effect_limit`` bounds the effect, in words
+    effect_limit_reason: ClassVar[str] = "the exposed risk must stay below 1"
+    #: settings of the design itself (name: description), see :meth:`configure`
+    settings: ClassVar[Mapping[str, str]] = {}
+
+    def configure(self, values: Mapping[str, Any]) -> StudyDesign:
+        """This design with its own settings (:attr:`settings`) set; validated."""
+        for key in values:
+            takes = ", ".join(self.settings) or "none"
+            raise DecideError(
+                f"design_settings.{key}: the {self.name} design has no such setting (it takes: {takes})",
+                (f"design_settings.{key}",),
+            )
+        return self
+
+    def setting_values(self) -> dict[str, float]:
+        """The values of this design's own settings (empty if it has none)."""
+        return {}
+
+    def describe_settings(self) -> str:
+        """The design's own settings in words, to append to a method (empty if none)."""
+        return "".join(f", {key} {value:g}" for key, value in self.setting_values().items())
+
+    def __eq__(self, other: object) -> bool:
+        return (
+            isinstance(other, StudyDesign)
+            and other.name == self.name
+            and other.setting_values() == self.setting_values()
+        )
+
+    def __hash__(self) -> int:
+        return hash((self.name, tuple(sorted(self.setting_values().items()))))
+
+    def __repr__(self) -> str:
+        values = ", ".join(f"{key}={value!r}" for key, value in self.setting_values().items())
+        return f"{type(self).__name__}({values})"
+
+    def check_allocation(self, allocation: FloatArray) -> None:
+        """Raise :class:`~decide.errors.DecideError` if the allocation is impossible.
+
+        Only called for two-group designs; any positive ratio by default.
+        """
+        return None
+
+    def exact_offered(self, allocation: FloatArray) -> NDArray[np.bool_]:
+        """Where the design has an exact test (everywhere by default)."""
+        return np.ones(np.shape(allocation), dtype=bool)
+
+    #: why the exact test is not offered where :meth:`exact_offered` is false
+    no_exact_reason: ClassVar[str] = ""
 
     @abstractmethod
     def check_baseline(self, baseline: FloatArray) -> None:
@@ -117,7 +193,7 @@ class StudyDesign(ABC):
         The API refuses a value for a setting the design does not have, so
         callers passing a study's settings on use this.
         """
-        return (None if self.allocation_name is None else allocation, years if self.uses_years else None)
+        return (None if self.groups == 1 else allocation, years if self.uses_years else None)
 
     def comparison_size(self, n: FloatArray, allocation: FloatArray) -> FloatArray:
         """Subjects in the comparison group (0 for a one-group design).
@@ -126,7 +202,7 @@ class StudyDesign(ABC):
         exact tests use this count; the normal formulas use the ratio itself,
         as the published formulas do (they differ by under half a subject).
         """
-        if self.allocation_name is None:
+        if self.groups == 1:
             return np.zeros_like(n * allocation)
         return np.asarray(np.floor(allocation * n + 0.5), dtype=np.float64)
 

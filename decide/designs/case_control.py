@@ -42,9 +42,12 @@ class CaseControl(StudyDesign):
     effect_name = "odds ratio"
     baseline_name = "exposure prevalence among controls"
     size_name = "cases"
+    groups = 2
     allocation_name = "controls per case"
     uses_years = False
     binomial_groups = True
+    exact_test = "fisher"
+    count_words = ("exposed cases", "exposed subjects (cases and controls)")
     normal_method = "normal approximation, two proportions (Schlesselman form)"
     exact_method = "Fisher's exact test, conditional on the total exposed"
 

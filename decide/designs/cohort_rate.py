@@ -40,9 +40,11 @@ class CohortRate(StudyDesign):
     effect_name = "rate ratio"
     baseline_name = "incidence rate per person-year in the unexposed"
     size_name = "exposed subjects"
+    groups = 2
     allocation_name = "unexposed subjects per exposed subject"
     uses_years = True
     binomial_groups = False
+    exact_test = "binomial"
     normal_method = "normal approximation, log rate ratio (null variance)"
     exact_method = "exact conditional binomial test of two Poisson rates"
 

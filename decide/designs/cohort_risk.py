@@ -35,9 +35,11 @@ class CohortRisk(StudyDesign):
     effect_name = "risk ratio"
     baseline_name = "risk over follow-up in the unexposed"
     size_name = "exposed subjects"
+    groups = 2
     allocation_name = "unexposed subjects per exposed subject"
     uses_years = False
     binomial_groups = True
+    exact_test = "fisher"
     normal_method = "normal approximation, two proportions (pooled variance under H0)"
     exact_method = "Fisher's exact test, conditional on the total cases"
 

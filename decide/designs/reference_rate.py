@@ -37,9 +37,12 @@ class ReferenceRate(StudyDesign):
     effect_name = "standardised incidence ratio"
     baseline_name = "reference incidence rate per person-year"
     size_name = "exposed subjects"
+    groups = 1
     allocation_name = None
     uses_years = True
     binomial_groups = False
+    exact_test = "poisson"
+    count_words = ("cases", None)
     normal_method = "normal approximation, square-root transform of the Poisson count"
     exact_method = "exact Poisson test against the expected count"
 

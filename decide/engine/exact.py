@@ -1,7 +1,8 @@
 """Exact power by summing over the counts a study can produce.
 
-Every exact test here sees at most two independent counts: the exposed count
-``x1`` and a comparison count ``x0`` (absent for a one-group design).  Each
+Every exact test here sees at most two counts: the exposed count ``x1`` and
+a comparison count ``x0`` (absent for a one-group design), either independent
+or two cells of one multinomial over matched sets (``CountModel.units``).  Each
 count's distribution is truncated to the window outside of which its tail
 mass is below :data:`TAIL`, so the neglected mass is below ``4 * TAIL``
 (about 1e-12) in all.  On the grid of ``(x1, x0)`` pairs the engine computes
@@ -70,6 +71,14 @@ class CountGrid:
     p_value : (B, W1, W0) exact p-value of each pair; ``inf`` on padding
     exposed_counts : (B, W1) the exposed counts of the rows (padding continues past the window)
     other_counts : (B, W0) the comparison counts of its columns (0 for one group)
+    null_joint : (B, W1, W0) or None
+        Where the two counts are not independent, the probability of each
+        pair under no effect (then ``null_exposed``, ``alt_exposed`` and
+        ``other`` are only the marginals of the counts under no effect, and
+        use :func:`null_mass`, :func:`split_mass` and :func:`rejection_path`
+        for masses) ...
+    alt_joint : PairLaw or None
+        ... and under each effect, computed a few effects at a time.
     """
 
     null_exposed: FloatArray
@@ -78,6 +87,64 @@ class CountGrid:
     p_value: FloatArray
     exposed_counts: FloatArray
     other_counts: FloatArray
+    null_joint: FloatArray | None = None
+    alt_joint: PairLaw | None = None
+
+
+@dataclass(frozen=True)
+class PairLaw:
+    """Probabilities of the count pairs of two multinomial cells, under each of ``Q`` effects.
+
+    ``P_q(x1, x0) = Bin(d; n, t_q) * C(d, x1) * s_q**x1 * (1 - s_q)**x0`` with
+    ``d = x1 + x0`` (see :func:`_pair_law`).  Held in factors, so that the
+    ``(Q, W1, W0)`` array is never built whole: :meth:`mass` gives a few
+    effects at a time.
+    """
+
+    log_total: FloatArray  # (B, Q, W1 + W0 - 1): log Bin(d; n, t_q), d from x1[0] + x0[0] up
+    coefficient: FloatArray  # (B, W1, W0): log C(d, x1), -inf on padding
+    x1: FloatArray  # (B, W1)
+    x0: FloatArray  # (B, W0)
+    log_share: FloatArray  # (B, Q): log s_q
+    log_rest: FloatArray  # (B, Q): log(1 - s_q)
+
+    def mass(self, q: slice) -> FloatArray:
+        """Pair probabilities under the effects ``q``, (B, q, W1, W0)."""
+        w0 = self.coefficient.shape[2]
+        # pair (i, j) has total index i + j: a sliding window over the totals, no copy
+        total = np.lib.stride_tricks.sliding_window_view(self.log_total[:, q], w0, axis=-1)
+        log_p = total + self.coefficient[:, None]
+        log_p += self.x1[:, None, :, None] * self.log_share[:, q, None, None]
+        log_p += self.x0[:, None, None, :] * self.log_rest[:, q, None, None]
+        return np.asarray(np.exp(log_p, out=log_p))
+
+    def slices(self) -> Iterator[slice]:
+        """Effects a few at a time, keeping each :meth:`mass` under :data:`CELL_BUDGET` cells."""
+        step = max(1, CELL_BUDGET // self.coefficient.size)
+        for start in range(0, self.log_total.shape[1], step):
+            yield slice(start, min(self.log_total.shape[1], start + step))
+
+
+def null_mass(grid: CountGrid) -> FloatArray:
+    """Probability of each count pair under no effect, (B, W1, W0)."""
+    if grid.null_joint is not None:
+        return grid.null_joint
+    return np.asarray(grid.null_exposed[:, :, None] * grid.other[:, None, :])
+
+
+def split_mass(grid: CountGrid, reject: NDArray[np.bool_]) -> tuple[FloatArray, FloatArray]:
+    """Mass of the rejected and of the kept pairs under each effect, (B, Q) each."""
+    if grid.alt_joint is not None:
+        law = grid.alt_joint
+        caught, kept = np.empty(law.log_share.shape), np.empty(law.log_share.shape)
+        for q in law.slices():
+            mass = law.mass(q)
+            caught[:, q] = np.einsum("bqij,bij->bq", mass, reject)
+            kept[:, q] = np.einsum("bqij,bij->bq", mass, ~reject)
+        return caught, kept
+    caught = np.einsum("bij,bj->bi", reject, grid.other)
+    kept = np.einsum("bij,bj->bi", ~reject, grid.other)
+    return np.einsum("bqi,bi->bq", grid.alt_exposed, caught), np.einsum("bqi,bi->bq", grid.alt_exposed, kept)
 
 
 def _window(m: Marginal) -> tuple[FloatArray, FloatArray]:
@@ -239,6 +306,56 @@ def _binomial(share: FloatArray) -> Callable[[FloatArray], _RowLaw]:
     return law
 
 
+def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
+    """The comparison count's window, under no effect and under every effect."""
+    assert model.other is not None
+    lo0, hi0 = _window(model.other)
+    if model.other_alt is not None:
+        lo_alt, hi_alt = _alt_window(model.other_alt)
+        lo0, hi0 = np.minimum(lo0, lo_alt), np.maximum(hi0, hi_alt)
+    return lo0, hi0
+
+
+def _pair_law(
+    model: CountModel, x1: FloatArray, x0: FloatArray, valid: NDArray[np.bool_]
+) -> tuple[PairLaw, PairLaw]:
+    """The pair laws of two cells of one multinomial over ``model.units``, no effect and each effect.
+
+    With cell probabilities ``p1`` and ``p0``, the pair total ``d = x1 + x0``
+    is ``Bin(n, t)`` with ``t = p1 + p0`` and, given it, ``x1`` is
+    ``Bin(d, s)`` with ``s = p1 / t``: ``P(x1, x0) = Bin(d; n, t) * C(d, x1) *
+    s**x1 * (1 - s)**x0``.  The first factor comes from scipy's binomial pmf
+    over the totals (1-D), the binomial coefficient from log-gamma values of
+    counts no larger than the totals, so no log-factorial of ``n`` enters a
+    difference.
+    """
+    assert model.units is not None and model.other is not None
+    n = model.units
+    alt_other = model.other if model.other_alt is None else model.other_alt
+    lo = x1[:, 0] + x0[:, 0]
+    d = np.arange(x1.shape[1] + x0.shape[1] - 1, dtype=np.float64) + lo[:, None]  # (B, WD)
+    at = (x1[:, :, None] + x0[:, None, :] - lo[:, None, None]).astype(np.int64).reshape(n.size, -1)
+    coefficient = (
+        np.take_along_axis(special.gammaln(d + 1), at, axis=1).reshape(valid.shape)
+        - special.gammaln(x1 + 1)[:, :, None]
+        - special.gammaln(x0 + 1)[:, None, :]
+    )
+    coefficient = np.where(valid, coefficient, -np.inf)
+
+    def law(p1: FloatArray, p0: FloatArray) -> PairLaw:
+        p1, p0 = p1.reshape(n.size, -1), p0.reshape(n.size, -1)  # (B, Q)
+        t = p1 + p0
+        share = np.where(t > 0, p1 / np.where(t > 0, t, 1.0), 0.5)
+        with np.errstate(divide="ignore"):
+            # pmf (not logpmf): scipy's binomial pmf is accurate for large n
+            log_total = np.log(stats.binom.pmf(d[:, None, :], n[:, None, None], t[:, :, None]))
+            return PairLaw(log_total, coefficient, x1, x0, np.log(share), np.log1p(-share))
+
+    return law(model.exposed_null.parameter, model.other.parameter), law(
+        model.exposed_alt.parameter, alt_other.parameter
+    )
+
+
 def _check_size(w1: FloatArray, w0: FloatArray) -> None:
     """Refuse, before allocating, a study whose grid holds more than :data:`MAX_COUNT_PAIRS`.
 
@@ -266,7 +383,7 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     lo_alt, hi_alt = _alt_window(model.exposed_alt)
     lo1 = np.minimum(lo_null, lo_alt)
     hi1 = np.maximum(hi_null, hi_alt)
-    lo0, hi0 = (np.zeros_like(lo1), np.zeros_like(hi1)) if model.other is None else _window(model.other)
+    lo0, hi0 = (np.zeros_like(lo1), np.zeros_like(hi1)) if model.other is None else _x0_window(model)
     _check_size(hi1 - lo1 + 1, hi0 - lo0 + 1)
     x1, valid1 = _axis(lo1, hi1)
     null = model.exposed_null
@@ -290,8 +407,12 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
         p = _poisson_p(x1, model.reference_mean, sides)
     else:
         p = _row_tails(x1, x0, hi1, hi0, _conditional_law(model), sides)
-    p = np.where(valid1[:, :, None] & valid0[:, None, :], p, np.inf)
-    return CountGrid(null_exposed, alt_exposed, other, p, x1, x0)
+    valid = valid1[:, :, None] & valid0[:, None, :]
+    p = np.where(valid, p, np.inf)
+    if model.units is None:
+        return CountGrid(null_exposed, alt_exposed, other, p, x1, x0)
+    null_law, alt_law = _pair_law(model, x1, x0, valid)
+    return CountGrid(null_exposed, alt_exposed, other, p, x1, x0, null_law.mass(slice(0, 1))[:, 0], alt_law)
 
 
 def _conditional_law(model: CountModel) -> Callable[[FloatArray], _RowLaw]:
@@ -342,9 +463,8 @@ def conditional_rows(model: CountModel, totals: FloatArray) -> ConditionalRows:
 def rejection_mass(grid: CountGrid, alpha: FloatArray) -> tuple[FloatArray, FloatArray]:
     """Power (B, Q) and attained size (B,) of the level-``alpha`` tests."""
     reject = grid.p_value <= (alpha * (1 + REL_TOL))[:, None, None]
-    caught = np.einsum("bij,bj->bi", reject, grid.other)
-    power = np.einsum("bqi,bi->bq", grid.alt_exposed, caught)
-    size = np.einsum("bi,bi->b", grid.null_exposed, caught)
+    power, _ = split_mass(grid, reject)
+    size = np.einsum("bij,bij->b", null_mass(grid), reject)
     return np.minimum(power, 1.0), np.minimum(size, 1.0)
 
 
@@ -374,9 +494,14 @@ def rejection_path(grid: CountGrid, weights: FloatArray) -> RejectionPath:
     p = grid.p_value.reshape(nb, -1)
     order = np.argsort(p, axis=1, kind="stable")
     p_sorted = np.take_along_axis(p, order, axis=1)
-    null = (grid.null_exposed[:, :, None] * grid.other[:, None, :]).reshape(nb, -1)
-    alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
-    alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
+    null = null_mass(grid).reshape(nb, -1)
+    if grid.alt_joint is not None:
+        alt = np.zeros((nb, weights.shape[0], p.shape[1]))
+        for q in grid.alt_joint.slices():
+            alt += np.einsum("kq,bqij->bkij", weights[:, q], grid.alt_joint.mass(q)).reshape(alt.shape)
+    else:
+        alt = np.einsum("kq,bqi->bki", weights, grid.alt_exposed)
+        alt = (alt[:, :, :, None] * grid.other[:, None, None, :]).reshape(nb, weights.shape[0], -1)
     null_c = np.cumsum(np.take_along_axis(null, order, axis=1), axis=1)
     alt_sorted = np.take_along_axis(alt, order[:, None, :], axis=2)
     alt_c = np.cumsum(alt_sorted, axis=2)
@@ -406,6 +531,8 @@ def take_rows(model: CountModel, idx: NDArray[np.int64]) -> CountModel:
         _take(model.n_other, idx),
         _take(model.share_exposed, idx),
         _take(model.reference_mean, idx),
+        None if model.other_alt is None else _take_marginal(model.other_alt, idx),
+        _take(model.units, idx),
     )
 
 
@@ -416,7 +543,7 @@ def count_pairs(model: CountModel) -> FloatArray:
     w1 = np.maximum(hi_null, hi_alt) - np.minimum(lo_null, lo_alt) + 1
     if model.other is None:
         return np.asarray(w1, dtype=np.float64)
-    lo0, hi0 = _window(model.other)
+    lo0, hi0 = _x0_window(model)
     return np.asarray(w1 * (hi0 - lo0 + 1), dtype=np.float64)
 
 
@@ -432,7 +559,7 @@ def grid_cells(model: CountModel) -> NDArray[np.int64]:
     if model.other is None:
         w0 = np.ones_like(w1)
     else:
-        lo0, hi0 = _window(model.other)
+        lo0, hi0 = _x0_window(model)
         w0 = hi0 - lo0 + 1
     effects = model.exposed_alt.parameter.shape[-1] if model.exposed_alt.parameter.ndim == 2 else 1
     return np.asarray(w1 * w0 * (8 + effects) + 64, dtype=np.int64)
@@ -512,8 +639,12 @@ def shared_power(
     For each distinct (study, alpha) the mass the test rejects is summed over
     the comparison count once, ``caught(x1) = sum_x0 [p(x1, x0) <= alpha]
     P(x0)``; the power at each effect is then ``sum_x1 P_effect(x1)
-    caught(x1)`` and the attained size the same sum under no effect.
+    caught(x1)`` and the attained size the same sum under no effect.  Where
+    the two counts are not independent (``members.units``), see
+    :func:`_joint_power`.
     """
+    if members.units is not None:
+        return _joint_power(members, study, alpha, sides)
     studies = int(study.max()) + 1
     model = study_models(members, study, studies)
     pairs, pair_of = np.unique(np.stack([study.astype(np.float64), alpha]), axis=1, return_inverse=True)
@@ -545,4 +676,34 @@ def shared_power(
             at = position[pair_of[els]]
             out_power[els] = np.einsum("mi,mi->m", pmf, caught[at])
             out_size[els] = size[at]
+    return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)
+
+
+def _joint_power(
+    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
+) -> tuple[FloatArray, FloatArray]:
+    """Power and attained size where the counts are two cells of one multinomial.
+
+    The pairs' masses then change with the effect on both axes, so each
+    distinct (study, effect) gets its grid, ordered once by p-value; every
+    alpha asked of it is one comparison along that order.
+    """
+    key = np.stack([study.astype(np.float64), members.exposed_alt.parameter.reshape(-1)])
+    _, first, back = np.unique(key, axis=1, return_index=True, return_inverse=True)
+    back = back.reshape(-1)
+    model = take_rows(members, first)
+    out_power, out_size = np.zeros(study.size), np.zeros(study.size)
+    row_of = np.empty(first.size, dtype=np.int64)
+    for idx in batches(model):
+        path = rejection_path(build_grid(take_rows(model, idx), sides), np.ones((1, 1)))
+        row_of[:] = -1
+        row_of[idx] = np.arange(idx.size)
+        mine = np.flatnonzero(row_of[back] >= 0)
+        for part in chunks(mine.size, path.p_value.shape[1]):
+            els = mine[part]
+            rows = row_of[back[els]]
+            k = (path.p_value[rows] <= (alpha[els] * (1 + REL_TOL))[:, None]).sum(axis=1)
+            at = np.maximum(k - 1, 0)
+            out_power[els] = np.where(k > 0, path.weighted[rows, 0, at], 0.0)
+            out_size[els] = np.where(k > 0, path.null[rows, at], 0.0)
     return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)

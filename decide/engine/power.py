@@ -107,17 +107,21 @@ class PowerResult:
         return "normal-cc" if self.continuity else "normal"
 
 
-def choose_exact(test: str, smallest_count: FloatArray) -> NDArray[np.bool_]:
+def choose_exact(
+    test: str, smallest_count: FloatArray, offered: NDArray[np.bool_] | bool = True
+) -> NDArray[np.bool_]:
     """Where the exact test runs.
 
     ``auto``: where a cell expects fewer than 10.  ``exact``: everywhere but
-    where every cell expects more than :data:`EXACT_UP_TO`.
+    where every cell expects more than :data:`EXACT_UP_TO`.  Never where the
+    design offers no exact test (``offered``, see
+    :meth:`~decide.designs.StudyDesign.exact_offered`).
     """
     if test == "exact":
-        return np.asarray(smallest_count <= EXACT_UP_TO)
+        return np.asarray((smallest_count <= EXACT_UP_TO) & offered)
     if test == "normal":
         return np.zeros(smallest_count.shape, dtype=bool)
-    return np.asarray(smallest_count < AUTO_EXACT_BELOW)
+    return np.asarray((smallest_count < AUTO_EXACT_BELOW) & offered)
 
 
 def normal_power(
@@ -175,7 +179,7 @@ def evaluate(
     )
     a, nn, e, b, r, y = (np.array(x, dtype=np.float64) for x in arrays)
     smallest = d.smallest_expected_count(nn, b, e, r, y)
-    use_exact = choose_exact(setting.test, smallest)
+    use_exact = choose_exact(setting.test, smallest, d.exact_offered(r))
     pw, size = normal_power(d, a, nn, e, b, r, y, setting.sides, setting.continuity)
     if use_exact.any():
         sel = use_exact
@@ -189,9 +193,10 @@ def evaluate(
         )
     weak = ~use_exact & (smallest < AUTO_EXACT_BELOW)
     if weak.any():
+        safer = "the exact test is safer here" if d.exact_offered(r)[weak].all() else d.no_exact_reason
         note = (
             f"normal approximation with as few as {float(smallest[weak].min()):.3g} expected "
-            f"in a cell (below {AUTO_EXACT_BELOW:g}); the exact test is safer here"
+            f"in a cell (below {AUTO_EXACT_BELOW:g}); {safer}"
         )
         warnings.warn(note, ApproximationWarning, stacklevel=3)
         notes.append(note)
@@ -232,7 +237,8 @@ def power(
     Parameters
     ----------
     design : str or StudyDesign
-        ``cohort-risk``, ``cohort-rate``, ``reference-rate`` or ``case-control``.
+        A design name (the keys of :data:`decide.designs.DESIGNS`) or a
+        configured design (:meth:`~decide.designs.StudyDesign.configure`).
     alpha : array_like
         Nominal significance level, in (0, 1).
     n_per_group : array_like
@@ -240,11 +246,12 @@ def power(
     effect : array_like
         Risk ratio, rate ratio, SIR or odds ratio, by design.
     baseline : array_like
-        Risk over follow-up, rate per person-year, reference rate per
-        person-year, or exposure prevalence among controls, by design.
+        The design's ``baseline_name``: risk over follow-up, rate per
+        person-year, reference rate per person-year, or exposure prevalence
+        among controls.
     allocation : array_like, optional
-        Unexposed subjects per exposed subject, or controls per case
-        (default 1; not for ``reference-rate``).
+        The design's ``allocation_name``: unexposed subjects per exposed
+        subject, or controls per case (default 1; not for one-group designs).
     years : array_like, optional
         Follow-up per subject for the person-time designs (default 1).
     sides : {1, 2}

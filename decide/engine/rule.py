@@ -171,7 +171,7 @@ def normal_false_alarm(
         alpha, n, baseline, allocation, years))
     out = np.full(n.shape, np.nan)
     ones = np.ones_like(n)
-    small = design.smallest_expected_count(n, b, ones, r, y) <= EXACT_UP_TO
+    small = (design.smallest_expected_count(n, b, ones, r, y) <= EXACT_UP_TO) & design.exact_offered(r)
     if not small.any():
         return out
     where = np.flatnonzero(small)
@@ -183,7 +183,7 @@ def normal_false_alarm(
         x0 = grid.other_counts[:, None, :]
         p = normal_p_values(design, x1, x0, n[at], b[at], r[at], y[at], sides, continuity)
         flag = (p <= _limit(alpha[where[idx]])[:, None, None]) & np.isfinite(grid.p_value)
-        mass = np.einsum("bi,bij,bj->b", grid.null_exposed, flag.astype(np.float64), grid.other)
+        mass = np.einsum("bij,bij->b", _exact.null_mass(grid), flag.astype(np.float64))
         out[where[idx]] = np.minimum(mass, 1.0)
     return out
 
@@ -256,7 +256,7 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     base = DecisionRule(d.name, test, setting.sides, int(n), float(alpha), None, _shown(alpha, None),
                         None, count_name, total_name, None, None, None)
     smallest = float(d.smallest_expected_count(st.n, st.baseline, np.array([effect]), st.allocation, st.years)[0])
-    if not exact and smallest > EXACT_UP_TO:
+    if not exact and (smallest > EXACT_UP_TO or not d.exact_offered(st.allocation).all()):
         return _with_statement(base)
     model = d.count_model(st.n, st.baseline, np.array([[effect]]), st.allocation, st.years)
     grid = _exact.build_grid(model, setting.sides)
@@ -266,7 +266,7 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     # an exact level below the floor is the test that never flags (p-values under 1e-20 read as 0)
     never = alpha <= 0 or (exact and alpha < _exact.ALPHA_FLOOR)
     flag = np.zeros(p.shape, dtype=bool) if never else p <= _limit(alpha)
-    false_alarm = float(min(1.0, grid.null_exposed[0] @ flag.astype(np.float64) @ grid.other[0]))
+    false_alarm = float(min(1.0, np.sum(_exact.null_mass(grid)[0] * flag)))
     low = float(p[flag].max()) if flag.any() else 0.0
     rest = p[~flag & np.isfinite(p) & (p > 0)]
     high = float(rest.min()) if rest.size else math.inf
@@ -292,11 +292,7 @@ def _replace(rule: DecisionRule, **changes: object) -> DecisionRule:
 
 
 def _names(d: StudyDesign) -> tuple[str, str | None]:
-    if d.allocation_name is None:
-        return "cases", None
-    if d.name == "case-control":
-        return "exposed cases", "exposed subjects (cases and controls)"
-    return "exposed cases", "cases (exposed and unexposed)"
+    return d.count_words
 
 
 def _one_group(st: _Study, expected: float) -> tuple[int | None, int | None]:
@@ -327,8 +323,13 @@ def _totals(grid: _exact.CountGrid) -> FloatArray:
     start = grid.exposed_counts[0, 0] + grid.other_counts[0, 0]
     lo, hi = math.inf, -math.inf
     tail = (1 - TABLE_MASS) / 2
-    for exposed in (grid.null_exposed[0], grid.alt_exposed[0, 0]):
-        cdf = np.cumsum(np.convolve(exposed, grid.other[0]))
+    if grid.alt_joint is None:
+        masses = [np.outer(grid.null_exposed[0], grid.other[0]), np.outer(grid.alt_exposed[0, 0], grid.other[0])]
+    else:
+        masses = [_exact.null_mass(grid)[0], grid.alt_joint.mass(slice(0, 1))[0, 0]]
+    diagonal = np.add.outer(np.arange(masses[0].shape[0]), np.arange(masses[0].shape[1])).ravel()
+    for mass in masses:
+        cdf = np.cumsum(np.bincount(diagonal, weights=mass.ravel())).astype(np.float64)
         cdf /= cdf[-1]
         lo = min(lo, start + int(np.searchsorted(cdf, tail)))
         hi = max(hi, start + int(np.searchsorted(cdf, 1 - tail)))

@@ -38,11 +38,15 @@ class TestChoice:
     requested: str
     exact: bool
     smallest_count: float
+    #: why the design offers no exact test here (empty where it does)
+    no_exact: str = ""
 
     @property
     def reason(self) -> str:
         """Why this test, in one clause that holds at the study's size."""
         smallest = self.smallest_count
+        if self.requested == "auto" and self.no_exact:
+            return f"auto: normal, because {self.no_exact}"
         if self.requested == "exact" and not self.exact:
             return (f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} ({smallest:.3g}): "
                     "the normal approximation was used, which agrees closely there")
@@ -67,7 +71,8 @@ def smallest_count(setting: Setting, n: ArrayLike, effect: ArrayLike) -> NDArray
 
 def uses_exact(setting: Setting, n: ArrayLike, effect: ArrayLike) -> NDArray[np.bool_]:
     """Where the study of size ``n`` (at the design effect ``effect``) runs the exact test."""
-    return choose_exact(setting.test, smallest_count(setting, n, effect))
+    offered = setting.design.exact_offered(setting.allocation)
+    return choose_exact(setting.test, smallest_count(setting, n, effect), offered)
 
 
 def choose_test(setting: Setting, n: float, effect: float) -> TestChoice:
@@ -83,8 +88,10 @@ def choose_test(setting: Setting, n: float, effect: float) -> TestChoice:
     (False, True)
     """
     smallest = float(smallest_count(setting, n, effect))
-    exact = bool(choose_exact(setting.test, np.asarray(smallest)))
-    return TestChoice(requested=setting.test, exact=exact, smallest_count=smallest)
+    offered = setting.design.exact_offered(setting.allocation)
+    exact = bool(choose_exact(setting.test, np.asarray(smallest), offered))
+    no_exact = "" if offered.all() else setting.design.no_exact_reason
+    return TestChoice(requested=setting.test, exact=exact, smallest_count=smallest, no_exact=no_exact)
 
 
 def first_normal_size(setting: Setting, effect: float, lo: int, hi: int) -> int:

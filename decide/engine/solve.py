@@ -186,7 +186,7 @@ def _exact_curve(setting: Setting, alpha: float, effect: float) -> Callable[[Flo
         b, r, y = (float(v) * full for v in (setting.baseline, setting.allocation, setting.years))
         pairs = _exact.count_pairs(d.count_model(flat, b, effect * full[:, None], r, y))
         # a one-group grid needs no conditional rows: about an eighth of the work per count
-        spent[0] += float(pairs.sum()) / (8.0 if d.allocation_name is None else 1.0)
+        spent[0] += float(pairs.sum()) / (8.0 if d.groups == 1 else 1.0)
         if spent[0] > MAX_SEARCH_PAIRS:
             raise InfeasibleError(
                 f"n_per_group: the exact size search would go through more than {MAX_SEARCH_PAIRS:,} count "
@@ -294,7 +294,7 @@ EVERY_SIZE = {"one-group": 200_000, "two-group": 200}
 
 
 def _every_size_limit(setting: Setting) -> int:
-    return EVERY_SIZE["one-group" if setting.design.allocation_name is None else "two-group"]
+    return EVERY_SIZE["one-group" if setting.design.groups == 1 else "two-group"]
 
 
 def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checked: int) -> tuple[int, int, int]:
@@ -307,10 +307,10 @@ def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checke
     return n_first, max(n_first, n_stable), checked
 
 
-def _reference_rate_sizes(
+def _poisson_test_sizes(
     setting: Setting, alpha: float, target: float, effect: float, cap: int
 ) -> tuple[int, int, int]:
-    """Exact one-sided sizes for the reference-rate design, segment by segment.
+    """Exact one-sided sizes for the Poisson test against an expected count, segment by segment.
 
     With ``u`` expected cases per subject, the critical count is ``c`` for
     ``E = n*u`` in ``(e_(c-1), e_c]`` where ``P(Poisson(e_c) >= c) = alpha``,
@@ -318,7 +318,10 @@ def _reference_rate_sizes(
     both follow from the regularized incomplete gamma function, so every
     segment is solved in closed form.
     """
-    u = float(setting.baseline * setting.years)
+    one = np.ones(1)
+    model = setting.design.count_model(one, setting.baseline * one, one, setting.allocation * one, setting.years * one)
+    assert model.reference_mean is not None
+    u = float(model.reference_mean[0])  # expected cases per subject under no effect
     c_max = 64
     while True:
         c = np.arange(1, c_max + 1, dtype=np.float64)
@@ -391,7 +394,8 @@ def solve(
     Parameters
     ----------
     design : str or StudyDesign
-        ``cohort-risk``, ``cohort-rate``, ``reference-rate`` or ``case-control``.
+        A design name (the keys of :data:`decide.designs.DESIGNS`) or a
+        configured design (:meth:`~decide.designs.StudyDesign.configure`).
     baseline : float
         Risk over follow-up, rate per person-year, reference rate per
         person-year, or exposure prevalence among controls, by design.
@@ -476,18 +480,21 @@ def _finish(
     nn = np.asarray(float(n))
     cells = d.cell_counts(nn, b, np.asarray(effect), r, y)
     smallest = float(res.smallest_expected_count)
+    no_exact = "" if d.exact_offered(r).all() else d.no_exact_reason
     if use_exact:
         test = "exact"
-        method = d.exact_method
+        method = d.exact_method + d.describe_settings()
     else:
         test = "normal-cc" if setting.continuity else "normal"
-        method = d.normal_method + (", continuity-corrected" if setting.continuity else "")
+        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if setting.continuity else "")
     sided = "one-sided (harm)" if setting.sides == 1 else "two-sided (equal tails)"
     return Solution(
         design=d.name,
         solved_for=solved_for,
         test=test,
-        test_reason=TestChoice(requested=setting.test, exact=use_exact, smallest_count=smallest).reason,
+        test_reason=TestChoice(
+            requested=setting.test, exact=use_exact, smallest_count=smallest, no_exact=no_exact
+        ).reason,
         method=f"{sided} {method}",
         sides=setting.sides,
         baseline=float(b),
@@ -533,8 +540,8 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
                 f"n_per_group: the normal test needs {n_normal:,} per group, more than the cap of {cap:,}"
             )
         return _finish(setting, "n_per_group", alpha, n_normal, effect, False, target)
-    if setting.design.name == "reference-rate" and setting.sides == 1:
-        first, stable, checked = _reference_rate_sizes(setting, alpha, target, effect, cap)
+    if setting.design.exact_test == "poisson" and setting.sides == 1:
+        first, stable, checked = _poisson_test_sizes(setting, alpha, target, effect, cap)
     else:
         first, stable, checked = _exact_size_scan(setting, alpha, target, effect, guess, cap)
     if first > cap:

@@ -51,7 +51,7 @@ def _setting_value(
     if not used:
         given = None if value is None else _checks.as_float_array(name, value)
         if given is not None and np.any(given != 1):
-            takes = (lambda x: x.allocation_name is not None) if name == "allocation" else (lambda x: x.uses_years)
+            takes = (lambda x: x.groups == 2) if name == "allocation" else (lambda x: x.uses_years)
             raise _not_applicable(d, name, why, takes, float(given[given != 1].flat[0]))
         return np.ones(())
     arr = _checks.positive(name, 1.0 if value is None else value)
@@ -78,8 +78,10 @@ def check_setting(
     d.check_baseline(b)
     # rates per person-year; probabilities already lie well inside these limits
     _checks.within("baseline", b, *_checks.BASELINE_RATE_RANGE)
-    alloc = _setting_value(d, "allocation", allocation, d.allocation_name is not None,
+    alloc = _setting_value(d, "allocation", allocation, d.groups == 2,
                            _checks.ALLOCATION_RANGE, "one group only")
+    if d.groups == 2:
+        d.check_allocation(alloc)
     yrs = _setting_value(d, "years", years, d.uses_years, _checks.YEARS_RANGE,
                          "it counts cases, not person-time")
     s = _checks.sides(sides)
@@ -88,6 +90,8 @@ def check_setting(
         raise DecideError(f"continuity must be true or false, but got {_checks.show(continuity)}", ("continuity",))
     if continuity and not d.binomial_groups:
         raise _not_applicable(d, "continuity", "a correction of two proportions", lambda x: x.binomial_groups, True)
+    if t == "exact" and not d.exact_offered(alloc).all():
+        raise DecideError(f"test: exact is not offered here: {d.no_exact_reason}", ("test",))
     return Setting(d, b, alloc, yrs, s, t, bool(continuity))
 
 
@@ -101,7 +105,7 @@ def check_effect(setting: Setting, effect: ArrayLike) -> FloatArray:
         i = np.flatnonzero(bad)[0]
         raise DecideError(
             f"effect must be below {lb.flat[i]:g} for baseline {bb.flat[i]:g} "
-            f"(the exposed risk must stay below 1), but got {eb.flat[i]:g}",
+            f"({setting.design.effect_limit_reason}), but got {eb.flat[i]:g}",
             ("effect", "baseline"),
         )
     return e

@@ -89,8 +89,8 @@ def solution_table(s: Solution) -> Group:
         row("size where power stays above target", nb.count(s.n_stable))
     row("subjects in all", nb.count(s.n_total))
     row(d.baseline_name, nb.number(s.baseline))
-    if d.allocation_name is not None:
-        row(d.allocation_name, nb.number(s.allocation))
+    if d.groups == 2:
+        row(str(d.allocation_name), nb.number(s.allocation))
     if d.uses_years:
         row("follow-up years per subject", nb.number(s.years))
     for name, value in s.expected_cases.items():

@@ -75,9 +75,10 @@ def scenario_inputs(
         ("cost of a false alarm", nb.money(c.false_alarm, cur)),
         ("study cost", f"{nb.money(c.per_subject, cur)} per subject + {nb.money(c.fixed, cur)} fixed"),
     ]
-    if d.allocation_name is not None:
-        rows.insert(2, (d.allocation_name, nb.number(problem.study.allocation)))
+    if d.groups == 2:
+        rows.insert(2, (str(d.allocation_name), nb.number(problem.study.allocation)))
     if d.uses_years:
         rows.insert(2, ("follow-up years per subject", nb.number(problem.study.years)))
+    rows[1:1] = [(f"design setting: {key}", nb.number(value)) for key, value in d.setting_values().items()]
     rows.append(("constraints", _limits(problem, cur, d.size_name)))
     return rows

@@ -161,7 +161,7 @@ def from_core_error(
     if prefix and message.startswith(prefix):
         message = message[len(prefix) :]
     name = err.params[0] if err.params else ""
-    key = f"study.{name}" if name in _STUDY_KEYS else name
+    key = f"study.{name}" if name in _STUDY_KEYS or name.startswith("design_settings.") else name
     if name and message.startswith(f"{name}: "):
         message = message[len(name) + 2 :]
     elif name and message.startswith(f"{name} "):

@@ -32,6 +32,7 @@ from pydantic.json_schema import GenerateJsonSchema, JsonSchemaValue
 from pydantic_core import core_schema
 
 from decide.decision.problem import Problem
+from decide.designs import DESIGNS
 from decide.errors import DecideError
 
 from ._messages import (
@@ -244,6 +245,11 @@ def scenario_json_schema() -> dict[str, Any]:
 def scenario_template() -> str:
     """A commented scenario file to start from; it loads as it is.
 
-    Its numbers are an invented example, and it says so.
+    Its numbers are an invented example, and it says so.  The designs it
+    lists are read from the registry.
     """
-    return (resources.files("decide.scenario") / "template.toml").read_text(encoding="utf-8")
+    text = (resources.files("decide.scenario") / "template.toml").read_text(encoding="utf-8")
+    designs = "".join(f"# {name:<22}{d.title}\n" for name, d in DESIGNS.items())
+    baselines = "".join(f"# {name:<22}{d.baseline_name}\n" for name, d in DESIGNS.items())
+    return text.replace("# {designs}\n", designs).replace("# {baselines}\n", baselines)
+

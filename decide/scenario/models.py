@@ -31,16 +31,26 @@ received; :mod:`decide.scenario._messages` turns it into the one-line message.
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal
+from typing import TYPE_CHECKING, Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 from pydantic_core import PydanticCustomError
 
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
+from decide.designs import DESIGNS, get_design
 
-DesignName = Literal["cohort-risk", "cohort-rate", "reference-rate", "case-control"]
+from .uncertainty import UncertaintyModel
+
+if TYPE_CHECKING:
+    DesignName = str
+else:  # the designs' names, read from the registry
+    DesignName = Literal[tuple(DESIGNS)]
 TestName = Literal["normal", "exact", "auto"]
+
+
+def _designs_where(test: Any) -> str:
+    return ", ".join(name for name, d in DESIGNS.items() if test(d))
 
 #: Marks "no value to show" in a rule error.
 NO_VALUE = "\x00no value"
@@ -62,31 +72,32 @@ class StudyModel(BaseModel):
     model_config = _config("[study]")
 
     design: DesignName = Field(
-        description=(
-            "The study design. cohort-risk: exposed and unexposed cohorts compared by the "
-            "risk of disease over follow-up (risk ratio). cohort-rate: exposed and unexposed "
-            "cohorts compared by incidence per person-year (rate ratio). reference-rate: one "
-            "exposed cohort against a known reference rate (standardised incidence ratio). "
-            "case-control: cases and controls compared by exposure (odds ratio)."
-        )
+        description="The study design. "
+        + " ".join(f"{name}: {d.title}." for name, d in DESIGNS.items())
     )
     baseline: Annotated[
         float,
         Field(
-            description=(
-                "The baseline, by design. cohort-risk: risk of disease over the whole follow-up "
-                "among the unexposed (a probability). cohort-rate: incidence rate per "
-                "person-year among the unexposed. reference-rate: reference incidence rate per "
-                "person-year. case-control: proportion exposed among controls (a probability)."
-            ),
+            description="The baseline, by design. "
+            + " ".join(f"{name}: {d.baseline_name}." for name, d in DESIGNS.items()),
         ),
     ]
     allocation: Annotated[
         float | None,
         Field(
-            description=(
-                "Unexposed subjects per exposed subject (cohort designs) or controls per case "
-                "(case-control). Default 1. Not for reference-rate, which has one group."
+            description="By design (default 1): "
+            + " ".join(f"{name}: {d.allocation_name}." for name, d in DESIGNS.items() if d.groups == 2)
+            + " Not for one-group designs ("
+            + _designs_where(lambda x: x.groups == 1)
+            + ").",
+        ),
+    ] = None
+    design_settings: Annotated[
+        dict[str, float] | None,
+        Field(
+            description="Settings of the design itself (default none). "
+            + " ".join(
+                f"{name}: {key}, {text}." for name, d in DESIGNS.items() for key, text in d.settings.items()
             ),
         ),
     ] = None
@@ -120,7 +131,7 @@ class StudyModel(BaseModel):
 
     def to_study(self) -> Study:
         return Study(
-            design=self.design,
+            design=get_design(self.design).configure(self.design_settings) if self.design_settings else self.design,
             baseline=self.baseline,
             allocation=1.0 if self.allocation is None else self.allocation,
             years=1.0 if self.years is None else self.years,
@@ -382,6 +393,16 @@ class ScenarioModel(BaseModel):
         default_factory=ConstraintsModel,
         description="Limits every policy must respect (all optional).",
     )
+    uncertainty: UncertaintyModel | None = Field(
+        default=None,
+        description="Distributions of uncertain inputs, for 'decide sweep --draws' (optional).",
+    )
+
+    @model_validator(mode="after")
+    def _uncertainty_fits(self) -> ScenarioModel:
+        if self.uncertainty is not None:
+            self.uncertainty.check_against(self.consequences.missed_hazard is None)
+        return self
 
     def to_problem(self) -> Problem:
         """The core decision problem (its constructors may raise DecideError)."""
