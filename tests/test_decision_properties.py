@@ -209,10 +209,11 @@ def test_optimize_matches_the_brute_force_minimum(problem: Problem) -> None:
         assert not dec.feasible
         return
     assert dec.feasible
-    # measured over these examples: |loss / brute force - 1| <= 1.1e-8, from the brute force
+    # measured over these examples: |loss / brute force - 1| <= 2.6e-7 (cohort-risk, normal test,
+    # n fixed at 5, p_harm 0.5, where the decision's loss is the lower one), from the brute force
     # integrating the prior with the optimiser's search rule while the decision reports the
-    # refined integral (at most 2e-11 where the two rules agree); allow about five times that
-    assert dec.expected_loss == pytest.approx(best, rel=5e-8)
+    # refined integral (at most 2e-11 where the two rules agree); allow about four times that
+    assert dec.expected_loss == pytest.approx(best, rel=1e-6)
 
 
 # --------------------------------------------------------------------------
