@@ -13,6 +13,9 @@ on with ``from decide.solve import ...``.)
 
 from __future__ import annotations
 
+from importlib.metadata import PackageNotFoundError
+from importlib.metadata import version as _installed_version
+
 from .decision.audit import Audit, audit
 from .decision.interpret import Interpretation, interpret
 from .decision.optimize import Comparison, Decision, compare, decide_policy, optimize
@@ -24,7 +27,11 @@ from .engine.power import PowerResult, power
 from .engine.solve import Solution, solve
 from .errors import ApproximationWarning, DecideError, InfeasibleError
 
-__version__ = "0.1.0"
+try:
+    #: The version, as installed (pyproject.toml is the one place it is written).
+    __version__ = _installed_version("decide")
+except PackageNotFoundError:  # a source tree that was never installed
+    __version__ = "0+unknown"
 
 __all__ = [
     "DESIGNS",

@@ -9,12 +9,14 @@ from __future__ import annotations
 import json
 import os
 import re
+import signal
 import sys
 import warnings
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
+from types import FrameType
 from typing import TYPE_CHECKING, Annotated, Any, NoReturn
 
 import typer
@@ -38,6 +40,9 @@ from .report.text import CAUTION, one_line
 from .scenario import (
     LoadedScenario,
     ScenarioError,
+    check_output_path,
+    example_names,
+    example_text,
     load_policies,
     load_scenario,
     policy_json_schema,
@@ -59,6 +64,7 @@ _OPTIONS = {
     "design": "--design",
     "continuity": "--continuity",
     "max_n_per_group": "--max-n-per-group",
+    "example": "--example",
     "vary": "--vary",
     "draws": "--draws",
     "studies": "--studies",
@@ -152,9 +158,20 @@ app = typer.Typer(
 )
 
 
+def _show_version(value: bool) -> None:
+    if value:
+        from . import __version__
+
+        sys.stdout.write(f"decide {__version__}\n")
+        raise typer.Exit()
+
+
 @app.callback()
 def _root(
     debug: Annotated[bool, typer.Option("--debug", help="Show tracebacks for errors.")] = False,
+    version: Annotated[
+        bool, typer.Option("--version", callback=_show_version, is_eager=True, help="Print the version and exit.")
+    ] = False,
 ) -> None:
     _DEBUG["on"] = debug
 
@@ -320,6 +337,18 @@ PolicyDirs = Annotated[
 ]
 
 
+def _check_output(command: str, output: Path | None, force: bool) -> None:
+    """Refuse an unusable --output in one line before any computation."""
+    if output is None:
+        return
+    try:
+        check_output_path(output, overwrite=force)
+    except DecideError as exc:
+        if _DEBUG["on"]:
+            raise
+        _fail(f"decide {command}: --output {exc}", 2)
+
+
 def _emit_text(text: str, output: Path | None, force: bool) -> None:
     if output is None:
         sys.stdout.write(text)
@@ -370,6 +399,7 @@ def optimize_command(
 ) -> None:
     """Find the alpha, beta and size that minimise expected loss for a scenario."""
     _check_document_flags("optimize", as_json, as_markdown, output)
+    _check_output("optimize", output, force)
     loaded = run_api("optimize", lambda: load_scenario(scenario))
     with busy("Finding the loss-optimal study...", enabled=not (as_json or as_markdown)):
         decision = run_api("optimize", lambda: _optimize(loaded.problem))
@@ -406,6 +436,7 @@ def compare_command(
         _fail("decide compare: choose one of --json, --csv and --markdown", 2)
     if output is not None and not (as_json or as_csv or as_markdown):
         _fail("decide compare: --output needs one of --json, --csv or --markdown", 2)
+    _check_output("compare", output, force)
     loaded = run_api("compare", lambda: load_scenario(scenario))
     known = run_api("compare", lambda: load_policies(policy_dir or ()))
     if policy:
@@ -467,6 +498,7 @@ def interpret_command(
         _fail("decide interpret: choose one of --json and --markdown", 2)
     if output is not None and not (as_json or as_markdown):
         _fail("decide interpret: --output needs --json or --markdown", 2)
+    _check_output("interpret", output, force)
     loaded = run_api("interpret", lambda: load_scenario(scenario))
     counts = run_api("interpret", lambda: load_observed(data, loaded.problem))
     chosen = _chosen_policies("interpret", policy, policy_dir)
@@ -519,6 +551,7 @@ def audit_command(
 ) -> None:
     """Reveal the value judgments a protocol's alpha and size imply, and judge it by its own costs."""
     _check_document_flags("audit", as_json, as_markdown, output)
+    _check_output("audit", output, force)
     if (effect_low is None) != (effect_high is None):
         _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
     if (effect_low is not None) and missed_hazard is None:
@@ -575,14 +608,52 @@ def schema_command(
     sys.stdout.write(json.dumps(schema, indent=2) + "\n")  # a JSON Schema keeps its own keys ($defs, ...)
 
 
+def _example_help() -> str:
+    try:
+        names = ", ".join(example_names())
+    except DecideError:
+        names = "(none found)"
+    return f"Start from a bundled invented example scenario: {names}."
+
+
 @app.command("new")
 def new_command(
     path: Annotated[Path, typer.Argument(help="Where to write the scenario template.")],
+    example: Annotated[str | None, typer.Option("--example", help=_example_help(), show_default=False)] = None,
     force: Annotated[bool, typer.Option("--force", help="Overwrite an existing file.")] = False,
 ) -> None:
-    """Write a commented scenario template to start from."""
-    run_api("new", lambda: write_text_atomic(path, scenario_template(), overwrite=force))
-    sys.stderr.write(f"wrote {path}; edit it, then run: decide compare {path}\n")
+    """Write a commented scenario template (or a bundled example) to start from."""
+    text = scenario_template() if example is None else run_api("new", lambda: example_text(example))
+    run_api("new", lambda: write_text_atomic(path, text, overwrite=force))
+    shown = one_line(str(path))
+    sys.stderr.write(f"wrote {shown}; edit it, then run: decide compare {shown}\n")
+
+
+class _Interrupted(BaseException):
+    """SIGINT or SIGTERM arrived; not an ``Exception``, so nothing on the way catches it."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _interrupt(signum: int, frame: FrameType | None) -> None:
+    raise _Interrupted(signum)
+
+
+@contextmanager
+def _signals_abort() -> Iterator[None]:
+    """Turn SIGINT and SIGTERM into ``_Interrupted``; signals ignored at start stay ignored."""
+    usual = {signal.SIGINT: signal.default_int_handler, signal.SIGTERM: signal.SIG_DFL}
+    previous = {}
+    for signum, default in usual.items():
+        if signal.getsignal(signum) is default:
+            previous[signum] = signal.signal(signum, _interrupt)
+    try:
+        yield
+    finally:
+        for signum, old in previous.items():
+            signal.signal(signum, old)
 
 
 # --------------------------------------------------------------------------
@@ -811,5 +882,15 @@ def report_command(
 
 
 def main() -> None:
-    """Console-script entry point."""
-    app()
+    """Console-script entry point.
+
+    Ctrl-C (SIGINT) and SIGTERM stop the command with "decide: aborted" and
+    exit status 128 + the signal's number (130, 143); a file being written is
+    left as it was (see :func:`decide.scenario.write_text_atomic`).
+    """
+    try:
+        with _signals_abort():
+            app()
+    except (_Interrupted, KeyboardInterrupt) as exc:
+        signum = exc.signum if isinstance(exc, _Interrupted) else signal.SIGINT
+        _fail("decide: aborted", 128 + signum)

@@ -60,9 +60,11 @@ def test_bundled_loss_optimal_is_the_engine_default() -> None:
     assert load_policies()["loss-optimal"] == LOSS_OPTIMAL
 
 
-def test_builtin_dir_in_a_checkout_is_the_top_level_folder() -> None:
-    assert not (REPO / "decide" / "_policies").exists()
-    assert builtin_policy_dir() == REPO / "policies"
+def test_bundled_policies_are_the_checkouts_policy_files() -> None:
+    # Installed (decide/_policies) or in a checkout (policies/), the files are the checkout's.
+    assert not (REPO / "decide" / "_policies").exists()  # the checkout keeps them at the top level only
+    found = {p.name: p.read_bytes() for p in builtin_policy_dir().glob("*.toml")}
+    assert found == {p.name: p.read_bytes() for p in (REPO / "policies").glob("*.toml")}
 
 
 def test_installed_copy_is_preferred_then_the_checkout(tmp_path: Path) -> None:

@@ -9,8 +9,11 @@ Every problem with a file raises :class:`ScenarioError` (a
 from __future__ import annotations
 
 from ._messages import PolicyFileError, ScenarioError
+from .bundled import bundled_dir, example_names, example_path, example_text
 from .files import (
+    MAX_FILE_BYTES,
     LoadedScenario,
+    check_output_path,
     load_scenario,
     parse_scenario,
     scenario_json_schema,
@@ -29,12 +32,18 @@ from .policy_files import (
 
 __all__ = [
     "BUILTIN_ORDER",
+    "MAX_FILE_BYTES",
     "LoadedScenario",
     "PolicyFileError",
     "PolicyFileModel",
     "ScenarioError",
     "ScenarioModel",
     "builtin_policy_dir",
+    "bundled_dir",
+    "check_output_path",
+    "example_names",
+    "example_path",
+    "example_text",
     "load_policies",
     "load_policy_file",
     "load_scenario",

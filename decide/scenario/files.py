@@ -8,6 +8,11 @@ possible) raises :class:`ScenarioError` with a one-line message::
 
     scenario.toml: consequences.false_alarm: must be a finite number not below 0 (got -3)
 
+Only regular files of at most :data:`MAX_FILE_BYTES` are read (a named pipe
+or a device is refused before reading); a UTF-8 byte-order mark is allowed.
+:func:`write_text_atomic` (in :mod:`decide.scenario._writing`) writes files
+safely; :func:`check_output_path` checks a path before a long computation.
+
 :func:`scenario_template` gives a commented template that loads as it is;
 :func:`scenario_json_schema` the JSON Schema of the format.
 """
@@ -15,7 +20,7 @@ possible) raises :class:`ScenarioError` with a one-line message::
 from __future__ import annotations
 
 import os
-import secrets
+import stat
 import tomllib
 from dataclasses import dataclass
 from importlib import resources
@@ -36,7 +41,32 @@ from ._messages import (
     from_toml_error,
     from_validation_error,
 )
+from ._writing import check_output_path, write_text_atomic
 from .models import ScenarioModel
+
+__all__ = [
+    "MAX_FILE_BYTES",
+    "LoadedScenario",
+    "check_output_path",
+    "load_scenario",
+    "parse_scenario",
+    "parse_toml",
+    "read_small_file",
+    "read_toml",
+    "scenario_json_schema",
+    "scenario_template",
+    "write_text_atomic",
+]
+
+#: The most bytes read from a scenario or policy file (they are a few kilobytes).
+MAX_FILE_BYTES = 1_000_000
+#: What a path that is not a regular file is, for messages.
+_KINDS = (
+    (stat.S_ISFIFO, "a named pipe"),
+    (stat.S_ISCHR, "a character device"),
+    (stat.S_ISBLK, "a block device"),
+    (stat.S_ISSOCK, "a socket"),
+)
 
 #: The JSON Schema dialect :func:`scenario_json_schema` writes.
 JSON_SCHEMA_DIALECT = "https://json-schema.org/draft/2020-12/schema"
@@ -66,19 +96,61 @@ class LoadedScenario:
     model: ScenarioModel
 
 
-def read_toml(
-    path: str | os.PathLike[str], cls: type[ScenarioError] = ScenarioError
-) -> dict[str, Any]:
-    """Parse a TOML file, raising ``cls`` with a one-line message on failure."""
-    file = os.fspath(path)
+def _not_regular(mode: int) -> str:
+    kind = next((name for test, name in _KINDS if test(mode)), "not a regular file")
+    return f"is {kind}, not a regular file; give the path of a file"
+
+
+def _too_large() -> str:
+    return f"is larger than {MAX_FILE_BYTES:,} bytes, the most read from a scenario or policy file"
+
+
+def _read_at_most(fd: int, limit: int) -> bytes:
+    parts: list[bytes] = []
+    while limit > 0 and (part := os.read(fd, min(limit, 1 << 16))):
+        parts.append(part)
+        limit -= len(part)
+    return b"".join(parts)
+
+
+def read_small_file(file: str, cls: type[ScenarioError] = ScenarioError) -> bytes:
+    """The bytes of a regular file of at most :data:`MAX_FILE_BYTES`.
+
+    Named pipes, devices and sockets are refused before anything is read (a
+    pipe is opened without waiting for a writer), and no more than
+    ``MAX_FILE_BYTES + 1`` bytes are ever read.
+    """
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
     try:
-        data = Path(file).read_bytes()
+        fd = os.open(file, flags | getattr(os, "O_CLOEXEC", 0))
     except FileNotFoundError:
         raise cls(file, "", "no such file") from None
     except IsADirectoryError:
         raise cls(file, "", "is a folder, not a file") from None
     except OSError as e:
         raise cls(file, "", f"cannot be read: {e.strerror or e}") from None
+    try:
+        info = os.fstat(fd)
+        if stat.S_ISDIR(info.st_mode):
+            raise cls(file, "", "is a folder, not a file")
+        if not stat.S_ISREG(info.st_mode):
+            raise cls(file, "", _not_regular(info.st_mode))
+        if info.st_size > MAX_FILE_BYTES:
+            raise cls(file, "", _too_large())
+        data = _read_at_most(fd, MAX_FILE_BYTES + 1)
+    except OSError as e:
+        raise cls(file, "", f"cannot be read: {e.strerror or e}") from None
+    finally:
+        os.close(fd)
+    if len(data) > MAX_FILE_BYTES:
+        raise cls(file, "", _too_large())
+    return data
+
+
+def read_toml(path: str | os.PathLike[str], cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
+    """Parse a TOML file, raising ``cls`` with a one-line message on failure."""
+    file = os.fspath(path)
+    data = read_small_file(file, cls)
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as e:
@@ -87,9 +159,12 @@ def read_toml(
 
 
 def parse_toml(text: str, file: str, cls: type[ScenarioError] = ScenarioError) -> dict[str, Any]:
-    """Parse TOML text; whatever is wrong with it becomes one line naming ``file``."""
+    """Parse TOML text; whatever is wrong with it becomes one line naming ``file``.
+
+    A leading byte-order mark is allowed (some editors write one).
+    """
     try:
-        return tomllib.loads(text)
+        return tomllib.loads(text.removeprefix("\ufeff"))
     except tomllib.TOMLDecodeError as e:
         raise from_toml_error(file, e, cls) from None
     except RecursionError:
@@ -178,34 +253,3 @@ def scenario_template() -> str:
     baselines = "".join(f"# {name:<22}{d.baseline_name}\n" for name, d in DESIGNS.items())
     return text.replace("# {designs}\n", designs).replace("# {baselines}\n", baselines)
 
-
-def write_text_atomic(path: str | os.PathLike[str], text: str, overwrite: bool = False) -> Path:
-    """Write ``text`` to ``path`` so that readers see the old file or the new one.
-
-    The text goes to a temporary file in the same folder, which then replaces
-    ``path`` in one step (``os.replace``).  An existing file is refused unless
-    ``overwrite`` is true.
-
-    Raises
-    ------
-    DecideError
-        If the file exists and ``overwrite`` is false, or it cannot be written.
-    """
-    target = Path(path)
-    if not overwrite and target.exists():
-        raise DecideError(f"{target}: already exists; not overwriting it", (str(target),))
-    temp = target.with_name(f".{target.name}.{secrets.token_hex(6)}.tmp")
-    try:
-        # 0o666 less the umask, as for any new file (a temp file would get 0o600).
-        fd = os.open(temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(temp, target)
-    except OSError as e:
-        temp.unlink(missing_ok=True)
-        raise DecideError(
-            f"{target}: cannot be written: {e.strerror or e}", (str(target),)
-        ) from None
-    return target

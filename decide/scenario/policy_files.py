@@ -29,7 +29,6 @@ from __future__ import annotations
 import os
 import re
 from collections.abc import Iterable
-from importlib import resources
 from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Annotated, Any
@@ -40,6 +39,7 @@ from decide.decision.policies import AlphaRule, Policy, SizeRule
 from decide.errors import DecideError
 
 from ._messages import PolicyFileError, from_core_error
+from .bundled import bundled_dir, first_bundled_dir
 from .files import read_toml, toml_json_schema, validate_model
 
 #: Display order of the bundled policies: conventional standards first, then
@@ -173,13 +173,7 @@ def load_policy_file(path: str | os.PathLike[str]) -> Policy:
 
 def _first_policy_dir(packaged: Traversable, checkout: Path) -> Path:
     """The installed copy if there is one, else the source checkout's folder."""
-    if isinstance(packaged, Path) and packaged.is_dir():
-        return packaged
-    if checkout.is_dir():
-        return checkout
-    raise DecideError(
-        f"the bundled policies are missing: looked in {packaged} and {checkout}", ("policies",)
-    )
+    return first_bundled_dir(packaged, checkout, "policies")
 
 
 def builtin_policy_dir() -> Path:
@@ -188,10 +182,7 @@ def builtin_policy_dir() -> Path:
     A wheel installs them as ``decide/_policies``; a source checkout or an
     editable install keeps them in ``policies/`` beside the ``decide`` package.
     """
-    return _first_policy_dir(
-        resources.files("decide") / "_policies",
-        Path(__file__).resolve().parents[2] / "policies",
-    )
+    return bundled_dir("policies")
 
 
 def _policy_files(folder: Path) -> list[Path]:
