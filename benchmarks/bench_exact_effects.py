@@ -58,8 +58,14 @@ def shared(design: str, n: int, baseline: float, allocation: float, years: float
 
 
 def per_effect_grids(
-    d: StudyDesign, alpha: FloatArray, n: FloatArray, effect: FloatArray, baseline: FloatArray,
-    allocation: FloatArray, years: FloatArray, sides: int,
+    d: StudyDesign,
+    alpha: FloatArray,
+    n: FloatArray,
+    effect: FloatArray,
+    baseline: FloatArray,
+    allocation: FloatArray,
+    years: FloatArray,
+    sides: int,
 ) -> FloatArray:
     """The replaced algorithm, kept verbatim but for names: the effect is part of the grid key.
 
@@ -115,8 +121,9 @@ def main() -> None:
     for design, n, baseline, allocation, years in POINTS:
         d = DESIGNS[design]
         # the point is valid input for the public API (so the benchmark times real cases)
-        check_setting(d, baseline, allocation if d.allocation_name else None, years if d.uses_years else None, 1,
-                      "exact", False)
+        check_setting(
+            d, baseline, allocation if d.allocation_name else None, years if d.uses_years else None, 1, "exact", False
+        )
         new, old = shared(design, n, baseline, allocation, years), per_effect(design, n, baseline, allocation, years)
         gap = float(np.max(np.abs(new() - old())))
         t_new = median_seconds(new, REPEATS)
@@ -129,8 +136,10 @@ def main() -> None:
     for name, t_new, t_old, gap in rows:
         times = f"{1e3 * t_new:>9.1f} ms  {1e3 * t_old:>9.1f} ms"
         print(f"{name.ljust(width)}  {times}  {t_old / t_new:>6.0f}x  {gap:>10.1e}")
-    print(f"(shared: median of {REPEATS} runs; per effect: median of 3; target: ratio >= {TARGET:g}x; "
-          "differences come from the count tails left out, below 1e-12)")
+    print(
+        f"(shared: median of {REPEATS} runs; per effect: median of 3; target: ratio >= {TARGET:g}x; "
+        "differences come from the count tails left out, below 1e-12)"
+    )
 
 
 # --------------------------------------------------------------------------

@@ -148,12 +148,14 @@ def main() -> None:
     for design in ("cohort-risk", "cohort-rate", "case-control"):
         run = exact_point(design)
         value = run()
-        rows.append((
-            f"exact power, {design}, n={EXACT_N:,}, baseline {EXACT_BASELINE:g}, "
-            f"effect {EXACT_EFFECT:g} (power {value:.4f})",
-            f"{median_ms(run):.1f} ms",
-            "per point",
-        ))
+        rows.append(
+            (
+                f"exact power, {design}, n={EXACT_N:,}, baseline {EXACT_BASELINE:g}, "
+                f"effect {EXACT_EFFECT:g} (power {value:.4f})",
+                f"{median_ms(run):.1f} ms",
+                "per point",
+            )
+        )
     assert np.isfinite(sizes).all()
     width = max(len(r[0]) for r in rows)
     print(f"{'workload'.ljust(width)}  {'time':>10}  {'per item':>10}")

@@ -19,6 +19,7 @@ from __future__ import annotations
 import time
 import warnings
 from collections.abc import Callable
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -35,26 +36,41 @@ def _seconds(run: Callable[[], Any]) -> float:
 
 def _loop(inputs: dict[str, np.ndarray]) -> None:
     for i in range(inputs["baseline"].size):
-        solve("cohort-risk", **{k: float(v[i]) for k, v in inputs.items()})
+        solve("cohort-risk", **{k: float(v[i]) for k, v in inputs.items()})  # type: ignore[arg-type]
 
 
 def main() -> None:
     rng = np.random.default_rng(7)
     k = 300
-    large = {"baseline": np.exp(rng.uniform(np.log(0.1), np.log(0.3), k)), "effect": rng.uniform(1.02, 1.06, k),
-             "alpha": np.full(k, 0.05), "power": rng.uniform(0.6, 0.95, k)}
-    mid = {"baseline": np.exp(rng.uniform(np.log(0.01), np.log(0.3), k)), "effect": rng.uniform(1.2, 2.0, k),
-           "alpha": np.full(k, 0.05), "power": rng.uniform(0.6, 0.95, k)}
-    rare = {"baseline": np.full(k, 8e-4), "effect": rng.choice(np.linspace(2.5, 4.0, 8), k),
-            "alpha": np.full(k, 0.05), "power": rng.choice([0.7, 0.75, 0.8, 0.85, 0.9], k)}
-    workloads = (("300 large normal-test studies", large), ("300 mid-sized normal-test studies", mid),
-                 ("300 exact, 40 distinct studies", rare))
+    large = {
+        "baseline": np.exp(rng.uniform(np.log(0.1), np.log(0.3), k)),
+        "effect": rng.uniform(1.02, 1.06, k),
+        "alpha": np.full(k, 0.05),
+        "power": rng.uniform(0.6, 0.95, k),
+    }
+    mid = {
+        "baseline": np.exp(rng.uniform(np.log(0.01), np.log(0.3), k)),
+        "effect": rng.uniform(1.2, 2.0, k),
+        "alpha": np.full(k, 0.05),
+        "power": rng.uniform(0.6, 0.95, k),
+    }
+    rare = {
+        "baseline": np.full(k, 8e-4),
+        "effect": rng.choice(np.linspace(2.5, 4.0, 8), k),
+        "alpha": np.full(k, 0.05),
+        "power": rng.choice([0.7, 0.75, 0.8, 0.85, 0.9], k),
+    }
+    workloads = (
+        ("300 large normal-test studies", large),
+        ("300 mid-sized normal-test studies", mid),
+        ("300 exact, 40 distinct studies", rare),
+    )
     print(f"{'workload':<40} {'array (s)':>10} {'loop (s)':>10} {'ratio':>8}")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ApproximationWarning)
         for name, inputs in workloads:
-            array = _seconds(lambda inputs=inputs: solve("cohort-risk", **inputs))
-            loop = _seconds(lambda inputs=inputs: _loop(inputs))
+            array = _seconds(partial(solve, "cohort-risk", **inputs))  # type: ignore[arg-type]
+            loop = _seconds(partial(_loop, inputs))
             print(f"{name:<40} {array:>10.3f} {loop:>10.3f} {loop / array:>8.1f}")
 
 

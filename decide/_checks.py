@@ -81,9 +81,7 @@ def as_float_array(name: str, value: ArrayLike) -> FloatArray:
             raise TypeError
         arr = np.asarray(raw, dtype=np.float64)
     except OverflowError:
-        raise DecideError(
-            f"{name} must be a number below 1e308, but got {show(value)}", (name,)
-        ) from None
+        raise DecideError(f"{name} must be a number below 1e308, but got {show(value)}", (name,)) from None
     except (TypeError, ValueError):
         raise DecideError(f"{name} must be a number, but got {show(value)}", (name,)) from None
     if np.isnan(arr).any():
@@ -95,9 +93,7 @@ def scalar(name: str, value: Any) -> float:
     """A single number (not an array)."""
     arr = as_float_array(name, value)
     if arr.ndim:
-        raise DecideError(
-            f"{name} must be a single number, but got an array of shape {arr.shape}", (name,)
-        )
+        raise DecideError(f"{name} must be a single number, but got an array of shape {arr.shape}", (name,))
     return float(arr)
 
 
@@ -106,9 +102,7 @@ def open_unit(name: str, value: ArrayLike) -> FloatArray:
     arr = as_float_array(name, value)
     bad = (arr <= 0) | (arr >= 1)
     if bad.any():
-        raise DecideError(
-            f"{name} must be strictly between 0 and 1, but got {_first_bad(arr, bad)}", (name,)
-        )
+        raise DecideError(f"{name} must be strictly between 0 and 1, but got {_first_bad(arr, bad)}", (name,))
     return arr
 
 
@@ -134,9 +128,7 @@ def positive(name: str, value: ArrayLike) -> FloatArray:
     arr = as_float_array(name, value)
     bad = ~np.isfinite(arr) | (arr <= 0)
     if bad.any():
-        raise DecideError(
-            f"{name} must be a finite number above 0, but got {_first_bad(arr, bad)}", (name,)
-        )
+        raise DecideError(f"{name} must be a finite number above 0, but got {_first_bad(arr, bad)}", (name,))
     return arr
 
 
@@ -145,9 +137,7 @@ def non_negative(name: str, value: ArrayLike) -> FloatArray:
     arr = as_float_array(name, value)
     bad = ~np.isfinite(arr) | (arr < 0)
     if bad.any():
-        raise DecideError(
-            f"{name} must be a finite number not below 0, but got {_first_bad(arr, bad)}", (name,)
-        )
+        raise DecideError(f"{name} must be a finite number not below 0, but got {_first_bad(arr, bad)}", (name,))
     return arr
 
 
@@ -156,8 +146,7 @@ def within(name: str, arr: FloatArray, low: float, high: float) -> FloatArray:
     bad = (arr < low) | (arr > high)
     if bad.any():
         raise DecideError(
-            f"{name} must be between {low:g} and {high:g} (the range decide works in), "
-            f"but got {_first_bad(arr, bad)}",
+            f"{name} must be between {low:g} and {high:g} (the range decide works in), but got {_first_bad(arr, bad)}",
             (name,),
         )
     return arr
@@ -180,16 +169,13 @@ def whole_at_least_one(name: str, value: ArrayLike) -> FloatArray:
     """A whole number of subjects from 1 to :data:`LARGEST_SIZE` (returned as floats)."""
     if isinstance(value, numbers.Integral) and not isinstance(value, bool) and int(value) > LARGEST_SIZE:
         raise DecideError(
-            f"{name} must be at most {LARGEST_SIZE:,} (the largest group decide considers), "
-            f"but got {show(value)}",
+            f"{name} must be at most {LARGEST_SIZE:,} (the largest group decide considers), but got {show(value)}",
             (name,),
         )
     arr = as_float_array(name, value)
     bad = ~np.isfinite(arr) | (arr < 1) | (arr != np.floor(arr))
     if bad.any():
-        raise DecideError(
-            f"{name} must be a whole number not less than 1, but got {_first_bad(arr, bad)}", (name,)
-        )
+        raise DecideError(f"{name} must be a whole number not less than 1, but got {_first_bad(arr, bad)}", (name,))
     return at_most(name, arr, LARGEST_SIZE, "the largest group decide considers")
 
 

@@ -7,7 +7,6 @@ Exit status: 0 done; 1 a computation with no answer within the caps;
 from __future__ import annotations
 
 import json
-import os
 import re
 import signal
 import sys
@@ -306,6 +305,7 @@ def solve_command(
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
 ) -> None:
     """Solve for whichever of alpha, power, size or effect is left out."""
+
     def call() -> Any:
         return _solve(
             _design(design, design_setting),
@@ -405,8 +405,11 @@ def optimize_command(
         decision = run_api("optimize", lambda: _optimize(loaded.problem))
     currency = loaded.currency or ""
     if as_json or as_markdown:
-        text = (json_text({"scenario": loaded.title, **decision_record(decision, currency)}) if as_json
-                else tables.decision_markdown(decision, loaded.title, _inputs(loaded), currency))
+        text = (
+            json_text({"scenario": loaded.title, **decision_record(decision, currency)})
+            if as_json
+            else tables.decision_markdown(decision, loaded.title, _inputs(loaded), currency)
+        )
         run_api("optimize", lambda: _emit_text(text, output, force))
     else:
         con = render.make_console()
@@ -555,8 +558,11 @@ def audit_command(
     if (effect_low is None) != (effect_high is None):
         _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
     if (effect_low is not None) and missed_hazard is None:
-        _fail("decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
-              "(--missed-hazard and --false-alarm)", 2)
+        _fail(
+            "decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
+            "(--missed-hazard and --false-alarm)",
+            2,
+        )
     prior = None
     if effect_low is not None and effect_high is not None:
         low, high = effect_low, effect_high
@@ -564,10 +570,22 @@ def audit_command(
 
     def call() -> Any:
         return _audit(
-            _design(design, design_setting), baseline=baseline, alpha=alpha, effect=effect, p_harm=p_harm,
-            per_subject=per_subject, power=power, n_per_group=n_per_group, allocation=allocation,
-            years=years, sides=sides, test=test.value, missed_hazard=missed_hazard,
-            false_alarm=false_alarm, fixed=fixed_cost, prior=prior,
+            _design(design, design_setting),
+            baseline=baseline,
+            alpha=alpha,
+            effect=effect,
+            p_harm=p_harm,
+            per_subject=per_subject,
+            power=power,
+            n_per_group=n_per_group,
+            allocation=allocation,
+            years=years,
+            sides=sides,
+            test=test.value,
+            missed_hazard=missed_hazard,
+            false_alarm=false_alarm,
+            fixed=fixed_cost,
+            prior=prior,
         )
 
     with busy("Auditing the protocol...", enabled=not (as_json or as_markdown)):
@@ -744,8 +762,9 @@ def sweep_command(
     problem = loaded.problem
     model_unc = loaded.model.uncertainty
     dists = model_unc.to_inputs() if model_unc is not None else {}
-    ranges = {n: run_api("sweep", lambda n=n, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
-              for n, lo, hi in spans}
+    ranges = {
+        n: run_api("sweep", lambda n=n, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi)) for n, lo, hi in spans
+    }
     run_api("sweep", lambda: _unc.check_uncertainty(problem, dists))
     unit = loaded.currency or ""
     quiet = as_json or as_csv
@@ -817,35 +836,16 @@ def simulate_command(
     unit = loaded.currency or ""
     _emit(result, as_json, as_csv, _show.simulation_csv, lambda: _show.simulation_table(result, unit))
     if result.flagged:
-        sys.stderr.write("decide simulate: the simulation differs from the analytic values by more than "
-                         "4 standard errors (see the table)\n")
-
-
-def _check_output(path: Path, overwrite: bool) -> None:
-    """Refuse an output path that cannot be written, before any computation."""
-    from .scenario import files
-
-    check = getattr(files, "check_output_path", None)
-    if check is not None:
-        check(path, overwrite)
-        return
-    folder = path.parent
-    if path.is_dir():
-        raise DecideError(f"{path}: cannot be written: is a folder", (str(path),))
-    if not folder.is_dir():
-        raise DecideError(f"{path}: cannot be written: no such folder {str(folder)!r}", (str(path),))
-    if not os.access(folder, os.W_OK | os.X_OK):
-        raise DecideError(f"{path}: cannot be written: permission denied", (str(path),))
-    if path.exists() and not overwrite:
-        raise DecideError(f"{path}: already exists; not overwriting it (use --force)", (str(path),))
+        sys.stderr.write(
+            "decide simulate: the simulation differs from the analytic values by more than "
+            "4 standard errors (see the table)\n"
+        )
 
 
 @app.command("report")
 def report_command(
     scenario: ScenarioPath,
-    output: Annotated[
-        Path, typer.Option("--output", "-o", help="Report file: FILE.html (self-contained) or FILE.md.")
-    ],
+    output: Annotated[Path, typer.Option("--output", "-o", help="Report file: FILE.html (self-contained) or FILE.md.")],
     policy: Annotated[
         list[str] | None, typer.Option("--policy", help="Policy to include (repeatable; default all).")
     ] = None,
@@ -859,7 +859,7 @@ def report_command(
     """Write a report a board can read: question, inputs and sources, recommendation, figures, cautions."""
     if output.suffix.lower() not in (".html", ".htm", ".md"):
         _fail(f"decide report: --output must end in .html or .md, but got {str(output)!r}", 2)
-    run_api("report", lambda: _check_output(output, force))
+    _check_output("report", output, force)
     loaded = run_api("report", lambda: load_scenario(scenario))
     chosen = _chosen_policies("report", policy, policy_dir)
     used = _seed(seed)

@@ -45,9 +45,21 @@ def _critical(expected: float, alpha: float) -> int:
 
 
 def _protocol(prior: EffectPrior | None = None) -> Audit:
-    return audit("reference-rate", baseline=RATE, alpha=ALPHA, effect=EFFECT, p_harm=P, per_subject=PER,
-                 n_per_group=N, years=YEARS, test="exact", missed_hazard=M, false_alarm=F, fixed=FIXED,
-                 prior=prior)
+    return audit(
+        "reference-rate",
+        baseline=RATE,
+        alpha=ALPHA,
+        effect=EFFECT,
+        p_harm=P,
+        per_subject=PER,
+        n_per_group=N,
+        years=YEARS,
+        test="exact",
+        missed_hazard=M,
+        false_alarm=F,
+        fixed=FIXED,
+        prior=prior,
+    )
 
 
 def test_point_prior_loss_matches_the_closed_form() -> None:
@@ -80,7 +92,12 @@ def test_lognormal_prior_loss_matches_quadrature_and_is_echoed_as_entered() -> N
     u0 = math.log(1 / prior.median) / prior.log_sd
     miss, _ = integrate.quad(
         lambda u: stats.norm.pdf(u) * stats.poisson.cdf(c - 1, prior.median * math.exp(prior.log_sd * u) * e),
-        u0, 12, epsabs=1e-13, epsrel=1e-11, limit=200)
+        u0,
+        12,
+        epsabs=1e-13,
+        epsrel=1e-11,
+        limit=200,
+    )
     miss /= stats.norm.sf(u0)
     want = P * M * miss + (1 - P) * F * stats.poisson.sf(c - 1, e) + PER * N + FIXED
     assert a.losses is not None
@@ -93,32 +110,67 @@ def test_regret_is_measured_against_a_scan_of_the_closed_form() -> None:
     assert a.losses.optimal_n_per_group is not None and a.losses.optimal_expected_loss is not None
     assert a.losses.regret == pytest.approx(a.losses.expected_loss - a.losses.optimal_expected_loss, rel=1e-12)
     # the closed-form loss of the best critical count at every size of a wide grid
-    sizes = np.unique(np.concatenate([np.geomspace(100, 200_000, 400).round(),
-                                      np.arange(a.losses.optimal_n_per_group - 30, a.losses.optimal_n_per_group + 31)]))
+    sizes = np.unique(
+        np.concatenate(
+            [
+                np.geomspace(100, 200_000, 400).round(),
+                np.arange(a.losses.optimal_n_per_group - 30, a.losses.optimal_n_per_group + 31),
+            ]
+        )
+    )
     counts = np.arange(0, 200)[:, None]
     e = RATE * YEARS * sizes[None, :]
-    losses = (P * M * stats.poisson.cdf(counts - 1, EFFECT * e) + (1 - P) * F * stats.poisson.sf(counts - 1, e)
-              + PER * sizes + FIXED)
+    losses = (
+        P * M * stats.poisson.cdf(counts - 1, EFFECT * e)
+        + (1 - P) * F * stats.poisson.sf(counts - 1, e)
+        + PER * sizes
+        + FIXED
+    )
     best_scan = float(losses.min())
     assert a.losses.optimal_expected_loss <= best_scan * (1 + 1e-9)
     # and the reported optimum is a real design: its own closed-form loss
     n_opt = a.losses.optimal_n_per_group
     e_opt = RATE * YEARS * n_opt
-    assert a.losses.optimal_expected_loss == pytest.approx(float(
-        (P * M * stats.poisson.cdf(counts - 1, EFFECT * e_opt) + (1 - P) * F * stats.poisson.sf(counts - 1, e_opt)
-         ).min() + PER * n_opt + FIXED), rel=1e-9)
+    assert a.losses.optimal_expected_loss == pytest.approx(
+        float(
+            (
+                P * M * stats.poisson.cdf(counts - 1, EFFECT * e_opt)
+                + (1 - P) * F * stats.poisson.sf(counts - 1, e_opt)
+            ).min()
+            + PER * n_opt
+            + FIXED
+        ),
+        rel=1e-9,
+    )
     assert a.losses.regret >= 0
 
 
 def test_costs_come_in_pairs() -> None:
     with pytest.raises(DecideError, match="missed_hazard and false_alarm"):
-        audit("reference-rate", baseline=RATE, alpha=ALPHA, effect=EFFECT, p_harm=P, per_subject=PER,
-              n_per_group=N, years=YEARS, missed_hazard=M)
+        audit(
+            "reference-rate",
+            baseline=RATE,
+            alpha=ALPHA,
+            effect=EFFECT,
+            p_harm=P,
+            per_subject=PER,
+            n_per_group=N,
+            years=YEARS,
+            missed_hazard=M,
+        )
 
 
 def test_without_costs_there_is_no_loss_and_the_rule_is_still_stated() -> None:
-    a = audit("reference-rate", baseline=RATE, alpha=ALPHA, effect=EFFECT, p_harm=P, per_subject=PER,
-              n_per_group=N, years=YEARS)
+    a = audit(
+        "reference-rate",
+        baseline=RATE,
+        alpha=ALPHA,
+        effect=EFFECT,
+        p_harm=P,
+        per_subject=PER,
+        n_per_group=N,
+        years=YEARS,
+    )
     assert a.losses is None and a.prior is None
     assert a.rule is not None and "or more cases are observed" in a.rule.statement
 
@@ -135,8 +187,16 @@ def _screen(a: Audit, width: int) -> str:
 
 
 def test_case_control_says_case_and_power_is_stated_as_power() -> None:
-    a = audit("case-control", baseline=0.2, alpha=0.05, effect=2.0, p_harm=0.15, per_subject=250.0,
-              n_per_group=150, test="normal")
+    a = audit(
+        "case-control",
+        baseline=0.2,
+        alpha=0.05,
+        effect=2.0,
+        p_harm=0.15,
+        per_subject=250.0,
+        n_per_group=150,
+        test="normal",
+    )
     shown = _screen(a, 200)
     assert "power gained per extra case" in shown
     assert "per extra exposed subject" not in shown

@@ -24,8 +24,21 @@ from decide.scenario import load_policies, load_scenario
 REPO = Path(__file__).resolve().parents[1]
 OBSERVED = sorted((REPO / "scenarios" / "observed").glob("*.toml"))
 ENV = {"COLUMNS": "100"}
-KEYS = {"estimate", "ci_low", "ci_high", "p_value", "posterior_harm", "loss_flag", "loss_clear",
-        "recommendation", "verdicts", "excludes_above", "detectable", "method", "caution"}
+KEYS = {
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "p_value",
+    "posterior_harm",
+    "loss_flag",
+    "loss_clear",
+    "recommendation",
+    "verdicts",
+    "excludes_above",
+    "detectable",
+    "method",
+    "caution",
+}
 
 
 def run(*args: str) -> Any:
@@ -91,8 +104,7 @@ def test_table_and_markdown_carry_the_caution(tmp_path: Path) -> None:
     words = " ".join(res.stdout.replace("│", " ").split())  # rich wraps the notes panel
     assert "cannot exclude a risk ratio of" in words and "Decision support, not a decision" in words
     target = tmp_path / "reading.md"
-    res = run("interpret", scen, "--data", str(data), "--policy", "loss-optimal", "--markdown",
-              "--output", str(target))
+    res = run("interpret", scen, "--data", str(data), "--policy", "loss-optimal", "--markdown", "--output", str(target))
     assert res.exit_code == 0, res.output
     text = target.read_text(encoding="utf-8")
     assert "cannot exclude a risk ratio of" in text and CAUTION in text
@@ -114,18 +126,38 @@ REFERENCE = str(REPO / "scenarios" / "water-supply-reference.toml")
 @pytest.mark.parametrize(
     ("scenario", "body", "key", "reason"),
     [
-        (SOLVENT, "cases_exposed = -1\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
-         "observed.cases_exposed", "must be >= 0"),
-        (SOLVENT, "cases_exposed = 11\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
-         "observed.cases_exposed", "must not exceed observed.n_exposed"),
-        (SOLVENT, "cases_exposed = 1\nn_exposed = 10\ncases_unexposed = 12\nn_unexposed = 10",
-         "observed.cases_unexposed", "must not exceed observed.n_unexposed"),
+        (
+            SOLVENT,
+            "cases_exposed = -1\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
+            "observed.cases_exposed",
+            "must be >= 0",
+        ),
+        (
+            SOLVENT,
+            "cases_exposed = 11\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
+            "observed.cases_exposed",
+            "must not exceed observed.n_exposed",
+        ),
+        (
+            SOLVENT,
+            "cases_exposed = 1\nn_exposed = 10\ncases_unexposed = 12\nn_unexposed = 10",
+            "observed.cases_unexposed",
+            "must not exceed observed.n_unexposed",
+        ),
         (SOLVENT, "cases = 3\nexpected = 2.0", "observed.cases", "not a count of the cohort-risk design"),
         (SOLVENT, "cases_exposed = 1\nn_exposed = 10\ncases_unexposed = 0", "observed.n_unexposed", "missing"),
-        (SOLVENT, "cases_exposed = 1.5\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
-         "observed.cases_exposed", "whole number"),
-        (RATE, "cases_exposed = 1\nperson_years_exposed = 0.0\ncases_unexposed = 0\nperson_years_unexposed = 9.0",
-         "observed.person_years_exposed", "must be > 0"),
+        (
+            SOLVENT,
+            "cases_exposed = 1.5\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
+            "observed.cases_exposed",
+            "whole number",
+        ),
+        (
+            RATE,
+            "cases_exposed = 1\nperson_years_exposed = 0.0\ncases_unexposed = 0\nperson_years_unexposed = 9.0",
+            "observed.person_years_exposed",
+            "must be > 0",
+        ),
         (REFERENCE, "cases = 2\nexpected = 2.0\nperson_years = 100.0", "observed.expected", "one of the two"),
         (REFERENCE, "cases = 2\ncolour = 3", "observed.colour", "is not a known key"),
     ],
@@ -155,20 +187,27 @@ def test_api_raises_decide_error_naming_the_count() -> None:
     with pytest.raises(decide.DecideError, match=r"^observed\.cases_unexposed must not be negative, but got -2$"):
         decide.interpret(problem, {"cases_exposed": 1, "n_exposed": 9, "cases_unexposed": -2, "n_unexposed": 9})
     with pytest.raises(decide.DecideError, match="confidence must be in"):
-        decide.interpret(problem, {"cases_exposed": 1, "n_exposed": 9, "cases_unexposed": 2, "n_unexposed": 9},
-                         confidence=1.0)
+        decide.interpret(
+            problem, {"cases_exposed": 1, "n_exposed": 9, "cases_unexposed": 2, "n_unexposed": 9}, confidence=1.0
+        )
 
 
 def test_a_design_without_a_reader_is_refused_in_one_line() -> None:
-    with pytest.raises(decide.DecideError, match=r"^observed: reading observed data is not available for the "
-                       r"matched-case-control design yet \(available: .*\)$"):
+    with pytest.raises(
+        decide.DecideError,
+        match=r"^observed: reading observed data is not available for the "
+        r"matched-case-control design yet \(available: .*\)$",
+    ):
         reader_of("matched-case-control")
 
 
 def test_zero_cases_print_no_infinity(tmp_path: Path) -> None:
     # no case among the unexposed: no upper limit, no estimate
-    data = _data(tmp_path, "[observed]\ncases_exposed = 4\nperson_years_exposed = 9000.0\n"
-                 "cases_unexposed = 0\nperson_years_unexposed = 18000.0\n")
+    data = _data(
+        tmp_path,
+        "[observed]\ncases_exposed = 4\nperson_years_exposed = 9000.0\n"
+        "cases_unexposed = 0\nperson_years_unexposed = 18000.0\n",
+    )
     res = run("interpret", RATE, "--data", str(data), "--json", "--policy", "loss-optimal")
     assert res.exit_code == 0, res.output
     assert "Infinity" not in res.stdout and "NaN" not in res.stdout
@@ -180,8 +219,11 @@ def test_zero_cases_print_no_infinity(tmp_path: Path) -> None:
     words = " ".join(res.stdout.replace("│", " ").split())
     assert res.exit_code == 0 and "no upper limit" in words and " inf" not in words
     # no case at all, two groups: the posterior is the prior
-    data = _data(tmp_path, "[observed]\ncases_exposed = 0\nperson_years_exposed = 9000.0\n"
-                 "cases_unexposed = 0\nperson_years_unexposed = 18000.0\n")
+    data = _data(
+        tmp_path,
+        "[observed]\ncases_exposed = 0\nperson_years_exposed = 9000.0\n"
+        "cases_unexposed = 0\nperson_years_unexposed = 18000.0\n",
+    )
     out = json.loads(run("interpret", RATE, "--data", str(data), "--json", "--policy", "loss-optimal").stdout)
     problem = load_scenario(RATE).problem
     assert out["posterior_harm"] == pytest.approx(problem.p_harm, rel=1e-12)
@@ -220,8 +262,10 @@ def test_one_policy_still_gets_the_loss_optimal_reading() -> None:
     from decide.decision.interpret import read_counts
 
     with pytest.raises(decide.DecideError, match="^observed: counts of the cohort-risk design, but the scenario"):
-        decide.interpret(loaded.problem, read_counts(other, {"cases_exposed": 1, "n_exposed": 9,
-                                                             "cases_unexposed": 2, "n_unexposed": 9}))
+        decide.interpret(
+            loaded.problem,
+            read_counts(other, {"cases_exposed": 1, "n_exposed": 9, "cases_unexposed": 2, "n_unexposed": 9}),
+        )
 
 
 def test_detectable_ratio_of_the_study_as_done_against_scipy() -> None:

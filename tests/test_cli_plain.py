@@ -140,8 +140,21 @@ def test_renderers_never_use_markup_even_on_a_markup_console(tmp_path: Path) -> 
 
 def test_solve_warning_is_one_plain_line_on_stderr() -> None:
     result = run(
-        "solve", "--design", "cohort-rate", "--baseline", "5e-5", "--years", "5", "--effect", "2.5",
-        "--alpha", "0.05", "--power", "0.8", "--test", "normal",
+        "solve",
+        "--design",
+        "cohort-rate",
+        "--baseline",
+        "5e-5",
+        "--years",
+        "5",
+        "--effect",
+        "2.5",
+        "--alpha",
+        "0.05",
+        "--power",
+        "0.8",
+        "--test",
+        "normal",
     )
     assert result.exit_code == 0, result.stderr
     lines = result.stderr.splitlines()
@@ -195,12 +208,44 @@ def keys_of(data: Any) -> list[str]:
 
 
 MACHINE_RUNS: list[list[Any]] = [
-    ["solve", "--design", "cohort-rate", "--baseline", "5e-5", "--years", "5", "--effect", "2.5",
-     "--alpha", "0.05", "--n-per-group", "30000", "--test", "normal", "--json"],
+    [
+        "solve",
+        "--design",
+        "cohort-rate",
+        "--baseline",
+        "5e-5",
+        "--years",
+        "5",
+        "--effect",
+        "2.5",
+        "--alpha",
+        "0.05",
+        "--n-per-group",
+        "30000",
+        "--test",
+        "normal",
+        "--json",
+    ],
     ["optimize", DEPOT, "--json"],
     ["compare", DEPOT, "--policy", "loss-optimal", "--policy", "equal-errors", "--json"],
-    ["audit", "--design", "cohort-risk", "--baseline", "8e-4", "--alpha", "0.05", "--effect", "3",
-     "--p-harm", "0.15", "--per-subject", "250", "--n-per-group", "2150", "--json"],
+    [
+        "audit",
+        "--design",
+        "cohort-risk",
+        "--baseline",
+        "8e-4",
+        "--alpha",
+        "0.05",
+        "--effect",
+        "3",
+        "--p-harm",
+        "0.15",
+        "--per-subject",
+        "250",
+        "--n-per-group",
+        "2150",
+        "--json",
+    ],
     ["policies", "--json"],
 ]
 

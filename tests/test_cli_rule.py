@@ -115,13 +115,42 @@ def test_optimize_refuses_conflicting_flags_at_once() -> None:
     assert "choose one of --json and --markdown" in res.output
 
 
-AUDIT = ("audit", "--design", "reference-rate", "--baseline", "2.4e-5", "--years", "10", "--alpha", "0.05",
-         "--effect", "3", "--p-harm", "0.2", "--per-subject", "30", "--n-per-group", "9000")
+AUDIT = (
+    "audit",
+    "--design",
+    "reference-rate",
+    "--baseline",
+    "2.4e-5",
+    "--years",
+    "10",
+    "--alpha",
+    "0.05",
+    "--effect",
+    "3",
+    "--p-harm",
+    "0.2",
+    "--per-subject",
+    "30",
+    "--n-per-group",
+    "9000",
+)
 
 
 def test_audit_json_with_costs_and_a_lognormal_prior() -> None:
-    res = run(*AUDIT, "--missed-hazard", "5e7", "--false-alarm", "1e7", "--effect-low", "1.2",
-              "--effect-high", "4", "--effect-level", "0.8", "--json")
+    res = run(
+        *AUDIT,
+        "--missed-hazard",
+        "5e7",
+        "--false-alarm",
+        "1e7",
+        "--effect-low",
+        "1.2",
+        "--effect-high",
+        "4",
+        "--effect-level",
+        "0.8",
+        "--json",
+    )
     assert res.exit_code == 0, res.output
     a = json.loads(res.stdout)
     assert a["prior"] == "lognormal, median 2.19, 80% between 1.2 and 4"
@@ -144,14 +173,19 @@ def test_audit_markdown_output(tmp_path: Path) -> None:
     assert "regret of the protocol" in text and "## Decision rule" in text and CAUTION in text
 
 
-@pytest.mark.parametrize(("extra", "message"), [
-    (("--missed-hazard", "5e7"), "--missed-hazard and --false-alarm"),
-    (("--effect-low", "1.2"), "--effect-low and --effect-high"),
-    (("--effect-low", "1.2", "--effect-high", "4"), "needs the protocol's costs"),
-    (("--output", "x.md"), "--output needs one of --json or --markdown"),
-    (("--missed-hazard", "5e7", "--false-alarm", "1e7", "--effect-low", "4", "--effect-high", "1.2"),
-     "--effect-high must be above --effect-low"),
-])
+@pytest.mark.parametrize(
+    ("extra", "message"),
+    [
+        (("--missed-hazard", "5e7"), "--missed-hazard and --false-alarm"),
+        (("--effect-low", "1.2"), "--effect-low and --effect-high"),
+        (("--effect-low", "1.2", "--effect-high", "4"), "needs the protocol's costs"),
+        (("--output", "x.md"), "--output needs one of --json or --markdown"),
+        (
+            ("--missed-hazard", "5e7", "--false-alarm", "1e7", "--effect-low", "4", "--effect-high", "1.2"),
+            "--effect-high must be above --effect-low",
+        ),
+    ],
+)
 def test_audit_usage_errors_are_one_line(extra: tuple[str, ...], message: str) -> None:
     res = run(*AUDIT, *extra)
     assert res.exit_code == 2
@@ -160,8 +194,15 @@ def test_audit_usage_errors_are_one_line(extra: tuple[str, ...], message: str) -
 
 
 def test_compare_markdown_lists_each_rule(tmp_path: Path) -> None:
-    res = run("compare", REPO / "scenarios" / "water-supply-reference.toml", "--policy", "loss-optimal",
-              "--policy", "conventional-science", "--markdown")
+    res = run(
+        "compare",
+        REPO / "scenarios" / "water-supply-reference.toml",
+        "--policy",
+        "loss-optimal",
+        "--policy",
+        "conventional-science",
+        "--markdown",
+    )
     assert res.exit_code == 0, res.output
     assert "## Decision rules" in res.stdout
     assert res.stdout.count("Flag the exposure if") >= 1

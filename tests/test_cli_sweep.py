@@ -63,8 +63,7 @@ def test_two_way_json_and_csv() -> None:
     grid = json.loads(res.stdout)
     assert grid["x"] == "prior.p_harm" and grid["y"] == "consequences.cost_ratio"
     assert len(grid["action"]) == 4 and len(grid["action"][0]) == 4
-    res = run("sweep", MILL, "--two-way", "--points", "3", "--axes", "prior.p_harm,consequences.false_alarm",
-              "--csv")
+    res = run("sweep", MILL, "--two-way", "--points", "3", "--axes", "prior.p_harm,consequences.false_alarm", "--csv")
     assert len(list(csv.DictReader(io.StringIO(res.stdout)))) == 9
 
 

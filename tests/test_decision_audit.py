@@ -169,7 +169,12 @@ def test_exact_audit_detectable_effects_and_implied_ratio_range() -> None:
 
 def test_exactly_one_of_power_and_size() -> None:
     common: dict[str, Any] = {
-        "baseline": 1e-3, "alpha": 0.05, "effect": 2.0, "p_harm": 0.2, "per_subject": 10.0, "years": 5.0
+        "baseline": 1e-3,
+        "alpha": 0.05,
+        "effect": 2.0,
+        "p_harm": 0.2,
+        "per_subject": 10.0,
+        "years": 5.0,
     }
     with pytest.raises(DecideError, match="exactly one of power and n_per_group"):
         audit("cohort-rate", power=0.8, n_per_group=1000, **common)

@@ -101,6 +101,13 @@ def test_normal_test_flagging_most_harmless_exposures_detects_every_harm() -> No
     # the plain normal test flags with probability alpha = 0.85 >= 0.8 at effect 1, and more above it
     prob = fixed_size_problem("reference-rate", 1e-3, 1.0, 5.0, POINT, CONSTANT, 2000)
     assert detectable_effect(build_model(prob), 0.85, 2000, False) == 1.0
-    at = power("reference-rate", alpha=0.85, n_per_group=2000, effect=np.array([1.0, 1.01]), baseline=1e-3,
-               years=5.0, test="normal")
+    at = power(
+        "reference-rate",
+        alpha=0.85,
+        n_per_group=2000,
+        effect=np.array([1.0, 1.01]),
+        baseline=1e-3,
+        years=5.0,
+        test="normal",
+    )
     assert np.all(at.power >= 0.85 - 1e-12)

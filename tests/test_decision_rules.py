@@ -46,8 +46,9 @@ class NeverFlag(rules.AlphaRule):
 @pytest.mark.parametrize("test", ["normal", "exact"])
 def test_a_registered_rule_runs_for_both_tests(test: str, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setitem(rules.RULES, "fixed", NeverFlag())
-    prob = fixed_size_problem("reference-rate", 1e-3, 1.0, 5.0, EffectPrior.point(2.0), {"missed_hazard": 1e7},
-                              400, test=test)
+    prob = fixed_size_problem(
+        "reference-rate", 1e-3, 1.0, 5.0, EffectPrior.point(2.0), {"missed_hazard": 1e7}, 400, test=test
+    )
     policy = Policy("never", "Never flag", "", "fixed", "largest-allowed", alpha=0.05)
     dec = decide_policy(prob, policy)
     assert dec.test == test and dec.n_per_group == 400

@@ -117,8 +117,9 @@ def test_efficiency_of_more_controls_near_no_effect(controls: int, p0: float) ->
 def test_correlation_within_sets_costs_sets() -> None:
     # Dupont (1988), abstract and discussion: size grows with the correlation.
     sizes = [
-        solve(MatchedCaseControl(phi), baseline=0.2, effect=2.0, alpha=0.05, power=0.8,
-              allocation=2, test="normal").n_per_group
+        solve(
+            MatchedCaseControl(phi), baseline=0.2, effect=2.0, alpha=0.05, power=0.8, allocation=2, test="normal"
+        ).n_per_group
         for phi in (0.0, 0.1, 0.2, 0.4)
     ]
     assert sizes == sorted(sizes) and sizes[0] < sizes[-1]
@@ -188,9 +189,7 @@ def test_normal_power_against_simulated_score_test(big_m: int, n: int) -> None:
 def _pair_axes(
     design: StudyDesign, n: int, p0: float, odds_ratio: float
 ) -> tuple[CountModel, NDArray[np.int64], NDArray[np.int64]]:
-    model = design.count_model(
-        np.array([float(n)]), np.array([p0]), np.array([[odds_ratio]]), np.ones(1), np.ones(1)
-    )
+    model = design.count_model(np.array([float(n)]), np.array([p0]), np.array([[odds_ratio]]), np.ones(1), np.ones(1))
     lo1, hi1 = _exact._window(model.exposed_null)
     lo_alt, hi_alt = _exact._window(model.exposed_alt)
     x1 = np.arange(min(lo1[0], lo_alt.min()), max(hi1[0], hi_alt.max()) + 1)
@@ -455,16 +454,51 @@ def test_scenario_refuses_bad_design_settings(tmp_path: Path) -> None:
 
 
 def test_solve_and_audit_on_the_command_line() -> None:
-    res = run("solve", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
-              "--power", 0.8, "--allocation", 2, "--design-setting", "correlation=0.2", "--json")
+    res = run(
+        "solve",
+        "--design",
+        MATCHED,
+        "--baseline",
+        0.2,
+        "--effect",
+        2.0,
+        "--alpha",
+        0.05,
+        "--power",
+        0.8,
+        "--allocation",
+        2,
+        "--design-setting",
+        "correlation=0.2",
+        "--json",
+    )
     assert res.exit_code == 0, res.output
     s = json.loads(res.stdout)
     assert s["method"].endswith("(Dupont 1988), correlation 0.2")
     assert dupont_power(0.2, 2.0, 2, 0.2, s["n_per_group"], 0.05, 1) >= 0.8
     assert dupont_power(0.2, 2.0, 2, 0.2, s["n_per_group"] - 1, 0.05, 1) < 0.8
-    res = run("audit", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
-              "--power", 0.8, "--p-harm", 0.2, "--per-subject", 100, "--allocation", 2,
-              "--design-setting", "correlation=0.2", "--json")
+    res = run(
+        "audit",
+        "--design",
+        MATCHED,
+        "--baseline",
+        0.2,
+        "--effect",
+        2.0,
+        "--alpha",
+        0.05,
+        "--power",
+        0.8,
+        "--p-harm",
+        0.2,
+        "--per-subject",
+        100,
+        "--allocation",
+        2,
+        "--design-setting",
+        "correlation=0.2",
+        "--json",
+    )
     assert res.exit_code == 0, res.output
     a = json.loads(res.stdout)
     assert a["n_per_group"] == s["n_per_group"] and a["n_total"] == 3 * a["n_per_group"]
@@ -472,8 +506,21 @@ def test_solve_and_audit_on_the_command_line() -> None:
     n = a["n_per_group"]
     slope = (dupont_power(0.2, 2.0, 2, 0.2, n + 1, 0.05, 1) - dupont_power(0.2, 2.0, 2, 0.2, n - 1, 0.05, 1)) / 2
     assert a["implied_missed_hazard"] == pytest.approx(100 * 3 / (0.2 * slope), rel=1e-4)
-    bad = run("solve", "--design", MATCHED, "--baseline", 0.2, "--effect", 2.0, "--alpha", 0.05,
-              "--power", 0.8, "--design-setting", "correlation")
+    bad = run(
+        "solve",
+        "--design",
+        MATCHED,
+        "--baseline",
+        0.2,
+        "--effect",
+        2.0,
+        "--alpha",
+        0.05,
+        "--power",
+        0.8,
+        "--design-setting",
+        "correlation",
+    )
     assert bad.exit_code == 2 and bad.stderr.strip() == (
         "decide solve: --design-setting must be KEY=VALUE with a number, but got 'correlation'"
     )
@@ -509,9 +556,26 @@ def test_pair_probabilities_of_large_studies_against_scipy_multinomial(n: int) -
 
 
 def test_audit_of_a_pair_study_runs_the_exact_test() -> None:
-    res = run("audit", "--design", MATCHED, "--baseline", 0.06, "--effect", 3.0, "--alpha", 0.05,
-              "--n-per-group", 120, "--p-harm", 0.2, "--per-subject", 800,
-              "--design-setting", "correlation=0.1", "--json")
+    res = run(
+        "audit",
+        "--design",
+        MATCHED,
+        "--baseline",
+        0.06,
+        "--effect",
+        3.0,
+        "--alpha",
+        0.05,
+        "--n-per-group",
+        120,
+        "--p-harm",
+        0.2,
+        "--per-subject",
+        800,
+        "--design-setting",
+        "correlation=0.1",
+        "--json",
+    )
     assert res.exit_code == 0, res.output
     a = json.loads(res.stdout)
     assert a["test"] == "exact" and a["n_total"] == 240
@@ -552,8 +616,9 @@ def test_normal_statistic_from_counts_is_mcnemars() -> None:
         chi2 = mcnemar(np.array([[0, b[i]], [c[i], 0]]), exact=False, correction=False).statistic
         assert up[i] ** 2 == pytest.approx(chi2, rel=1e-12) and np.sign(up[i]) == np.sign(b[i] - c[i])
     assert np.array_equal(up, down)
-    assert np.isnan(design.normal_statistic(b, c, np.full(4, 100.0), np.full(4, 0.2), np.full(4, 2.0),
-                                            np.ones(4), False)[0]).all()
+    assert np.isnan(
+        design.normal_statistic(b, c, np.full(4, 100.0), np.full(4, 0.2), np.full(4, 2.0), np.ones(4), False)[0]
+    ).all()
 
 
 def test_real_false_alarm_of_the_normal_pair_test_against_brute_force() -> None:
@@ -563,17 +628,27 @@ def test_real_false_alarm_of_the_normal_pair_test_against_brute_force() -> None:
     from decide.engine.rule import normal_false_alarm
 
     n, p0, alpha = 40, 0.3, 0.05
-    got = normal_false_alarm(get_design(MATCHED), np.array([alpha]), np.array([float(n)]), np.array([p0]),
-                             np.ones(1), np.ones(1), 1, False)
+    got = normal_false_alarm(
+        get_design(MATCHED), np.array([alpha]), np.array([float(n)]), np.array([p0]), np.ones(1), np.ones(1), 1, False
+    )
     pb, pc = discordant(p0, 1.0, 0.0)
     law = stats.multinomial(n, [pb, pc, 1 - pb - pc])
     z = stats.norm.isf(alpha)
     want = sum(
         law.pmf([b, c, n - b - c])
-        for b in range(n + 1) for c in range(n + 1 - b)
+        for b in range(n + 1)
+        for c in range(n + 1 - b)
         if b + c > 0 and (b - c) / math.sqrt(b + c) >= z
     )
     assert float(got[0]) == pytest.approx(want, rel=1e-9)
-    more = normal_false_alarm(get_design(MATCHED), np.array([alpha]), np.array([float(n)]), np.array([p0]),
-                              np.full(1, 3.0), np.ones(1), 1, False)
+    more = normal_false_alarm(
+        get_design(MATCHED),
+        np.array([alpha]),
+        np.array([float(n)]),
+        np.array([p0]),
+        np.full(1, 3.0),
+        np.ones(1),
+        1,
+        False,
+    )
     assert np.isnan(more[0])  # not computed without an exact law of the sets

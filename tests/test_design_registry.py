@@ -89,8 +89,7 @@ INDEPENDENT = {"simulate.py"}
 
 def test_no_code_outside_the_designs_tests_a_design_by_name() -> None:
     files = [
-        p for p in PACKAGE.rglob("*.py")
-        if "designs" not in p.relative_to(PACKAGE).parts and p.name not in INDEPENDENT
+        p for p in PACKAGE.rglob("*.py") if "designs" not in p.relative_to(PACKAGE).parts and p.name not in INDEPENDENT
     ]
     assert len(files) > 20
     offences = [o for p in files for o in _offences(p)]

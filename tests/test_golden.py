@@ -45,19 +45,68 @@ SCENARIOS = {p.stem: p for p in sorted((REPO / "scenarios").glob("*.toml"))}
 
 CASES: dict[str, list[str]] = {
     "solve-cohort-risk-size": [
-        "solve", "--design", "cohort-risk", "--baseline", "8e-4", "--effect", "3", "--alpha", "0.05", "--power", "0.8",
+        "solve",
+        "--design",
+        "cohort-risk",
+        "--baseline",
+        "8e-4",
+        "--effect",
+        "3",
+        "--alpha",
+        "0.05",
+        "--power",
+        "0.8",
     ],
     "solve-cohort-rate-power-normal": [
-        "solve", "--design", "cohort-rate", "--baseline", "5e-5", "--years", "5", "--effect", "2.5",
-        "--alpha", "0.05", "--n-per-group", "30000", "--test", "normal",
+        "solve",
+        "--design",
+        "cohort-rate",
+        "--baseline",
+        "5e-5",
+        "--years",
+        "5",
+        "--effect",
+        "2.5",
+        "--alpha",
+        "0.05",
+        "--n-per-group",
+        "30000",
+        "--test",
+        "normal",
     ],
     "solve-reference-rate-effect": [
-        "solve", "--design", "reference-rate", "--baseline", "3e-5", "--alpha", "0.05", "--power", "0.8",
-        "--n-per-group", "9000", "--years", "8",
+        "solve",
+        "--design",
+        "reference-rate",
+        "--baseline",
+        "3e-5",
+        "--alpha",
+        "0.05",
+        "--power",
+        "0.8",
+        "--n-per-group",
+        "9000",
+        "--years",
+        "8",
     ],
     "audit-cohort-risk": [
-        "audit", "--design", "cohort-risk", "--baseline", "8e-4", "--alpha", "0.05", "--effect", "3",
-        "--p-harm", "0.15", "--per-subject", "250", "--n-per-group", "2150", "--unit", "EUR",
+        "audit",
+        "--design",
+        "cohort-risk",
+        "--baseline",
+        "8e-4",
+        "--alpha",
+        "0.05",
+        "--effect",
+        "3",
+        "--p-harm",
+        "0.15",
+        "--per-subject",
+        "250",
+        "--n-per-group",
+        "2150",
+        "--unit",
+        "EUR",
     ],
     "policies": ["policies"],
 }
@@ -277,7 +326,9 @@ def test_regret_is_against_deciding_now_when_that_is_best() -> None:
 
     problem = load_scenario(SCENARIOS["solvent-cohort"]).problem
     costly = dataclasses.replace(
-        problem, p_harm=0.9, consequences=dataclasses.replace(problem.consequences, per_subject=30_000.0),
+        problem,
+        p_harm=0.9,
+        consequences=dataclasses.replace(problem.consequences, per_subject=30_000.0),
         constraints=dataclasses.replace(problem.constraints, budget=None),
     )
     policies = load_policies()
@@ -333,8 +384,11 @@ def test_share_of_true_flags_beside_p_harm_negative(screens: dict[tuple[str, int
             assert "share of flags that would be true" in " ".join(text.split())
         else:
             optimal = by_title["Loss-optimal"]
-            rows = {t["rows"][i][0]: t["rows"][i][1] for t in parsed_tables(text.replace("┌", "┏")) for i in
-                    range(len(t["rows"]))}
+            rows = {
+                t["rows"][i][0]: t["rows"][i][1]
+                for t in parsed_tables(text.replace("┌", "┏"))
+                for i in range(len(t["rows"]))
+            }
             positive_label = next(k for k in rows if k.startswith("P(harmful | positive result)"))
             assert "share of flags that are true" in positive_label
             assert rows[positive_label] == nb.probability(optimal["p_harm_given_positive"])

@@ -127,9 +127,7 @@ def test_case_control_estimate_is_scipys_conditional_mle(a: int, n1: int, b: int
         assert got == pytest.approx(want, rel=1e-6, abs=1e-12)
 
 
-@given(
-    n1=st.integers(1, 60), n0=st.integers(1, 60), frac=st.floats(0, 1), psi=st.floats(0.05, 20.0)
-)
+@given(n1=st.integers(1, 60), n0=st.integers(1, 60), frac=st.floats(0, 1), psi=st.floats(0.05, 20.0))
 def test_fisher_law_is_scipys_noncentral_hypergeometric(n1: int, n0: int, frac: float, psi: float) -> None:
     t = int(round(frac * (n1 + n0)))
     x1 = min(t, n1)
@@ -184,7 +182,10 @@ def test_zero_cases_give_one_sided_intervals_and_no_infinite_numbers() -> None:
 
 @given(
     law=st.sampled_from(["poisson", "binomial", "fisher"]),
-    x1=st.integers(0, 30), x0=st.integers(0, 30), size=st.floats(0.5, 40.0), tail=st.floats(0.005, 0.2),
+    x1=st.integers(0, 30),
+    x0=st.integers(0, 30),
+    size=st.floats(0.5, 40.0),
+    tail=st.floats(0.005, 0.2),
 )
 def test_interval_inverts_the_one_sided_test(law: str, x1: int, x0: int, size: float, tail: float) -> None:
     """The lower limit of the (1 - 2 tail) interval is above 1 exactly when the one-sided p-value is below tail."""

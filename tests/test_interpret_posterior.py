@@ -35,18 +35,29 @@ from decide.engine.exact import ALPHA_FLOOR
 
 LOGNORMAL = EffectPrior.from_interval(1.5, 6.0, 0.9)
 FIXED = Consequences(false_alarm=4e6, per_subject=10.0, missed_hazard=3e7)
-DERIVED = Consequences(false_alarm=4e6, per_subject=10.0, exposed_population=5e4, background_rate=2e-4,
-                       cost_per_case=2e5, horizon_years=10.0)
+DERIVED = Consequences(
+    false_alarm=4e6,
+    per_subject=10.0,
+    exposed_population=5e4,
+    background_rate=2e-4,
+    cost_per_case=2e5,
+    horizon_years=10.0,
+)
 
 CASES: dict[str, tuple[Study, dict[str, float]]] = {
     "reference-rate": (Study("reference-rate", 3e-5, years=8.0), {"cases": 6, "expected": 2.5}),
-    "cohort-rate": (Study("cohort-rate", 4e-4, allocation=2.0, years=6.0),
-                    {"cases_exposed": 9, "person_years_exposed": 12000.0, "cases_unexposed": 7,
-                     "person_years_unexposed": 25000.0}),
-    "cohort-risk": (Study("cohort-risk", 8e-3),
-                    {"cases_exposed": 8, "n_exposed": 600, "cases_unexposed": 3, "n_unexposed": 650}),
-    "case-control": (Study("case-control", 0.05, allocation=3.0),
-                     {"cases": 120, "exposed_cases": 11, "controls": 360, "exposed_controls": 15}),
+    "cohort-rate": (
+        Study("cohort-rate", 4e-4, allocation=2.0, years=6.0),
+        {"cases_exposed": 9, "person_years_exposed": 12000.0, "cases_unexposed": 7, "person_years_unexposed": 25000.0},
+    ),
+    "cohort-risk": (
+        Study("cohort-risk", 8e-3),
+        {"cases_exposed": 8, "n_exposed": 600, "cases_unexposed": 3, "n_unexposed": 650},
+    ),
+    "case-control": (
+        Study("case-control", 0.05, allocation=3.0),
+        {"cases": 120, "exposed_cases": 11, "controls": 360, "exposed_controls": 15},
+    ),
 }
 
 
@@ -88,7 +99,9 @@ def quad_posterior(problem: Problem, obs: dict[str, float]) -> tuple[float, floa
     harm = integrate.quad(lambda v: lik(v) * density(v), 0.0, top, **opts)[0]
     cost = integrate.quad(
         lambda v: float(problem.consequences.missed_cost(np.array([math.exp(v)]))[0]) * lik(v) * density(v),
-        0.0, top, **opts,
+        0.0,
+        top,
+        **opts,
     )[0]
     p = problem.p_harm
     null = scipy_likelihood(design, obs, s.baseline, 1.0)
@@ -221,7 +234,8 @@ def test_decisive_data_neither_overflow_nor_underflow(prior: EffectPrior) -> Non
 
 @given(
     design=st.sampled_from(["reference-rate", "cohort-rate", "case-control", "cohort-risk"]),
-    x=st.integers(0, 25), point=st.booleans(),
+    x=st.integers(0, 25),
+    point=st.booleans(),
 )
 def test_more_exposed_cases_never_lower_the_posterior(design: str, x: int, point: bool) -> None:
     study, obs = CASES[design]

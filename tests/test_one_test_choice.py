@@ -30,8 +30,16 @@ BASELINE, YEARS = 5e-5, 5.0
 def four_ways(effect: float) -> list[tuple[str, str | None, int | None]]:
     """Test and size from solve, audit, compare (conventional science) and optimize, same inputs."""
     sol = solve("cohort-rate", effect=effect, alpha=0.05, power=0.8, baseline=BASELINE, years=YEARS)
-    aud = audit("cohort-rate", effect=effect, alpha=0.05, power=0.8, p_harm=0.2, per_subject=10.0,
-                baseline=BASELINE, years=YEARS)
+    aud = audit(
+        "cohort-rate",
+        effect=effect,
+        alpha=0.05,
+        power=0.8,
+        p_harm=0.2,
+        per_subject=10.0,
+        baseline=BASELINE,
+        years=YEARS,
+    )
     prob = Problem(
         Study("cohort-rate", 5e-5, years=5.0),
         EffectPrior.point(effect),
@@ -41,8 +49,9 @@ def four_ways(effect: float) -> list[tuple[str, str | None, int | None]]:
     cmp = compare(prob, [load_policies()["conventional-science"]])
     # the loss-optimal decision at the same size (pinned by the constraints), so its test can be compared
     n = sol.n_per_group
-    pinned = Problem(prob.study, prob.effect, prob.p_harm, prob.consequences,
-                     Constraints(min_n_per_group=n, max_n_per_group=n))
+    pinned = Problem(
+        prob.study, prob.effect, prob.p_harm, prob.consequences, Constraints(min_n_per_group=n, max_n_per_group=n)
+    )
     opt = optimize(pinned)
     return [
         ("solve", sol.test, sol.n_per_group),

@@ -83,9 +83,7 @@ def test_wheel_carries_the_policies_and_finds_them(tmp_path: Path) -> None:
     # Build the wheel as pyproject says, unpack it, and import decide from it
     # ahead of the editable checkout.
     wheel_builder = pytest.importorskip("hatchling.builders.wheel")
-    built = wheel_builder.WheelBuilder(str(REPO)).build(
-        directory=str(tmp_path / "dist"), versions=["standard"]
-    )
+    built = wheel_builder.WheelBuilder(str(REPO)).build(directory=str(tmp_path / "dist"), versions=["standard"])
     wheel = next(iter(built))
     with zipfile.ZipFile(wheel) as z:
         names = z.namelist()
@@ -156,8 +154,10 @@ def test_two_folders_may_not_share_a_policy_name(tmp_path: Path) -> None:
     second.mkdir()
     (first / "mine.toml").write_text(POLICY)
     (second / "mine.toml").write_text(POLICY.replace("value = 0.01", "value = 0.02"))
-    with pytest.raises(PolicyFileError, match=re.escape(f"{second / 'mine.toml'}: a policy named 'mine' "
-                                                        f"already comes from {first / 'mine.toml'}")):
+    with pytest.raises(
+        PolicyFileError,
+        match=re.escape(f"{second / 'mine.toml'}: a policy named 'mine' already comes from {first / 'mine.toml'}"),
+    ):
         load_policies([first, second])
     assert load_policies([first, first])["mine"].alpha == 0.01  # one folder given twice is one folder
 
@@ -169,9 +169,7 @@ def test_a_file_given_as_policy_folder(tmp_path: Path) -> None:
 
 
 def test_missing_extra_folder(tmp_path: Path) -> None:
-    with pytest.raises(
-        PolicyFileError, match=re.escape(f"{tmp_path / 'nope'}: no such policy folder")
-    ):
+    with pytest.raises(PolicyFileError, match=re.escape(f"{tmp_path / 'nope'}: no such policy folder")):
         load_policies([tmp_path / "nope"])
 
 
@@ -260,12 +258,8 @@ BAD_POLICIES = [
 ]
 
 
-@pytest.mark.parametrize(
-    ("text", "key", "reason"), [b[1:] for b in BAD_POLICIES], ids=[b[0] for b in BAD_POLICIES]
-)
-def test_bad_policy_file_names_its_path_and_key(
-    tmp_path: Path, text: str, key: str, reason: str
-) -> None:
+@pytest.mark.parametrize(("text", "key", "reason"), [b[1:] for b in BAD_POLICIES], ids=[b[0] for b in BAD_POLICIES])
+def test_bad_policy_file_names_its_path_and_key(tmp_path: Path, text: str, key: str, reason: str) -> None:
     path = tmp_path / "bad-policy.toml"
     path.write_text(text)
     for load in (lambda: load_policy_file(path), lambda: load_policies([tmp_path])):

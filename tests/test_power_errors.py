@@ -39,8 +39,11 @@ def _solve(design: str = "cohort-risk", **changes: Any) -> Solution:
         ("cohort-risk", {"alpha": 1.0}, r"^alpha must be strictly between 0 and 1"),
         ("cohort-risk", {"power": 1.0}, r"^power must be strictly between 0 and 1"),
         ("cohort-risk", {"power": -0.2}, r"^power must be strictly between 0 and 1"),
-        ("cohort-risk", {"alpha": 0.2, "power": 0.1},
-         r"^power must be above alpha, but got power 0\.1 with alpha 0\.2"),
+        (
+            "cohort-risk",
+            {"alpha": 0.2, "power": 0.1},
+            r"^power must be above alpha, but got power 0\.1 with alpha 0\.2",
+        ),
         ("cohort-risk", {"alpha": 0.3, "power": 0.3}, r"^power must be above alpha"),
         # a risk ratio that pushes the exposed risk past 1
         ("cohort-risk", {"baseline": 0.4, "effect": 3.0}, r"^effect must be below 2\.5 for baseline 0\.4"),
@@ -94,18 +97,33 @@ def test_power_rejects_bad_arrays() -> None:
         # samplesize_proportions_2indep_onetail(diff=0.01, prop2=0.01, power=0.8, ratio=1,
         #     alpha=0.05, alternative="larger") = 1825.899..., rounded up to a whole subject
         ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100}, r"^n_per_group: the normal test needs 1,826"),
-        ("cohort-risk", {"effect": 2.0, "max_n_per_group": 100, "test": "exact"},
-         r"^n_per_group: no size up to the cap of 100 reaches power 0\.8"),
-        ("reference-rate", {"baseline": 1e-3, "effect": 2.0, "max_n_per_group": 50},
-         r"^n_per_group: the exact test needs [\d,]+ per group, more than the cap of 50$"),
+        (
+            "cohort-risk",
+            {"effect": 2.0, "max_n_per_group": 100, "test": "exact"},
+            r"^n_per_group: no size up to the cap of 100 reaches power 0\.8",
+        ),
+        (
+            "reference-rate",
+            {"baseline": 1e-3, "effect": 2.0, "max_n_per_group": 50},
+            r"^n_per_group: the exact test needs [\d,]+ per group, more than the cap of 50$",
+        ),
         # no effect up to the cap reaches the power
-        ("reference-rate", {"baseline": 1e-6, "effect": None, "n_per_group": 10},
-         r"^effect: no standardised incidence ratio up to 10000 reaches power 0\.8 with 10 per group"),
-        ("cohort-risk", {"baseline": 0.4, "effect": None, "power": 0.99, "n_per_group": 5},
-         r"^effect: no risk ratio up to 2\.5 reaches power 0\.99"),
+        (
+            "reference-rate",
+            {"baseline": 1e-6, "effect": None, "n_per_group": 10},
+            r"^effect: no standardised incidence ratio up to 10000 reaches power 0\.8 with 10 per group",
+        ),
+        (
+            "cohort-risk",
+            {"baseline": 0.4, "effect": None, "power": 0.99, "n_per_group": 5},
+            r"^effect: no risk ratio up to 2\.5 reaches power 0\.99",
+        ),
         # no level below 1 reaches the power
-        ("cohort-risk", {"effect": 1.2, "alpha": None, "power": 0.99, "n_per_group": 5},
-         r"^alpha: no significance level below 1 gives power 0\.99 with 5 per group"),
+        (
+            "cohort-risk",
+            {"effect": 1.2, "alpha": None, "power": 0.99, "n_per_group": 5},
+            r"^alpha: no significance level below 1 gives power 0\.99 with 5 per group",
+        ),
     ],
 )
 def test_infeasible(design: str, changes: dict[str, Any], match: str) -> None:
@@ -144,8 +162,17 @@ def _run(runner: CliRunner, *args: str) -> Result:
 
 
 SOLVE_KEYS = {
-    "design", "test", "alpha", "attained_alpha", "beta", "power", "effect",
-    "n_per_group", "n_total", "expected_cases", "warnings",
+    "design",
+    "test",
+    "alpha",
+    "attained_alpha",
+    "beta",
+    "power",
+    "effect",
+    "n_per_group",
+    "n_total",
+    "expected_cases",
+    "warnings",
 }
 
 
@@ -160,16 +187,52 @@ def _no_nan(text: str) -> dict[str, Any]:
 @pytest.mark.parametrize(
     ("args", "option"),
     [
-        (["--design", "cohort-risk", "--baseline", "1.5", "--effect", "2", "--power", "0.8", "--alpha", "0.05"],
-         "--baseline"),
-        (["--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--alpha", "1.5"],
-         "--alpha"),
-        (["--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--alpha", "0.05",
-          "--sides", "3"], "--sides"),
-        (["--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--n-per-group", "0"],
-         "--n-per-group"),
-        (["--design", "cohort-rate", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--alpha", "0.05",
-          "--years", "-1"], "--years"),
+        (
+            ["--design", "cohort-risk", "--baseline", "1.5", "--effect", "2", "--power", "0.8", "--alpha", "0.05"],
+            "--baseline",
+        ),
+        (
+            ["--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--alpha", "1.5"],
+            "--alpha",
+        ),
+        (
+            [
+                "--design",
+                "cohort-risk",
+                "--baseline",
+                "0.01",
+                "--effect",
+                "2",
+                "--power",
+                "0.8",
+                "--alpha",
+                "0.05",
+                "--sides",
+                "3",
+            ],
+            "--sides",
+        ),
+        (
+            ["--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--n-per-group", "0"],
+            "--n-per-group",
+        ),
+        (
+            [
+                "--design",
+                "cohort-rate",
+                "--baseline",
+                "0.01",
+                "--effect",
+                "2",
+                "--power",
+                "0.8",
+                "--alpha",
+                "0.05",
+                "--years",
+                "-1",
+            ],
+            "--years",
+        ),
         (["--design", "cohort-risk", "--baseline", "abc"], "--baseline"),
         (["--design", "no-such-design", "--baseline", "0.1"], "--design"),
     ],
@@ -192,8 +255,19 @@ def test_cli_leaving_two_out_exit_2(runner: CliRunner) -> None:
 
 def test_cli_infeasible_exit_1(runner: CliRunner) -> None:
     result = _run(
-        runner, "--design", "cohort-risk", "--baseline", "0.01", "--effect", "2", "--power", "0.8",
-        "--alpha", "0.05", "--max-n-per-group", "10",
+        runner,
+        "--design",
+        "cohort-risk",
+        "--baseline",
+        "0.01",
+        "--effect",
+        "2",
+        "--power",
+        "0.8",
+        "--alpha",
+        "0.05",
+        "--max-n-per-group",
+        "10",
     )
     assert result.exit_code == 1
     assert result.stderr.count("\n") == 1 and "Traceback" not in result.stderr
@@ -203,14 +277,67 @@ def test_cli_infeasible_exit_1(runner: CliRunner) -> None:
 @pytest.mark.parametrize(
     "args",
     [
-        ["--design", "case-control", "--baseline", "0.3", "--effect", "2", "--power", "0.9", "--alpha", "0.05",
-         "--sides", "2", "--test", "normal"],
-        ["--design", "reference-rate", "--baseline", "0.01", "--effect", "2", "--power", "0.8", "--alpha",
-         "0.05", "--years", "5"],
-        ["--design", "cohort-rate", "--baseline", "0.01", "--effect", "3", "--power", "0.8", "--n-per-group",
-         "200", "--years", "2", "--allocation", "2"],
-        ["--design", "cohort-risk", "--baseline", "0.05", "--alpha", "0.05", "--power", "0.8",
-         "--n-per-group", "300", "--continuity", "--test", "normal"],
+        [
+            "--design",
+            "case-control",
+            "--baseline",
+            "0.3",
+            "--effect",
+            "2",
+            "--power",
+            "0.9",
+            "--alpha",
+            "0.05",
+            "--sides",
+            "2",
+            "--test",
+            "normal",
+        ],
+        [
+            "--design",
+            "reference-rate",
+            "--baseline",
+            "0.01",
+            "--effect",
+            "2",
+            "--power",
+            "0.8",
+            "--alpha",
+            "0.05",
+            "--years",
+            "5",
+        ],
+        [
+            "--design",
+            "cohort-rate",
+            "--baseline",
+            "0.01",
+            "--effect",
+            "3",
+            "--power",
+            "0.8",
+            "--n-per-group",
+            "200",
+            "--years",
+            "2",
+            "--allocation",
+            "2",
+        ],
+        [
+            "--design",
+            "cohort-risk",
+            "--baseline",
+            "0.05",
+            "--alpha",
+            "0.05",
+            "--power",
+            "0.8",
+            "--n-per-group",
+            "300",
+            "--continuity",
+            "--test",
+            "normal",
+        ],
     ],
 )
 def test_cli_json(runner: CliRunner, args: list[str]) -> None:
@@ -227,8 +354,22 @@ def test_cli_json(runner: CliRunner, args: list[str]) -> None:
 def test_cli_json_matches_api(runner: CliRunner) -> None:
     # Schlesselman (1974) worked example through the command line: 188 + 188
     result = _run(
-        runner, "--design", "case-control", "--baseline", "0.3", "--effect", "2", "--power", "0.9",
-        "--alpha", "0.05", "--sides", "2", "--test", "normal", "--json",
+        runner,
+        "--design",
+        "case-control",
+        "--baseline",
+        "0.3",
+        "--effect",
+        "2",
+        "--power",
+        "0.9",
+        "--alpha",
+        "0.05",
+        "--sides",
+        "2",
+        "--test",
+        "normal",
+        "--json",
     )
     data = _no_nan(result.stdout)
     api = solve("case-control", baseline=0.3, effect=2.0, power=0.9, alpha=0.05, sides=2, test="normal")

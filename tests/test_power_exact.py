@@ -71,9 +71,7 @@ def test_cohort_rate_conditional_brute_force(
     n: int, allocation: float, years: float, rate: float, ratio: float, sides: int
 ) -> None:
     t1, t0 = n * years, _half_up(allocation * n) * years
-    got = power(
-        "cohort-rate", ALPHAS, n, ratio, rate, allocation=allocation, years=years, sides=sides, test="exact"
-    )
+    got = power("cohort-rate", ALPHAS, n, ratio, rate, allocation=allocation, years=years, sides=sides, test="exact")
     for i, alpha in enumerate(ALPHAS):
         want_power, want_size = bf.two_poissons(t1, t0, rate, ratio, alpha, sides)
         assert got.power[i] == pytest.approx(want_power, rel=1e-9, abs=1e-12)
@@ -148,8 +146,15 @@ SIZE_CASES = [
 def test_exact_size_solver_against_every_size(case: tuple[Any, ...]) -> None:
     design, baseline, effect, alpha, target, sides, allocation, years = case
     s = solve(
-        design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
-        allocation=allocation, years=years, test="exact",
+        design,
+        baseline=baseline,
+        effect=effect,
+        alpha=alpha,
+        power=target,
+        sides=sides,
+        allocation=allocation,
+        years=years,
+        test="exact",
     )
     assert s.test == "exact"
     assert s.n_checked is not None and s.n_checked <= 3000
@@ -181,7 +186,12 @@ def test_reference_rate_segment_solver_against_scipy(
     # one-sided reference-rate sizes come from a closed-form segment solver;
     # check it against scipy.stats.poisson at every whole size
     s = solve(
-        "reference-rate", baseline=baseline, effect=sir, alpha=alpha, power=target, years=years,
+        "reference-rate",
+        baseline=baseline,
+        effect=sir,
+        alpha=alpha,
+        power=target,
+        years=years,
         test="exact",
     )
     assert s.n_checked is not None

@@ -85,7 +85,7 @@ def test_normal_one_sided_power_rises_with_effect(study: Drawn, log_n: float, al
     n = float(np.ceil(np.exp(log_n)))
     effects = np.linspace(1.0, effect, 40)
     r = power(design, alpha, n, effects, baseline, test="normal", continuity=cc, **extra)
-    trusted = (r.smallest_expected_count >= AUTO_EXACT_BELOW)
+    trusted = r.smallest_expected_count >= AUTO_EXACT_BELOW
     assume(trusted.sum() >= 2)
     assert _nondecreasing(r.power[trusted])
 
@@ -146,8 +146,17 @@ def _near_tail(
 def test_normal_size_round_trip(study: Drawn, alpha: float, target: float) -> None:
     design, baseline, effect, extra, sides, cc = study
     assume(target > alpha + 0.05)
-    s = solve(design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
-              test="normal", continuity=cc, **extra)
+    s = solve(
+        design,
+        baseline=baseline,
+        effect=effect,
+        alpha=alpha,
+        power=target,
+        sides=sides,
+        test="normal",
+        continuity=cc,
+        **extra,
+    )
     assert s.test in ("normal", "normal-cc")
     assert s.power >= target
     assert _near_tail(design, alpha, s.n_per_group, effect, baseline, sides, cc, extra) >= target
@@ -163,8 +172,17 @@ def test_normal_alpha_round_trip(study: Drawn, alpha0: float, target: float) -> 
     setting = check_setting(design, baseline, extra.get("allocation"), extra.get("years"), sides, "normal", cc)
     n = int(np.ceil(normal_size(setting, np.asarray(alpha0), np.asarray(target), np.asarray(effect))))
     assume(1 <= n <= 10**8)
-    s = solve(design, baseline=baseline, effect=effect, n_per_group=n, power=target, sides=sides,
-              test="normal", continuity=cc, **extra)
+    s = solve(
+        design,
+        baseline=baseline,
+        effect=effect,
+        n_per_group=n,
+        power=target,
+        sides=sides,
+        test="normal",
+        continuity=cc,
+        **extra,
+    )
     assert 0 < s.alpha <= alpha0 * (1 + 1e-9)
     assert _near_tail(design, s.alpha, n, effect, baseline, sides, cc, extra) == pytest.approx(target, rel=1e-9)
 
@@ -177,8 +195,17 @@ def test_normal_effect_round_trip(study: Drawn, alpha: float, target: float) -> 
     setting = check_setting(design, baseline, extra.get("allocation"), extra.get("years"), sides, "normal", cc)
     n = int(np.ceil(normal_size(setting, np.asarray(alpha), np.asarray(target), np.asarray(effect0))))
     assume(1 <= n <= 10**8)
-    s = solve(design, baseline=baseline, alpha=alpha, n_per_group=n, power=target, sides=sides,
-              test="normal", continuity=cc, **extra)
+    s = solve(
+        design,
+        baseline=baseline,
+        alpha=alpha,
+        n_per_group=n,
+        power=target,
+        sides=sides,
+        test="normal",
+        continuity=cc,
+        **extra,
+    )
     assert 1 < s.effect <= effect0 * (1 + 1e-9)
     assert _near_tail(design, alpha, n, s.effect, baseline, sides, cc, extra) == pytest.approx(target, rel=1e-9)
 
@@ -198,8 +225,7 @@ def _exact_power(
 def test_exact_size_round_trip(study: Drawn, alpha: float, target: float) -> None:
     design, baseline, effect, extra, sides, _ = study
     assume(effect >= 2.0)
-    s = solve(design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides,
-              test="exact", **extra)
+    s = solve(design, baseline=baseline, effect=effect, alpha=alpha, power=target, sides=sides, test="exact", **extra)
     assume(s.n_per_group <= 2000)
     n = np.array([s.n_per_group - 1, s.n_per_group, s.n_stable], dtype=float)
     pw = _exact_power(design, alpha, np.maximum(n, 1), effect, baseline, sides, extra)
@@ -217,8 +243,7 @@ def test_exact_alpha_round_trip(study: Drawn, expected_cases: float, target: flo
     assume(n <= 3000)
     top = _exact_power(design, 0.999, n, effect, baseline, sides, extra)
     assume(top >= target)
-    s = solve(design, baseline=baseline, effect=effect, n_per_group=n, power=target, sides=sides,
-              test="exact", **extra)
+    s = solve(design, baseline=baseline, effect=effect, n_per_group=n, power=target, sides=sides, test="exact", **extra)
     pw = _exact_power(design, np.array([s.alpha, s.alpha * (1 - 1e-7)]), n, effect, baseline, sides, extra)
     assert pw[0] >= target * (1 - 1e-12)
     assert s.power == pytest.approx(pw[0], rel=1e-12)
@@ -233,19 +258,17 @@ def test_exact_alpha_round_trip(study: Drawn, expected_cases: float, target: flo
 
 
 @settings(max_examples=12)
-@given(studies(low_baseline=0.005), st.floats(3.0, 30.0), st.sampled_from([0.5, 0.8, 0.9]),
-       st.sampled_from([0.01, 0.05]))
+@given(
+    studies(low_baseline=0.005), st.floats(3.0, 30.0), st.sampled_from([0.5, 0.8, 0.9]), st.sampled_from([0.01, 0.05])
+)
 def test_exact_effect_round_trip(study: Drawn, expected_cases: float, target: float, alpha: float) -> None:
     design, baseline, _, extra, sides, _ = study
     n = int(max(1, round(expected_cases / (baseline * extra.get("years", 1.0)))))
     assume(n <= 3000)
-    s = solve(design, baseline=baseline, alpha=alpha, n_per_group=n, power=target, sides=sides,
-              test="exact", **extra)
+    s = solve(design, baseline=baseline, alpha=alpha, n_per_group=n, power=target, sides=sides, test="exact", **extra)
     assert s.effect > 1
     assert s.power == pytest.approx(target, abs=1e-6)
-    assert float(_exact_power(design, alpha, n, s.effect, baseline, sides, extra)) == pytest.approx(
-        s.power, rel=1e-12
-    )
+    assert float(_exact_power(design, alpha, n, s.effect, baseline, sides, extra)) == pytest.approx(s.power, rel=1e-12)
 
 
 # --------------------------------------------------------------------------

@@ -40,8 +40,14 @@ def _p1_from_or(odds_ratio: float, p0: float) -> float:
 )
 def test_fleiss_table_corrected_sizes(p0: float, p1: float, table_n: int) -> None:
     s = solve(
-        "cohort-risk", baseline=p0, effect=p1 / p0, alpha=0.05, power=0.80,
-        sides=2, test="normal", continuity=True,
+        "cohort-risk",
+        baseline=p0,
+        effect=p1 / p0,
+        alpha=0.05,
+        power=0.80,
+        sides=2,
+        test="normal",
+        continuity=True,
     )
     assert s.n_per_group == table_n
     assert s.n_total == 2 * table_n

@@ -58,8 +58,12 @@ def test_normal_size_matches_statsmodels(design: str, sides: int) -> None:
     ours = normal_size(st, c["alpha"], c["power"], c["effect"])
     for i in range(ours.size):
         theirs = sm_proportion.samplesize_proportions_2indep_onetail(
-            diff=p1[i] - c["baseline"][i], prop2=c["baseline"][i], power=c["power"][i],
-            ratio=c["allocation"][i], alpha=c["alpha"][i], alternative=ALTERNATIVE[sides],
+            diff=p1[i] - c["baseline"][i],
+            prop2=c["baseline"][i],
+            power=c["power"][i],
+            ratio=c["allocation"][i],
+            alpha=c["alpha"][i],
+            alternative=ALTERNATIVE[sides],
         )
         # measured 6.1e-15: both closed forms, rounding only
         assert ours[i] == pytest.approx(theirs, rel=1e-12), i
@@ -74,14 +78,25 @@ def test_normal_power_matches_statsmodels(design: str, sides: int) -> None:
     n = np.ceil(normal_size(st, c["alpha"], c["power"], c["effect"]) * np.linspace(0.05, 2, 60))
     p1 = _p1(design, c["baseline"], c["effect"])
     ours, size = normal_power(
-        get_design(design), c["alpha"], n, c["effect"], c["baseline"], c["allocation"],
-        np.ones(60), sides, False,
+        get_design(design),
+        c["alpha"],
+        n,
+        c["effect"],
+        c["baseline"],
+        c["allocation"],
+        np.ones(60),
+        sides,
+        False,
     )
     np.testing.assert_allclose(size, c["alpha"], rtol=1e-9)
     for i in range(ours.size):
         theirs = sm_proportion.power_proportions_2indep(
-            diff=p1[i] - c["baseline"][i], prop2=c["baseline"][i], nobs1=n[i],
-            ratio=c["allocation"][i], alpha=c["alpha"][i], alternative=ALTERNATIVE[sides],
+            diff=p1[i] - c["baseline"][i],
+            prop2=c["baseline"][i],
+            nobs1=n[i],
+            ratio=c["allocation"][i],
+            alpha=c["alpha"][i],
+            alternative=ALTERNATIVE[sides],
             return_results=False,
         )
         # measured 6.0e-15: both closed forms, rounding only
@@ -96,13 +111,27 @@ def test_cohort_rate_normal_power_matches_statsmodels(sides: int) -> None:
     # nobs so that the exposed group expects between 1 and 2000 cases
     n = np.ceil(np.exp(np.linspace(0, np.log(2000), 60)) / (rate1 * c["years"]))
     ours, _ = normal_power(
-        get_design("cohort-rate"), c["alpha"], n, c["effect"], rate0, c["allocation"],
-        c["years"], sides, False,
+        get_design("cohort-rate"),
+        c["alpha"],
+        n,
+        c["effect"],
+        rate0,
+        c["allocation"],
+        c["years"],
+        sides,
+        False,
     )
     for i in range(ours.size):
         theirs = sm_rates.power_poisson_ratio_2indep(
-            rate1[i], rate0[i], n[i], c["allocation"][i], exposure=c["years"][i], value=1,
-            method_var="score", alpha=c["alpha"][i], alternative=ALTERNATIVE[sides],
+            rate1[i],
+            rate0[i],
+            n[i],
+            c["allocation"][i],
+            exposure=c["years"][i],
+            value=1,
+            method_var="score",
+            alpha=c["alpha"][i],
+            alternative=ALTERNATIVE[sides],
             return_results=False,
         )
         # measured 3.8e-15: both closed forms, rounding only

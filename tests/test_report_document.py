@@ -27,8 +27,18 @@ from decide.scenario._messages import ScenarioError
 REPO = Path(__file__).resolve().parents[1]
 MILL = REPO / "scenarios" / "mill-dust-uncertain.toml"
 SOLVENT = REPO / "scenarios" / "solvent-cohort.toml"
-SECTIONS = ("question", "inputs", "recommendation", "policies", "figures", "sensitivity", "simulation",
-            "justification", "cautions", "footer")
+SECTIONS = (
+    "question",
+    "inputs",
+    "recommendation",
+    "policies",
+    "figures",
+    "sensitivity",
+    "simulation",
+    "justification",
+    "cautions",
+    "footer",
+)
 FULL_FIGURES = ("loss-against-alpha", "power-against-effect", "tornado", "action-map", "value-judgments")
 SCRIPT = "<script>alert(1)</script>"
 
@@ -113,8 +123,14 @@ def _read_back(text: str) -> float | None:
 
 
 def _check_numbers(html: str, r: Any) -> int:
-    roots = {"decision": r.decision, "comparison": r.comparison, "tornado": r.tornado, "simulation": r.simulation,
-             "probabilistic": r.probabilistic, "inputs": r.loaded.model}
+    roots = {
+        "decision": r.decision,
+        "comparison": r.comparison,
+        "tornado": r.tornado,
+        "simulation": r.simulation,
+        "probabilistic": r.probabilistic,
+        "inputs": r.loaded.model,
+    }
     checked = 0
     for e in parse(html).iter():
         key = e.get("data-key")
@@ -138,9 +154,18 @@ def test_every_number_is_the_engines(full: Any, full_html: str) -> None:
     checked = _check_numbers(full_html, full)
     # inputs, the chosen study, eight policies, six tornado rows, the simulation, the draws
     assert checked > 150
-    for key in ("decision.alpha", "decision.attained_alpha", "decision.power", "decision.n_per_group",
-                "decision.expected_loss", "decision.net_benefit", "decision.no_study.flag_now",
-                "comparison.decisions[7].regret", "simulation.power.simulated", "tornado.rows[0].low.value"):
+    for key in (
+        "decision.alpha",
+        "decision.attained_alpha",
+        "decision.power",
+        "decision.n_per_group",
+        "decision.expected_loss",
+        "decision.net_benefit",
+        "decision.no_study.flag_now",
+        "comparison.decisions[7].regret",
+        "simulation.power.simulated",
+        "tornado.rows[0].low.value",
+    ):
         assert f'data-key="{key}"' in full_html, key
 
 
@@ -166,8 +191,15 @@ def test_justification_and_cautions(full: Any, full_html: str) -> None:
     assert f"cost {nb.number(full.decision.stated_cost_ratio)} times as much" in text
     assert f"effects below {nb.number(full.decision.detectable_effect)}" in text
     cautions = "".join(parse(full_html).find(".//section[@id='cautions']").itertext())
-    for words in ("not a decision", "responsible body", "competent authority", "licensed professional",
-                  "Confounding", "misclassification", "normal approximation"):
+    for words in (
+        "not a decision",
+        "responsible body",
+        "competent authority",
+        "licensed professional",
+        "Confounding",
+        "misclassification",
+        "normal approximation",
+    ):
         assert words in cautions, words
     footer = "".join(parse(full_html).find(".//footer").itertext())
     import hashlib
@@ -178,7 +210,7 @@ def test_justification_and_cautions(full: Any, full_html: str) -> None:
 
 def _hostile(tmp_path: Path) -> tuple[Path, Path]:
     text = SOLVENT.read_text()
-    text = re.sub(r'^title = .*$', f'title = "{SCRIPT} title"', text, flags=re.M)
+    text = re.sub(r"^title = .*$", f'title = "{SCRIPT} title"', text, flags=re.M)
     text = re.sub(r'description = """.*?"""', f'description = "{SCRIPT} description"', text, flags=re.S)
     text += f'\n[sources]\n"prior.p_harm" = "{SCRIPT} source"\n'
     scenario = tmp_path / "hostile.toml"
@@ -187,7 +219,8 @@ def _hostile(tmp_path: Path) -> tuple[Path, Path]:
     policies.mkdir()
     (policies / "hostile.toml").write_text(
         f'title = "{SCRIPT} policy"\nsummary = "{SCRIPT} summary"\n[alpha]\nrule = "fixed"\nvalue = 0.05\n'
-        '[power]\ntarget = 0.8\n[size]\nrule = "smallest-for-power"\n')
+        '[power]\ntarget = 0.8\n[size]\nrule = "smallest-for-power"\n'
+    )
     return scenario, policies
 
 
@@ -239,8 +272,17 @@ def test_markdown_links_its_figures_relatively(tmp_path: Path) -> None:
     assert links and all(link.startswith("board_figures/") for link in links)
     for link in links:
         ET.parse(tmp_path / link)  # each figure file is a well-formed SVG
-    for heading in ("The question", "Inputs and their sources", "Recommendation", "policies side by side",
-                    "Figures", "survive doubt", "Simulation check", "Justification", "Assumptions and cautions"):
+    for heading in (
+        "The question",
+        "Inputs and their sources",
+        "Recommendation",
+        "policies side by side",
+        "Figures",
+        "survive doubt",
+        "Simulation check",
+        "Justification",
+        "Assumptions and cautions",
+    ):
         assert heading in text, heading
 
 
@@ -250,8 +292,9 @@ def test_unwritable_output_is_refused_before_computing(tmp_path: Path, where: st
     path = target[where]
     if where == "exists":
         path.write_text("previous report")
-    res = run("report", str(tmp_path / "no-such-scenario.toml"), "-o", str(path) if where != "a-folder"
-              else str(path) + "/")
+    res = run(
+        "report", str(tmp_path / "no-such-scenario.toml"), "-o", str(path) if where != "a-folder" else str(path) + "/"
+    )
     assert res.exit_code == 2
     assert "Traceback" not in res.output and "no-such-scenario" not in res.output  # refused before reading
     if where == "exists":
@@ -264,8 +307,15 @@ def test_output_must_be_html_or_markdown(tmp_path: Path) -> None:
 
 
 def test_help_does_not_import_matplotlib_or_jinja2() -> None:
-    code = ("import sys\nfrom decide.cli import main\nsys.argv = ['decide', '--help']\ntry:\n    main()\n"
-            "except SystemExit:\n    pass\nprint('matplotlib' in sys.modules, 'jinja2' in sys.modules)\n")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         env={"PYTHONPATH": str(REPO), "PATH": "/usr/bin:/bin"})
+    code = (
+        "import sys\nfrom decide.cli import main\nsys.argv = ['decide', '--help']\ntry:\n    main()\n"
+        "except SystemExit:\n    pass\nprint('matplotlib' in sys.modules, 'jinja2' in sys.modules)\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code],
+        capture_output=True,
+        text=True,
+        check=True,
+        env={"PYTHONPATH": str(REPO), "PATH": "/usr/bin:/bin"},
+    )
     assert out.stdout.strip().splitlines()[-1] == "False False"

@@ -130,9 +130,7 @@ def test_range() -> None:
     assert nb.number_range(6.43, math.inf) == "6.43 to infinity"
 
 
-@pytest.mark.parametrize(
-    "value", [1.516e7, 8e6, 3.2e6, 1.5e8, 1e-5, 123456789.0, 4e-9, 0.000142, 2.6e6, 1e12]
-)
+@pytest.mark.parametrize("value", [1.516e7, 8e6, 3.2e6, 1.5e8, 1e-5, 123456789.0, 4e-9, 0.000142, 2.6e6, 1e12])
 def test_no_human_format_uses_e_notation(value: float) -> None:
     for text in (nb.number(value), nb.money(value), nb.money(value, compact=True), nb.probability(min(value, 1))):
         assert "e+" not in text and "e-" not in text, text
@@ -161,7 +159,10 @@ ESCAPES = [
     ("a [/] b", "a [/] b"),
     (":warning: :smile:", ":warning: :smile:"),
     ("\x1b[31mred\x1b[0m", "\\x1b[31mred\\x1b[0m"),
-    ("\x1b]8;;http://example.invalid\x1b\\link\x1b]8;;\x1b\\", "\\x1b]8;;http://example.invalid\\x1b\\link\\x1b]8;;\\x1b\\"),
+    (
+        "\x1b]8;;http://example.invalid\x1b\\link\x1b]8;;\x1b\\",
+        "\\x1b]8;;http://example.invalid\\x1b\\link\\x1b]8;;\\x1b\\",
+    ),
     ("osc \x9d0;title\x9c", "osc \\x9d0;title\\x9c"),
     ("bell\x07", "bell\\x07"),
     ("right-to-left \u202eevil", "right-to-left \\u202eevil"),

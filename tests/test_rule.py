@@ -31,8 +31,14 @@ def _half_up(x: float) -> int:
     return math.floor(x + 0.5)
 
 
-def _setting(design: str, baseline: float, allocation: float | None, years: float | None, sides: int = 1,
-             continuity: bool = False) -> Setting:
+def _setting(
+    design: str,
+    baseline: float,
+    allocation: float | None,
+    years: float | None,
+    sides: int = 1,
+    continuity: bool = False,
+) -> Setting:
     return check_setting(design, baseline, allocation, years, sides, "auto", continuity)
 
 
@@ -108,8 +114,10 @@ def test_shown_cut_off_prefers_the_nominal_alpha_when_it_reproduces_the_rule() -
 
 
 @pytest.mark.parametrize("sides", [1, 2])
-@pytest.mark.parametrize(("n", "allocation", "rate", "years", "alpha"),
-                         [(2000, 1.0, 1e-3, 5.0, 0.05), (800, 2.0, 5e-4, 4.0, 0.01), (300, 0.5, 2e-3, 3.0, 0.3)])
+@pytest.mark.parametrize(
+    ("n", "allocation", "rate", "years", "alpha"),
+    [(2000, 1.0, 1e-3, 5.0, 0.05), (800, 2.0, 5e-4, 4.0, 0.01), (300, 0.5, 2e-3, 3.0, 0.3)],
+)
 def test_cohort_rate_thresholds_against_binomtest(
     n: int, allocation: float, rate: float, years: float, alpha: float, sides: int
 ) -> None:
@@ -134,12 +142,15 @@ def test_cohort_rate_thresholds_against_binomtest(
         assert c == 0 or p(c - 1) > alpha
 
 
-@pytest.mark.parametrize(("design", "n", "allocation", "baseline", "effect", "alpha"), [
-    ("cohort-risk", 2150, 1.0, 8e-4, 3.0, 0.05),
-    ("cohort-risk", 400, 2.0, 0.01, 2.5, 0.2),
-    ("case-control", 60, 1.0, 0.2, 3.0, 0.05),
-    ("case-control", 40, 3.0, 0.3, 2.0, 0.01),
-])
+@pytest.mark.parametrize(
+    ("design", "n", "allocation", "baseline", "effect", "alpha"),
+    [
+        ("cohort-risk", 2150, 1.0, 8e-4, 3.0, 0.05),
+        ("cohort-risk", 400, 2.0, 0.01, 2.5, 0.2),
+        ("case-control", 60, 1.0, 0.2, 3.0, 0.05),
+        ("case-control", 40, 3.0, 0.3, 2.0, 0.01),
+    ],
+)
 def test_fisher_thresholds_against_fisher_exact(
     design: str, n: int, allocation: float, baseline: float, effect: float, alpha: float
 ) -> None:
@@ -175,8 +186,9 @@ def test_totals_carry_the_stated_mass_under_both_hypotheses() -> None:
 # the normal test from counts: brute force
 
 
-def _statistic(design: str, x1: Any, x0: Any, n: float, n0: float, baseline: float, years: float,
-               continuity: bool) -> Any:
+def _statistic(
+    design: str, x1: Any, x0: Any, n: float, n0: float, baseline: float, years: float, continuity: bool
+) -> Any:
     """The normal statistic toward harm, written out from its textbook form."""
     if design == "reference-rate":
         return 2 * (np.sqrt(x1) - np.sqrt(baseline * n * years))
@@ -191,8 +203,9 @@ def _statistic(design: str, x1: Any, x0: Any, n: float, n0: float, baseline: flo
         return (x1 / n - x0 / n0 - cc) / np.sqrt(pooled * (1 - pooled) * (1 / n + 1 / n0))
 
 
-def _brute_false_alarm(design: str, n: int, allocation: float, baseline: float, years: float, alpha: float,
-                       continuity: bool = False) -> float:
+def _brute_false_alarm(
+    design: str, n: int, allocation: float, baseline: float, years: float, alpha: float, continuity: bool = False
+) -> float:
     z = -special.ndtri(alpha)
     n0 = 0 if design == "reference-rate" else _half_up(allocation * n)
     if design == "reference-rate":
@@ -211,24 +224,41 @@ def _brute_false_alarm(design: str, n: int, allocation: float, baseline: float, 
     return float((pmf1[:, None] * pmf0[None, :] * (zz >= z)).sum())
 
 
-@pytest.mark.parametrize(("design", "n", "allocation", "baseline", "years", "alpha", "continuity"), [
-    ("reference-rate", 5000, None, 2e-3, 1.0, 0.05, False),
-    ("reference-rate", 300, None, 1e-2, 1.0, 0.01, False),
-    ("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05, False),
-    ("cohort-rate", 600, 2.0, 1e-3, 10.0, 0.1, False),
-    ("cohort-risk", 400, 1.0, 0.05, None, 0.05, False),
-    ("cohort-risk", 300, 1.5, 0.08, None, 0.025, True),
-    ("case-control", 150, 1.0, 0.2, None, 0.05, False),
-])
+@pytest.mark.parametrize(
+    ("design", "n", "allocation", "baseline", "years", "alpha", "continuity"),
+    [
+        ("reference-rate", 5000, None, 2e-3, 1.0, 0.05, False),
+        ("reference-rate", 300, None, 1e-2, 1.0, 0.01, False),
+        ("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05, False),
+        ("cohort-rate", 600, 2.0, 1e-3, 10.0, 0.1, False),
+        ("cohort-risk", 400, 1.0, 0.05, None, 0.05, False),
+        ("cohort-risk", 300, 1.5, 0.08, None, 0.025, True),
+        ("case-control", 150, 1.0, 0.2, None, 0.05, False),
+    ],
+)
 def test_normal_false_alarm_against_brute_force(
-    design: str, n: int, allocation: float | None, baseline: float, years: float | None, alpha: float,
+    design: str,
+    n: int,
+    allocation: float | None,
+    baseline: float,
+    years: float | None,
+    alpha: float,
     continuity: bool,
 ) -> None:
     want = _brute_false_alarm(design, n, allocation or 1.0, baseline, years or 1.0, alpha, continuity)
     with warnings.catch_warnings():  # few expected cases: the approximation warning is not under test
         warnings.simplefilter("ignore", ApproximationWarning)
-        res = power(design, [alpha, alpha], [n, n], 2.0, baseline, allocation=allocation, years=years,
-                    test="normal", continuity=continuity)
+        res = power(
+            design,
+            [alpha, alpha],
+            [n, n],
+            2.0,
+            baseline,
+            allocation=allocation,
+            years=years,
+            test="normal",
+            continuity=continuity,
+        )
     got = res.false_alarm()
     assert got == pytest.approx([want, want], rel=1e-7, abs=1e-12)
     # the nominal level is not the real one
@@ -245,12 +275,15 @@ def test_false_alarm_of_exact_tests_is_the_attained_alpha_and_of_huge_studies_no
     assert not res.exact[1] and np.isnan(got[1])
 
 
-@pytest.mark.parametrize(("design", "n", "allocation", "baseline", "years", "sides"), [
-    ("cohort-rate", 1000, 1.0, 2e-3, 5.0, 1),
-    ("cohort-rate", 1000, 2.0, 2e-3, 5.0, 2),
-    ("cohort-risk", 400, 1.0, 0.05, None, 1),
-    ("case-control", 150, 2.0, 0.2, None, 2),
-])
+@pytest.mark.parametrize(
+    ("design", "n", "allocation", "baseline", "years", "sides"),
+    [
+        ("cohort-rate", 1000, 1.0, 2e-3, 5.0, 1),
+        ("cohort-rate", 1000, 2.0, 2e-3, 5.0, 2),
+        ("cohort-risk", 400, 1.0, 0.05, None, 1),
+        ("case-control", 150, 2.0, 0.2, None, 2),
+    ],
+)
 def test_normal_thresholds_against_the_statistic(
     design: str, n: int, allocation: float, baseline: float, years: float | None, sides: int
 ) -> None:
@@ -283,8 +316,9 @@ def test_normal_one_group_threshold_is_the_square_root_rule() -> None:
 
 def test_normal_statistic_is_undefined_without_cases() -> None:
     d = get_design("cohort-risk")
-    up, down = d.normal_statistic(np.array([0.0]), np.array([0.0]), np.array([10.0]), np.array([0.1]),
-                                  np.array([1.0]), np.array([1.0]), False)
+    up, down = d.normal_statistic(
+        np.array([0.0]), np.array([0.0]), np.array([10.0]), np.array([0.1]), np.array([1.0]), np.array([1.0]), False
+    )
     assert np.isnan(up).all() and np.isnan(down).all()
 
 
@@ -293,10 +327,8 @@ def test_solve_reports_the_normal_test_real_false_alarm() -> None:
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ApproximationWarning)
-        sol = solve("cohort-rate", baseline=2e-3, alpha=0.05, n_per_group=1000, effect=2.0, years=5.0,
-                    test="normal")
-    assert sol.false_alarm == pytest.approx(_brute_false_alarm("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05),
-                                            rel=1e-7)
+        sol = solve("cohort-rate", baseline=2e-3, alpha=0.05, n_per_group=1000, effect=2.0, years=5.0, test="normal")
+    assert sol.false_alarm == pytest.approx(_brute_false_alarm("cohort-rate", 1000, 1.0, 2e-3, 5.0, 0.05), rel=1e-7)
     assert sol.attained_alpha == pytest.approx(0.05)  # the normal approximation's own level
 
 
@@ -314,8 +346,7 @@ def test_grouped_thresholds_cover_every_total_once() -> None:
 @pytest.mark.parametrize("design", ["reference-rate", "cohort-rate", "cohort-risk"])
 @pytest.mark.parametrize("exact", [True, False])
 def test_extreme_levels_give_a_stated_rule(design: str, exact: bool) -> None:
-    s = _setting(design, 1e-3, None if design == "reference-rate" else 1.0,
-                 None if design == "cohort-risk" else 1.0)
+    s = _setting(design, 1e-3, None if design == "reference-rate" else 1.0, None if design == "cohort-risk" else 1.0)
     never = decision_rule(s, 5, 0.0, exact=exact, effect=2.8)
     assert never.false_alarm == 0.0 and never.statement == "No outcome of the study flags the exposure."
     tiny = decision_rule(s, 50, 1e-300, exact=exact, effect=2.8)

@@ -387,8 +387,7 @@ MALFORMED = [
     ),
     (
         "allocation with reference-rate",
-        edit(edit(BASE, 'design = "cohort-risk"', 'design = "reference-rate"'), "allocation = 1.0",
-             "allocation = 2.0"),
+        edit(edit(BASE, 'design = "cohort-risk"', 'design = "reference-rate"'), "allocation = 1.0", "allocation = 2.0"),
         "study.allocation",
         r"does not apply to the reference-rate design .*\(got 2\)",
     ),
@@ -414,8 +413,10 @@ MALFORMED = [
         edit(BASE, 'design = "cohort-risk"', 'design = "cohort"'),
         "study.design",
         # the list of designs is read from the registry
-        r"must be " + re.escape(", ".join(repr(d) for d in list(DESIGNS)[:-1]))
-        + f" or {list(DESIGNS)[-1]!r}" + r" \(got \"cohort\"\)",
+        r"must be "
+        + re.escape(", ".join(repr(d) for d in list(DESIGNS)[:-1]))
+        + f" or {list(DESIGNS)[-1]!r}"
+        + r" \(got \"cohort\"\)",
     ),
     (
         "sides true",
@@ -451,18 +452,14 @@ MALFORMED = [
     ),
     (
         "two errors",
-        edit(
-            edit(BASE, "p_harm = 0.2", 'p_harm = "high"'), "false_alarm = 1.0e7", 'false_alarm = "low"'
-        ),
+        edit(edit(BASE, "p_harm = 0.2", 'p_harm = "high"'), "false_alarm = 1.0e7", 'false_alarm = "low"'),
         "prior.p_harm",
         r"\(got \"high\"\) \(and 1 more\)$",
     ),
 ]
 
 
-@pytest.mark.parametrize(
-    ("text", "key", "reason"), [m[1:] for m in MALFORMED], ids=[m[0] for m in MALFORMED]
-)
+@pytest.mark.parametrize(("text", "key", "reason"), [m[1:] for m in MALFORMED], ids=[m[0] for m in MALFORMED])
 def test_malformed_scenario_gives_one_line_naming_file_and_key(
     tmp_path: Path, text: str, key: str, reason: str
 ) -> None:
@@ -477,9 +474,7 @@ def test_malformed_scenario_gives_one_line_naming_file_and_key(
     assert isinstance(info.value, DecideError) and isinstance(info.value, ValueError)
 
 
-def test_message_matches_the_documented_example(
-    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
-) -> None:
+def test_message_matches_the_documented_example(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.chdir(tmp_path)
     Path("scenario.toml").write_text(edit(BASE, "false_alarm = 1.0e7", "false_alarm = -3"))
     with pytest.raises(ScenarioError) as info:

@@ -47,8 +47,10 @@ def _rel(a: float, b: float) -> float:
 @pytest.fixture(scope="module")
 def mill_tornado() -> Tornado:
     """p_harm and the false-alarm cost over ranges that cross changes of action and of standard."""
-    pols = [POLICIES[k] for k in ("conventional-science", "optimal-alpha-fixed-size", "more-likely-than-not",
-                                   "loss-optimal")]
+    pols = [
+        POLICIES[k]
+        for k in ("conventional-science", "optimal-alpha-fixed-size", "more-likely-than-not", "loss-optimal")
+    ]
     ranges = {
         "prior.p_harm": checked_range(MILL, "prior.p_harm", 0.01, 0.95),
         "consequences.false_alarm": checked_range(MILL, "consequences.false_alarm", 1e6, 2e8),
@@ -92,8 +94,9 @@ def test_policy_thresholds_balance_the_losses_recomputed_by_decide_policy(mill_t
 
 
 def test_no_change_is_reported_as_none(mill_tornado: Tornado) -> None:
-    narrow = tornado(MILL, (), {"study.baseline": checked_range(MILL, "study.baseline", 1.1e-3, 1.3e-3)},
-                     names=("study.baseline",))
+    narrow = tornado(
+        MILL, (), {"study.baseline": checked_range(MILL, "study.baseline", 1.1e-3, 1.3e-3)}, names=("study.baseline",)
+    )
     assert narrow.rows[0].thresholds == ()
     assert narrow.rows[0].low.action == narrow.rows[0].high.action == "study"
 
@@ -125,8 +128,9 @@ def test_least_loss_standard_leaves_out_the_benchmark() -> None:
 def test_batch_optimum_equals_optimize(p: float, scale: float, fa: float, per: float) -> None:
     c = MILL.consequences
     assert c.missed_hazard is not None
-    prob = replace(MILL, p_harm=p, consequences=replace(c, missed_hazard=c.missed_hazard * scale,
-                                                       false_alarm=fa, per_subject=per))
+    prob = replace(
+        MILL, p_harm=p, consequences=replace(c, missed_hazard=c.missed_hazard * scale, false_alarm=fa, per_subject=per)
+    )
     b = batch_optimum(build_model(MILL), np.array([p]), np.array([scale]), np.array([fa]), np.array([per]))
     d = optimize(prob)
     assert d.expected_loss is not None and d.n_per_group is not None and d.attained_alpha is not None
@@ -142,8 +146,9 @@ def test_two_way_cells_match_optimize() -> None:
     assert grid.method == "batch normal test"
     assert {a for row in grid.action for a in row} >= {"study", "flag-now", "clear-now"}
     for i, j in ((0, 0), (2, 3), (4, 1), (3, 4)):
-        prob = with_value(with_value(MILL, "prior.p_harm", grid.x_values[j]), "consequences.cost_ratio",
-                          grid.y_values[i])
+        prob = with_value(
+            with_value(MILL, "prior.p_harm", grid.x_values[j]), "consequences.cost_ratio", grid.y_values[i]
+        )
         d = optimize(prob)
         assert d.expected_loss is not None
         assert _rel(grid.expected_loss[i][j], d.expected_loss) < 1e-9
@@ -173,8 +178,12 @@ def test_default_ranges_follow_the_stated_factors() -> None:
 
 def test_default_range_is_pulled_in_where_the_problem_would_be_invalid() -> None:
     # cohort-risk with baseline 0.3 and a risk ratio 3: doubling the baseline would give a risk above 1
-    prob = Problem(Study("cohort-risk", 0.3, test="normal"), EffectPrior.point(3.0), 0.2,
-                   Consequences(false_alarm=1e6, per_subject=10.0, missed_hazard=5e6))
+    prob = Problem(
+        Study("cohort-risk", 0.3, test="normal"),
+        EffectPrior.point(3.0),
+        0.2,
+        Consequences(false_alarm=1e6, per_subject=10.0, missed_hazard=5e6),
+    )
     r = default_range(prob, "study.baseline")
     assert 0.3 < r.high < 1 / 3
     with_value(prob, "study.baseline", r.high)  # valid
@@ -189,7 +198,8 @@ def test_derived_missed_cost_is_varied_by_its_parts() -> None:
     assert value_of(doubled, "consequences.cost_ratio") == pytest.approx(2 * value_of(water, "consequences.cost_ratio"))
     # the closed-form expected missed cost agrees with the engine's quadrature
     assert build_model(water).expected_missed == pytest.approx(
-        value_of(water, "consequences.cost_ratio") * water.consequences.false_alarm, rel=1e-8)
+        value_of(water, "consequences.cost_ratio") * water.consequences.false_alarm, rel=1e-8
+    )
 
 
 @pytest.mark.parametrize(
@@ -213,15 +223,23 @@ def test_bad_ranges_name_vary(name: str, lo: float, hi: float, match: str) -> No
 @st.composite
 def scenarios(draw: st.DrawFn) -> Problem:
     design = draw(st.sampled_from(["cohort-risk", "cohort-rate", "reference-rate", "case-control"]))
-    baseline = {"cohort-risk": draw(st.floats(2e-4, 5e-3)), "cohort-rate": draw(st.floats(2e-4, 5e-3)),
-                "reference-rate": draw(st.floats(1e-4, 2e-3)), "case-control": draw(st.floats(0.02, 0.3))}[design]
-    study = Study(design, baseline, years=draw(st.sampled_from([1.0, 5.0])) if "rate" in design else 1.0,
-                  test="normal")
+    baseline = {
+        "cohort-risk": draw(st.floats(2e-4, 5e-3)),
+        "cohort-rate": draw(st.floats(2e-4, 5e-3)),
+        "reference-rate": draw(st.floats(1e-4, 2e-3)),
+        "case-control": draw(st.floats(0.02, 0.3)),
+    }[design]
+    study = Study(design, baseline, years=draw(st.sampled_from([1.0, 5.0])) if "rate" in design else 1.0, test="normal")
     missed = 10 ** draw(st.floats(6.0, 9.0))
     return Problem(
-        study, EffectPrior.point(draw(st.floats(1.5, 4.0))), draw(st.floats(0.05, 0.6)),
-        Consequences(false_alarm=10 ** draw(st.floats(5.5, 8.5)), per_subject=10 ** draw(st.floats(0.5, 3.0)),
-                     missed_hazard=missed),
+        study,
+        EffectPrior.point(draw(st.floats(1.5, 4.0))),
+        draw(st.floats(0.05, 0.6)),
+        Consequences(
+            false_alarm=10 ** draw(st.floats(5.5, 8.5)),
+            per_subject=10 ** draw(st.floats(0.5, 3.0)),
+            missed_hazard=missed,
+        ),
         Constraints(max_n_per_group=draw(st.sampled_from([None, 3000, 50000]))),
     )
 

@@ -34,8 +34,12 @@ EXACT = {
     "trade-case-control (Fisher)": _bundled("trade-case-control"),
     "water-supply-reference (Poisson tail, lognormal effect)": _bundled("water-supply-reference"),
     "invented cohort-rate (conditional binomial)": Problem(
-        Study("cohort-rate", 2e-4, allocation=2.0, years=5.0, test="exact"), EffectPrior.point(2.5), 0.3,
-        Consequences(false_alarm=1e7, per_subject=5.0, missed_hazard=5e7), Constraints(max_n_per_group=4000)),
+        Study("cohort-rate", 2e-4, allocation=2.0, years=5.0, test="exact"),
+        EffectPrior.point(2.5),
+        0.3,
+        Consequences(false_alarm=1e7, per_subject=5.0, missed_hazard=5e7),
+        Constraints(max_n_per_group=4000),
+    ),
 }
 
 
@@ -63,8 +67,12 @@ def test_a_two_sided_rule_on_a_one_sided_design_is_flagged(name: str) -> None:
 
 def test_normal_test_with_many_cases_agrees() -> None:
     """A normal-test design with hundreds of expected cases, where the approximation is close."""
-    prob = Problem(Study("cohort-risk", 0.02, test="normal"), EffectPrior.point(1.3), 0.3,
-                   Consequences(false_alarm=1e6, per_subject=1.0, missed_hazard=3e6))
+    prob = Problem(
+        Study("cohort-risk", 0.02, test="normal"),
+        EffectPrior.point(1.3),
+        0.3,
+        Consequences(false_alarm=1e6, per_subject=1.0, missed_hazard=3e6),
+    )
     fixed = Policy("fixed", "fixed", "", "fixed", "smallest-for-power", alpha=0.05, power=0.8)
     d = decide_policy(prob, fixed)
     sim = simulate(prob, d, studies=20_000, seed=1)

@@ -22,28 +22,73 @@ from decide.errors import ApproximationWarning, DecideError, InfeasibleError
 
 #: Invented sweeps, each mixing studies that run the exact test and studies that run the normal one.
 SWEEPS: list[tuple[str, str, dict[str, Any]]] = [
-    ("cohort-risk", "n_per_group",
-     {"baseline": 8e-4, "effect": np.array([2.0, 3.0, 4.0, 3.0]), "alpha": 0.05, "power": np.array([[0.8], [0.9]])}),
-    ("cohort-rate", "n_per_group",
-     {"baseline": 5e-5, "years": np.array([5.0, 8.0]), "effect": np.array([[2.5], [1.6]]), "alpha": 0.05,
-      "power": 0.8}),
-    ("reference-rate", "n_per_group",
-     {"baseline": np.array([3e-5, 1e-3]), "years": 8.0, "effect": 3.0, "alpha": 0.05, "power": 0.8}),
-    ("case-control", "n_per_group",
-     {"baseline": np.array([0.03, 0.2]), "allocation": 4.0, "effect": np.array([[3.0], [1.8]]), "alpha": 0.05,
-      "power": 0.8}),
-    ("cohort-risk", "power",
-     {"baseline": 8e-4, "effect": 3.0, "alpha": np.array([0.01, 0.05]), "n_per_group": np.array([[2150], [40_000]])}),
-    ("case-control", "power",
-     {"baseline": 0.03, "allocation": 4.0, "effect": 3.0, "alpha": 0.05, "n_per_group": np.array([60, 300, 3000])}),
-    ("cohort-risk", "alpha",
-     {"baseline": 8e-4, "effect": 3.0, "power": np.array([0.5, 0.8, 0.99]), "n_per_group": np.array([[2150], [9000]])}),
-    ("reference-rate", "alpha",
-     {"baseline": 3e-5, "years": 8.0, "effect": np.array([2.0, 3.0]), "power": 0.8, "n_per_group": 9000}),
-    ("cohort-rate", "effect",
-     {"baseline": 5e-5, "years": 5.0, "alpha": 0.05, "power": 0.8, "n_per_group": np.array([2000, 10_000, 60_000])}),
-    ("reference-rate", "effect",
-     {"baseline": np.array([1e-6, 3e-5]), "years": 8.0, "alpha": 0.05, "power": 0.8, "n_per_group": 10}),
+    (
+        "cohort-risk",
+        "n_per_group",
+        {"baseline": 8e-4, "effect": np.array([2.0, 3.0, 4.0, 3.0]), "alpha": 0.05, "power": np.array([[0.8], [0.9]])},
+    ),
+    (
+        "cohort-rate",
+        "n_per_group",
+        {
+            "baseline": 5e-5,
+            "years": np.array([5.0, 8.0]),
+            "effect": np.array([[2.5], [1.6]]),
+            "alpha": 0.05,
+            "power": 0.8,
+        },
+    ),
+    (
+        "reference-rate",
+        "n_per_group",
+        {"baseline": np.array([3e-5, 1e-3]), "years": 8.0, "effect": 3.0, "alpha": 0.05, "power": 0.8},
+    ),
+    (
+        "case-control",
+        "n_per_group",
+        {
+            "baseline": np.array([0.03, 0.2]),
+            "allocation": 4.0,
+            "effect": np.array([[3.0], [1.8]]),
+            "alpha": 0.05,
+            "power": 0.8,
+        },
+    ),
+    (
+        "cohort-risk",
+        "power",
+        {"baseline": 8e-4, "effect": 3.0, "alpha": np.array([0.01, 0.05]), "n_per_group": np.array([[2150], [40_000]])},
+    ),
+    (
+        "case-control",
+        "power",
+        {"baseline": 0.03, "allocation": 4.0, "effect": 3.0, "alpha": 0.05, "n_per_group": np.array([60, 300, 3000])},
+    ),
+    (
+        "cohort-risk",
+        "alpha",
+        {
+            "baseline": 8e-4,
+            "effect": 3.0,
+            "power": np.array([0.5, 0.8, 0.99]),
+            "n_per_group": np.array([[2150], [9000]]),
+        },
+    ),
+    (
+        "reference-rate",
+        "alpha",
+        {"baseline": 3e-5, "years": 8.0, "effect": np.array([2.0, 3.0]), "power": 0.8, "n_per_group": 9000},
+    ),
+    (
+        "cohort-rate",
+        "effect",
+        {"baseline": 5e-5, "years": 5.0, "alpha": 0.05, "power": 0.8, "n_per_group": np.array([2000, 10_000, 60_000])},
+    ),
+    (
+        "reference-rate",
+        "effect",
+        {"baseline": np.array([1e-6, 3e-5]), "years": 8.0, "alpha": 0.05, "power": 0.8, "n_per_group": 10},
+    ),
 ]
 
 
@@ -68,8 +113,9 @@ def _same(ours: Any, theirs: Any) -> None:
         assert ours == pytest.approx(theirs, rel=1e-12, abs=1e-300)
 
 
-@pytest.mark.parametrize(("design", "unknown", "inputs"), SWEEPS, ids=[f"{d}-{u}-{i}" for i, (d, u, _) in
-                                                                     enumerate(SWEEPS)])
+@pytest.mark.parametrize(
+    ("design", "unknown", "inputs"), SWEEPS, ids=[f"{d}-{u}-{i}" for i, (d, u, _) in enumerate(SWEEPS)]
+)
 def test_array_solve_equals_a_loop_of_scalar_solves(design: str, unknown: str, inputs: dict[str, Any]) -> None:
     many = solve(design, **inputs)
     shape = np.asarray(many.alpha).shape
@@ -97,8 +143,7 @@ def test_array_solve_equals_a_loop_of_scalar_solves(design: str, unknown: str, i
 
 def test_infeasible_elements_are_nan_not_an_error() -> None:
     # the second study (one in a million per person-year, ten subjects) can detect no SIR up to the cap
-    many = solve("reference-rate", baseline=np.array([3e-5, 1e-6]), years=8.0, alpha=0.05, power=0.8,
-                 n_per_group=10)
+    many = solve("reference-rate", baseline=np.array([3e-5, 1e-6]), years=8.0, alpha=0.05, power=0.8, n_per_group=10)
     assert np.isfinite(many.effect[0]) and math.isnan(many.effect[1])  # type: ignore[index]
     with pytest.raises(InfeasibleError):
         solve("reference-rate", baseline=1e-6, years=8.0, alpha=0.05, power=0.8, n_per_group=10)
@@ -121,11 +166,23 @@ def test_array_sizes_of_the_normal_test_match_statsmodels(sides: int) -> None:
     power = rng.uniform(0.6, 0.95, 40)
     with warnings.catch_warnings():  # a few small studies expect under 10 cases in a cell; sizes still compare
         warnings.simplefilter("ignore", ApproximationWarning)
-        many = solve("cohort-risk", baseline=baseline, effect=effect, allocation=allocation, alpha=alpha,
-                     power=power, sides=sides, test="normal")
+        many = solve(
+            "cohort-risk",
+            baseline=baseline,
+            effect=effect,
+            allocation=allocation,
+            alpha=alpha,
+            power=power,
+            sides=sides,
+            test="normal",
+        )
     # statsmodels 0.14/0.15, one array call (its two-sided size neglects the far tail, as ours does):
     theirs = sm_proportion.samplesize_proportions_2indep_onetail(
-        diff=effect * baseline - baseline, prop2=baseline, power=power, ratio=allocation, alpha=alpha,
+        diff=effect * baseline - baseline,
+        prop2=baseline,
+        power=power,
+        ratio=allocation,
+        alpha=alpha,
         alternative={1: "larger", 2: "two-sided"}[sides],
     )
     want = np.maximum(1, np.ceil(np.asarray(theirs) - 1e-9))

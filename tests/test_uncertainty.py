@@ -74,14 +74,20 @@ def test_beta_draws_match_scipy_quantiles() -> None:
 
 def test_degenerate_distributions_give_the_deterministic_optimum() -> None:
     c = MILL.consequences
-    inputs: dict[str, Distribution] = {"prior.p_harm": BetaInput.from_mean_sd(MILL.p_harm, 0.0),
-              "consequences.false_alarm": LognormalInput.from_interval(c.false_alarm, c.false_alarm, 0.9, "f")}
+    inputs: dict[str, Distribution] = {
+        "prior.p_harm": BetaInput.from_mean_sd(MILL.p_harm, 0.0),
+        "consequences.false_alarm": LognormalInput.from_interval(c.false_alarm, c.false_alarm, 0.9, "f"),
+    }
     r = probabilistic(MILL, inputs, 50, seed=3, policies=POLICIES)
     d = optimize(MILL)
     assert d.expected_loss is not None and d.n_per_group is not None
     spreads = {s.name: s for s in r.spreads}
-    for name, value in (("expected_loss", d.expected_loss), ("n_per_group", d.n_per_group),
-                        ("attained_alpha", d.attained_alpha), ("power", d.power)):
+    for name, value in (
+        ("expected_loss", d.expected_loss),
+        ("n_per_group", d.n_per_group),
+        ("attained_alpha", d.attained_alpha),
+        ("power", d.power),
+    ):
         assert all(v == pytest.approx(value, rel=1e-7) for v in spreads[name].quantiles), name
     assert r.evpi == 0.0
     assert r.expected_regret_of_central == pytest.approx(0.0, abs=1e-9 * d.expected_loss)
@@ -126,11 +132,16 @@ def test_averaged_loss_of_a_fixed_design_matches_decide_policy_draw_by_draw(draw
     for i in range(0, 400, 40):  # every 40th draw
         c = MILL.consequences
         prob = replace(
-            MILL, p_harm=float(values["prior.p_harm"][i]),
-            consequences=replace(c, missed_hazard=float(values["consequences.missed_hazard"][i]),
-                                 false_alarm=float(values["consequences.false_alarm"][i]),
-                                 per_subject=float(values["consequences.per_subject"][i])),
-            constraints=Constraints(max_n_per_group=d0.n_per_group, min_n_per_group=d0.n_per_group))
+            MILL,
+            p_harm=float(values["prior.p_harm"][i]),
+            consequences=replace(
+                c,
+                missed_hazard=float(values["consequences.missed_hazard"][i]),
+                false_alarm=float(values["consequences.false_alarm"][i]),
+                per_subject=float(values["consequences.per_subject"][i]),
+            ),
+            constraints=Constraints(max_n_per_group=d0.n_per_group, min_n_per_group=d0.n_per_group),
+        )
         d = decide_policy(prob, fixed)
         assert d.expected_loss is not None
         losses.append(d.expected_loss)
@@ -139,8 +150,9 @@ def test_averaged_loss_of_a_fixed_design_matches_decide_policy_draw_by_draw(draw
 
     mine = _design_losses(d0, MILL, _settings(MILL, values, 400))[::40]
     assert np.allclose(mine, losses, rtol=1e-9)
-    assert r.central_optimum.average_loss == pytest.approx(float(np.mean(_design_losses(
-        d0, MILL, _settings(MILL, values, 400)))), rel=1e-12)
+    assert r.central_optimum.average_loss == pytest.approx(
+        float(np.mean(_design_losses(d0, MILL, _settings(MILL, values, 400)))), rel=1e-12
+    )
 
 
 @pytest.mark.parametrize(
@@ -177,10 +189,14 @@ def test_a_distribution_reaching_invalid_values_is_refused() -> None:
     [
         ("[uncertainty.prior.p_harm]\nmean = 0.2\nsd = 0.9\n", "uncertainty.prior.p_harm.sd"),
         ("[uncertainty.prior.p_harm]\nmean = 0.2\n", "uncertainty.prior.p_harm.sd"),
-        ("[uncertainty.consequences.false_alarm]\nlow = 5.0\nhigh = 2.0\nlevel = 0.9\n",
-         "uncertainty.consequences.false_alarm.high"),
-        ("[uncertainty.consequences.cost_per_case]\nlow = 1.0\nhigh = 2.0\nlevel = 0.9\n",
-         "uncertainty.consequences.cost_per_case"),
+        (
+            "[uncertainty.consequences.false_alarm]\nlow = 5.0\nhigh = 2.0\nlevel = 0.9\n",
+            "uncertainty.consequences.false_alarm.high",
+        ),
+        (
+            "[uncertainty.consequences.cost_per_case]\nlow = 1.0\nhigh = 2.0\nlevel = 0.9\n",
+            "uncertainty.consequences.cost_per_case",
+        ),
         ("[uncertainty.prior.p_harm]\nmedian = 0.2\n", "uncertainty.prior.p_harm.median"),
     ],
 )

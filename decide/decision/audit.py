@@ -125,7 +125,6 @@ class ProtocolLosses(PlainData):
     optimal_expected_loss: float
 
 
-
 def audit(
     design: str | StudyDesign,
     *,
@@ -179,14 +178,26 @@ def audit(
             ("missed_hazard", "false_alarm"),
         )
     sol = solve(
-        design, baseline=baseline, alpha=alpha, power=power, n_per_group=n_per_group,
-        effect=effect, allocation=allocation, years=years, sides=sides, test=test,
+        design,
+        baseline=baseline,
+        alpha=alpha,
+        power=power,
+        n_per_group=n_per_group,
+        effect=effect,
+        allocation=allocation,
+        years=years,
+        sides=sides,
+        test=test,
         continuity=continuity,
     )
     exact = sol.test == "exact"
     study = Study(design, baseline, sol.allocation, sol.years, sides, "exact" if exact else "normal", continuity)
-    problem = Problem(study, EffectPrior.point(effect), p_harm,
-                      Consequences(false_alarm=1.0, per_subject=per_subject, missed_hazard=1.0))
+    problem = Problem(
+        study,
+        EffectPrior.point(effect),
+        p_harm,
+        Consequences(false_alarm=1.0, per_subject=per_subject, missed_hazard=1.0),
+    )
     model = build_model(problem)
     as_is = Policy("protocol", "Protocol", "", "fixed", "largest-allowed", alpha=alpha)
     n = float(sol.n_per_group)
@@ -198,8 +209,10 @@ def audit(
         rng = None if found is None else (found.low, found.high)
         ratio = None if found is None else found.point
         slope = _exact_slope(model, alpha, n)
-        warnings.append("exact power saw-tooths in size: the marginal power is the slope of a line "
-                        "fitted to exact power over sizes within 10% of the protocol's")
+        warnings.append(
+            "exact power saw-tooths in size: the marginal power is the slope of a line "
+            "fitted to exact power over sizes within 10% of the protocol's"
+        )
     else:
         rng = None
         ratio = implied_ratio_normal(model, n, float(ch.z[0]))
@@ -215,34 +228,65 @@ def audit(
     rule = decision_rule(model.setting, n, alpha, exact=exact, effect=effect)
     losses = None
     if missed_hazard is not None and false_alarm is not None:
-        stated = Problem(study, prior or EffectPrior.point(effect), p_harm,
-                         Consequences(false_alarm=false_alarm, per_subject=per_subject, fixed=fixed,
-                                      missed_hazard=missed_hazard))
+        stated = Problem(
+            study,
+            prior or EffectPrior.point(effect),
+            p_harm,
+            Consequences(false_alarm=false_alarm, per_subject=per_subject, fixed=fixed, missed_hazard=missed_hazard),
+        )
         losses = _protocol_losses(stated, alpha, int(n), test)
     return Audit(
-        design=sol.design, test=sol.test, method=sol.method, sides=sides, alpha=alpha,
-        attained_alpha=sol.attained_alpha, power=sol.power, beta=sol.beta, effect=effect,
-        n_per_group=sol.n_per_group, n_total=sol.n_total, p_harm=p_harm, per_subject=per_subject,
-        implied_cost_ratio=ratio, implied_cost_ratio_range=rng, marginal_power_per_subject=slope,
-        implied_missed_hazard=implied_missed, implied_false_alarm=implied_false_alarm,
+        design=sol.design,
+        test=sol.test,
+        method=sol.method,
+        sides=sides,
+        alpha=alpha,
+        attained_alpha=sol.attained_alpha,
+        power=sol.power,
+        beta=sol.beta,
+        effect=effect,
+        n_per_group=sol.n_per_group,
+        n_total=sol.n_total,
+        p_harm=p_harm,
+        per_subject=per_subject,
+        implied_cost_ratio=ratio,
+        implied_cost_ratio_range=rng,
+        marginal_power_per_subject=slope,
+        implied_missed_hazard=implied_missed,
+        implied_false_alarm=implied_false_alarm,
         # None where that result cannot happen (a study too small ever to be significant)
         p_harm_given_negative=p_harm * sol.beta / neg if neg > 0 else None,
         p_harm_given_positive=p_harm * sol.power / pos if pos > 0 else None,
-        detectable_effects=detect, rules_out=_rules_out(detect, effect, get_design(design).effect_name),
-        warnings=tuple(warnings), rule=rule, prior=None if prior is None else prior.describe(),
+        detectable_effects=detect,
+        rules_out=_rules_out(detect, effect, get_design(design).effect_name),
+        warnings=tuple(warnings),
+        rule=rule,
+        prior=None if prior is None else prior.describe(),
         losses=losses,
     )
 
 
 def _protocol_losses(problem: Problem, alpha: float, n: int, test: str) -> ProtocolLosses:
     """The protocol's expected loss by its stated costs, and the loss-optimal design beside it."""
-    capped = Problem(problem.study, problem.effect, problem.p_harm, problem.consequences,
-                     Constraints(max_n_per_group=n, min_n_per_group=n))
-    protocol = _decide_policy(capped, Policy("protocol", "Protocol", "The protocol as it stands.", "fixed",
-                                            "largest-allowed", alpha=alpha))
+    capped = Problem(
+        problem.study,
+        problem.effect,
+        problem.p_harm,
+        problem.consequences,
+        Constraints(max_n_per_group=n, min_n_per_group=n),
+    )
+    protocol = _decide_policy(
+        capped, Policy("protocol", "Protocol", "The protocol as it stands.", "fixed", "largest-allowed", alpha=alpha)
+    )
     s = problem.study
-    best = _optimize(Problem(Study(s.design, s.baseline, s.allocation, s.years, s.sides, test, s.continuity),
-                            problem.effect, problem.p_harm, problem.consequences))
+    best = _optimize(
+        Problem(
+            Study(s.design, s.baseline, s.allocation, s.years, s.sides, test, s.continuity),
+            problem.effect,
+            problem.p_harm,
+            problem.consequences,
+        )
+    )
     assert protocol.expected_loss is not None and protocol.loss_parts is not None
     assert protocol.net_benefit is not None
     study = best.action == "study" and best.expected_loss is not None
@@ -251,15 +295,21 @@ def _protocol_losses(problem: Problem, alpha: float, n: int, test: str) -> Proto
     c = problem.consequences
     assert c.missed_hazard is not None
     return ProtocolLosses(
-        missed_hazard=c.missed_hazard, false_alarm=c.false_alarm, fixed=c.fixed,
-        expected_loss=protocol.expected_loss, loss_parts=protocol.loss_parts, no_study=protocol.no_study,
-        net_benefit=protocol.net_benefit, regret=protocol.expected_loss - best_loss,
-        stated_cost_ratio=protocol.stated_cost_ratio, optimal_action=action,
+        missed_hazard=c.missed_hazard,
+        false_alarm=c.false_alarm,
+        fixed=c.fixed,
+        expected_loss=protocol.expected_loss,
+        loss_parts=protocol.loss_parts,
+        no_study=protocol.no_study,
+        net_benefit=protocol.net_benefit,
+        regret=protocol.expected_loss - best_loss,
+        stated_cost_ratio=protocol.stated_cost_ratio,
+        optimal_action=action,
         optimal_n_per_group=best.n_per_group if study else None,
         optimal_alpha=best.rule.cutoff_shown if study and best.rule is not None else None,
-        optimal_test=best.test if study else None, optimal_expected_loss=best_loss,
+        optimal_test=best.test if study else None,
+        optimal_expected_loss=best_loss,
     )
-
 
 
 def _exact_slope(model: Any, alpha: float, n: float) -> float:
@@ -278,9 +328,15 @@ def _detect(design: StudyDesign, sol: Any, level: float) -> float | None:
     allocation, years = design.applicable(sol.allocation, sol.years)
     try:
         return solve(
-            design, baseline=sol.baseline, alpha=sol.alpha, power=level,
-            n_per_group=sol.n_per_group, allocation=allocation, years=years,
-            sides=sol.sides, test=sol.test.replace("normal-cc", "normal"),
+            design,
+            baseline=sol.baseline,
+            alpha=sol.alpha,
+            power=level,
+            n_per_group=sol.n_per_group,
+            allocation=allocation,
+            years=years,
+            sides=sol.sides,
+            test=sol.test.replace("normal-cc", "normal"),
             continuity=sol.test == "normal-cc",
         ).effect
     except DecideError:
@@ -293,13 +349,17 @@ def _rules_out(detect: dict[str, float | None], effect: float, effect_name: str)
     an = "an" if effect_name[0] in "aeiou" else "a"
     parts = []
     if mid is not None:
-        parts.append(f"A study this size would have detected {an} {effect_name} of {mid:.3g} with 80% power"
-                     + (f", and one of {hi:.3g} with 95% power." if hi is not None else "."))
+        parts.append(
+            f"A study this size would have detected {an} {effect_name} of {mid:.3g} with 80% power"
+            + (f", and one of {hi:.3g} with 95% power." if hi is not None else ".")
+        )
     elif hi is not None:
         parts.append(f"A study this size would have detected {an} {effect_name} of {hi:.3g} with 95% power.")
     if lo is not None:
-        parts.append(f"Against {an} {effect_name} below {lo:.3g} its power is under 50%: such an effect would "
-                     "be missed more often than detected, so a negative result says little about it.")
+        parts.append(
+            f"Against {an} {effect_name} below {lo:.3g} its power is under 50%: such an effect would "
+            "be missed more often than detected, so a negative result says little about it."
+        )
     if lo is not None and effect < lo:
         parts.append(f"That includes the protocol's own {effect_name} of {effect:.3g}.")
     return " ".join(parts)

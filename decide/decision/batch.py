@@ -116,9 +116,11 @@ def _moments(model: LossModel) -> tuple[NormalMoments, NormalMoments]:
         s = model.setting
         d = s.design
         _MOMENTS.clear()
-        _MOMENTS[key] = (model,
-                         d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity),
-                         d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity))
+        _MOMENTS[key] = (
+            model,
+            d.normal_moments(s.baseline, model.effects, s.allocation, s.years, s.continuity),
+            d.normal_moments(s.baseline, np.ones(1), s.allocation, s.years, s.continuity),
+        )
     _, m, m0 = _MOMENTS[key]
     return m, m0
 
@@ -220,8 +222,9 @@ def batch_optimum(
     -------
     BatchOptimum
     """
-    p, scale, fa, per = (np.asarray(x, dtype=np.float64) for x in np.broadcast_arrays(
-        p_harm, missed_scale, false_alarm, per_subject))
+    p, scale, fa, per = (
+        np.asarray(x, dtype=np.float64) for x in np.broadcast_arrays(p_harm, missed_scale, false_alarm, per_subject)
+    )
     p, scale, fa, per = p.ravel(), scale.ravel(), fa.ravel(), per.ravel()
     a_miss, a_fa = p * scale, (1 - p) * fa
     flag, clear = a_fa, a_miss * model.expected_missed
@@ -249,14 +252,23 @@ def batch_optimum(
         cand = np.clip(n_best + step, lo_n, hi_)
         zz, ff = total(cand, z_best)
         better = ff < f_best
-        n_best, z_best, f_best = np.where(better, cand, n_best), np.where(better, zz, z_best), np.where(
-            better, ff, f_best)
+        n_best, z_best, f_best = (
+            np.where(better, cand, n_best),
+            np.where(better, zz, z_best),
+            np.where(better, ff, f_best),
+        )
     best_n, best_z, best_f = n_best, z_best, f_best
     ch = normal_at(model, best_n, best_z)
     nan = np.where(ok & np.isfinite(best_f), 1.0, np.nan)
     return BatchOptimum(
-        n=best_n * nan, z=best_z * nan, nominal=np.asarray(ch.nominal) * nan, attained=ch.attained * nan,
-        power=ch.power * nan, loss=best_f * nan, flag_now=flag, clear_now=clear,
+        n=best_n * nan,
+        z=best_z * nan,
+        nominal=np.asarray(ch.nominal) * nan,
+        attained=ch.attained * nan,
+        power=ch.power * nan,
+        loss=best_f * nan,
+        flag_now=flag,
+        clear_now=clear,
         feasible=np.asarray(ok & np.isfinite(best_f)),
     )
 
@@ -280,8 +292,12 @@ def _golden_sizes(
         new_c = np.where(left, b - np.round(_GOLDEN * (b - a)), d)
         new_d = np.where(left, c, a + np.round(_GOLDEN * (b - a)))
         zx, fx = total(np.where(left, new_c, new_d), np.where(left, zc, zd))
-        zc, fc, zd, fd = (np.where(left, zx, zd), np.where(left, fx, fd),
-                          np.where(left, zc, zx), np.where(left, fc, fx))
+        zc, fc, zd, fd = (
+            np.where(left, zx, zd),
+            np.where(left, fx, fd),
+            np.where(left, zc, zx),
+            np.where(left, fc, fx),
+        )
         c, d = new_c, new_d
     pick = fc <= fd
     return np.where(pick, c, d), np.where(pick, zc, zd), np.where(pick, fc, fd)

@@ -145,14 +145,23 @@ def detectable_effect(model: LossModel, alpha: float, n: float, exact: bool, lev
     s = model.setting
     study = model.problem.study
     allocation, years = s.design.applicable(study.allocation, study.years)
-    return _detectable(s.design, study.baseline, allocation, years, s.sides, s.continuity,
-                       float(alpha), int(n), exact, level)
+    return _detectable(
+        s.design, study.baseline, allocation, years, s.sides, s.continuity, float(alpha), int(n), exact, level
+    )
 
 
 @lru_cache(maxsize=256)
 def _detectable(
-    design: StudyDesign, baseline: float, allocation: float | None, years: float | None, sides: int,
-    continuity: bool, alpha: float, n: int, exact: bool, level: float,
+    design: StudyDesign,
+    baseline: float,
+    allocation: float | None,
+    years: float | None,
+    sides: int,
+    continuity: bool,
+    alpha: float,
+    n: int,
+    exact: bool,
+    level: float,
 ) -> float | None:
     """Cached: the policies of one comparison often share a study."""
     from ..engine.study import check_setting
@@ -165,9 +174,18 @@ def _detectable(
             return 1.0
         if alpha < level:
             try:
-                return solve(design, baseline=baseline, alpha=alpha, power=level, n_per_group=n,
-                             allocation=allocation, years=years, sides=sides, test=test,
-                             continuity=continuity).effect
+                return solve(
+                    design,
+                    baseline=baseline,
+                    alpha=alpha,
+                    power=level,
+                    n_per_group=n,
+                    allocation=allocation,
+                    years=years,
+                    sides=sides,
+                    test=test,
+                    continuity=continuity,
+                ).effect
             except DecideError:
                 return None
         return _bracket_effect(setting, alpha, n, level)

@@ -77,9 +77,7 @@ def check_name(problem: Problem, name: str) -> None:
     """Raise :class:`DecideError` unless ``name`` is an input of ``problem``."""
     known = known_names(problem)
     if name not in known:
-        raise DecideError(
-            f"vary: unknown input {name!r} for this scenario; choose from {', '.join(known)}", ("vary",)
-        )
+        raise DecideError(f"vary: unknown input {name!r} for this scenario; choose from {', '.join(known)}", ("vary",))
 
 
 def expected_missed_cost(problem: Problem) -> float:
@@ -207,16 +205,19 @@ def default_range(problem: Problem, name: str) -> InputRange:
         lo, hi = P_HARM_RANGE
     elif name == "effect.median":
         e = problem.effect
-        lo, hi = _valid_ends(problem, name, central, max(e.quantile(0.05), 1 + (e.median - 1) / 2),
-                             e.quantile(0.95))
+        lo, hi = _valid_ends(problem, name, central, max(e.quantile(0.05), 1 + (e.median - 1) / 2), e.quantile(0.95))
     elif name == "effect.ratio":
         lo, hi = _factor_range(problem, name, central, EFFECT_FACTOR)
         lo = max(lo, 1 + (central - 1) / 2)
     elif name == COST_RATIO:
         lo, hi = central / RATIO_FACTOR, central * RATIO_FACTOR
     else:
-        cost = name in ("consequences.missed_hazard", "consequences.false_alarm",
-                        "consequences.per_subject", "consequences.cost_per_case")
+        cost = name in (
+            "consequences.missed_hazard",
+            "consequences.false_alarm",
+            "consequences.per_subject",
+            "consequences.cost_per_case",
+        )
         if central == 0:
             lo, hi = 0.0, 0.0
         else:
@@ -252,8 +253,9 @@ def checked_range(problem: Problem, name: str, low: float, high: float) -> Input
     """
     check_name(problem, name)
     if not (math.isfinite(low) and math.isfinite(high)) or not low < high:
-        raise DecideError(f"vary: {name}: the range must run from a lower to a higher value, but got "
-                          f"{low:g}:{high:g}", ("vary",))
+        raise DecideError(
+            f"vary: {name}: the range must run from a lower to a higher value, but got {low:g}:{high:g}", ("vary",)
+        )
     for end in (low, high):
         try:
             with_value(problem, name, end)

@@ -78,14 +78,13 @@ DETECT_POWER = 0.8
 _PT_SUBJECTS = 10**6
 _METHODS = {
     "cohort-risk": "risk ratio of the observed risks; exact conditional interval for the odds ratio (Fisher's "
-                   "noncentral hypergeometric), carried to the risk ratio at the scenario's baseline risk; "
-                   "Fisher's exact test",
+    "noncentral hypergeometric), carried to the risk ratio at the scenario's baseline risk; "
+    "Fisher's exact test",
     "case-control": "exact conditional interval for the odds ratio (Fisher's noncentral hypergeometric), "
-                    "conditional maximum-likelihood estimate; Fisher's exact test",
+    "conditional maximum-likelihood estimate; Fisher's exact test",
     "cohort-rate": "exact conditional binomial interval (Clopper-Pearson) for the rate ratio given "
-                   "the total cases; exact conditional binomial test",
-    "reference-rate": "exact Poisson interval (Garwood) for the standardised incidence ratio; "
-                      "exact Poisson test",
+    "the total cases; exact conditional binomial test",
+    "reference-rate": "exact Poisson interval (Garwood) for the standardised incidence ratio; exact Poisson test",
 }
 
 
@@ -280,8 +279,9 @@ def evidence(c: Counts) -> Evidence:
     """Exact p-values and normal statistics of the counts (no effect as the null)."""
     z, z_cc = _normal_statistics(c)
     upper = upper_tail(c, 1.0)
-    return Evidence(p_upper=upper, p_lower=lower_tail(c, 1.0), p_mid=max(0.0, upper - point_mass(c, 1.0) / 2),
-                    z=z, z_cc=z_cc)
+    return Evidence(
+        p_upper=upper, p_lower=lower_tail(c, 1.0), p_mid=max(0.0, upper - point_mass(c, 1.0) / 2), z=z, z_cc=z_cc
+    )
 
 
 def policy_verdict(d: Decision, ev: Evidence) -> Verdict | None:
@@ -329,7 +329,7 @@ def _effect_nodes(problem: Problem, c: Counts, panels: int) -> tuple[FloatArray,
     lo = max(-REACH, -np.log(e.median) / e.log_sd)
     top = min(REACH + e.log_sd, np.log(limit * (1 - 1e-9) / e.median) / e.log_sd)
     grid = np.linspace(lo, top, 4001)
-    score = -grid**2 / 2 + log_likelihood_ratio(problem, c, e.median * np.exp(e.log_sd * grid))
+    score = -(grid**2) / 2 + log_likelihood_ratio(problem, c, e.median * np.exp(e.log_sd * grid))
     inside = np.flatnonzero(score > score.max() - 60)
     step = grid[1] - grid[0]
     a, b = max(lo, grid[inside[0]] - step), min(top, grid[inside[-1]] + step)
@@ -400,16 +400,24 @@ def _detectable_ratio(problem: Problem, c: Counts, alpha: float) -> float | None
     try:
         setting = check_setting(s.design, s.baseline, alloc, years, s.sides, s.test, s.continuity)
         exact = bool(uses_exact(setting, n, problem.effect.median))
-        return _detectable(s.design, float(s.baseline), alloc, years, s.sides, s.continuity,
-                           float(alpha), n, exact, DETECT_POWER)
+        return _detectable(
+            s.design, float(s.baseline), alloc, years, s.sides, s.continuity, float(alpha), n, exact, DETECT_POWER
+        )
     except DecideError:
         return None
 
 
 def _policy_verdicts(decisions: Sequence[Decision], ev: Evidence) -> tuple[PolicyVerdict, ...]:
     return tuple(
-        PolicyVerdict(policy=d.policy, title=d.title, available=d.feasible, test=d.test, alpha=d.alpha,
-                      attained_alpha=d.attained_alpha, verdict=policy_verdict(d, ev))
+        PolicyVerdict(
+            policy=d.policy,
+            title=d.title,
+            available=d.feasible,
+            test=d.test,
+            alpha=d.alpha,
+            attained_alpha=d.attained_alpha,
+            verdict=policy_verdict(d, ev),
+        )
         for d in decisions
     )
 
@@ -470,8 +478,11 @@ def interpret(
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))
     c = observed if isinstance(observed, Counts) else read_counts(problem, observed)
     if c.design != get_design(problem.study.design).name:
-        raise DecideError(f"observed: counts of the {c.design} design, but the scenario's design is "
-                          f"{get_design(problem.study.design).name}", ("observed",))
+        raise DecideError(
+            f"observed: counts of the {c.design} design, but the scenario's design is "
+            f"{get_design(problem.study.design).name}",
+            ("observed",),
+        )
     reader = reader_of(c.design)
     baseline = float(problem.study.baseline)
     ev = evidence(c)
@@ -487,15 +498,30 @@ def interpret(
     low = float(reader.from_law(np.asarray(lo_law), baseline))
     high = float(reader.from_law(np.asarray(hi_law), baseline)) if np.isfinite(hi_law) else np.inf
     return Interpretation(
-        design=c.design, effect_name=problem.study.setting().design.effect_name, method=_METHODS[c.design],
-        observed=dict(c.values), confidence=confidence, estimate=_estimate(c), ci_low=low,
-        ci_high=high, p_value=ev.p_upper, p_value_two_sided=min(1.0, 2 * min(ev.p_upper, ev.p_lower)),
+        design=c.design,
+        effect_name=problem.study.setting().design.effect_name,
+        method=_METHODS[c.design],
+        observed=dict(c.values),
+        confidence=confidence,
+        estimate=_estimate(c),
+        ci_low=low,
+        ci_high=high,
+        p_value=ev.p_upper,
+        p_value_two_sided=min(1.0, 2 * min(ev.p_upper, ev.p_lower)),
         p_value_mid=ev.p_mid,
-        statistic=ev.z, posterior_harm=post.p_harm, loss_flag=loss_flag, loss_clear=loss_clear,
-        recommendation="flag" if loss_flag < loss_clear else "clear", verdicts=verdicts,
+        statistic=ev.z,
+        posterior_harm=post.p_harm,
+        loss_flag=loss_flag,
+        loss_clear=loss_clear,
+        recommendation="flag" if loss_flag < loss_clear else "clear",
+        verdicts=verdicts,
         loss_optimal_verdict=policy_verdict(best, ev),
-        excludes_above=high, detectable=_detectable_ratio(problem, c, alpha), detect_alpha=alpha,
-        detect_power=DETECT_POWER, prior_harm=problem.p_harm, sides=problem.study.sides,
+        excludes_above=high,
+        detectable=_detectable_ratio(problem, c, alpha),
+        detect_alpha=alpha,
+        detect_power=DETECT_POWER,
+        prior_harm=problem.p_harm,
+        sides=problem.study.sides,
         warnings=_notes(c),
     )
 

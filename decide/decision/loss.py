@@ -131,7 +131,10 @@ class LossModel:
 def build_model(problem: Problem) -> LossModel:
     """Quadrature nodes, missed-hazard costs and weights for a problem."""
     model = LossModel(
-        problem=problem, setting=problem.study.setting(), effects=np.zeros(0), weights=np.zeros((3, 0)),
+        problem=problem,
+        setting=problem.study.setting(),
+        effects=np.zeros(0),
+        weights=np.zeros((3, 0)),
         expected_missed=0.0,
     )
     nodes, w = model.prior_nodes(SEARCH_PANELS)
@@ -148,8 +151,12 @@ def build_model(problem: Problem) -> LossModel:
         return np.array([np.dot(v, problem.consequences.missed_cost(x))])
 
     return LossModel(
-        problem=problem, setting=model.setting, effects=effects, weights=weights,
-        expected_missed=float(_refine(expected)[0]), notes=_truncation_notes(problem),
+        problem=problem,
+        setting=model.setting,
+        effects=effects,
+        weights=weights,
+        expected_missed=float(_refine(expected)[0]),
+        notes=_truncation_notes(problem),
     )
 
 
@@ -224,8 +231,11 @@ def normal_at(model: LossModel, n: FloatArray, z: FloatArray) -> Characteristics
     attained = _normal.power_at_z(m0, nn[..., None], zz[..., None], s.sides)[..., 0]
     nominal = s.sides * special.ndtr(-zz)
     return Characteristics(
-        nominal=np.asarray(nominal), attained=np.asarray(attained), power=pw[..., AVERAGE],
-        design_power=pw[..., DESIGN], missed=miss,
+        nominal=np.asarray(nominal),
+        attained=np.asarray(attained),
+        power=pw[..., AVERAGE],
+        design_power=pw[..., DESIGN],
+        missed=miss,
     )
 
 
@@ -242,9 +252,7 @@ def bisect_decreasing(
     return (lo + hi) / 2
 
 
-def minimise_on(
-    f: Callable[[FloatArray], FloatArray], lo: FloatArray, hi: FloatArray, points: int = 129
-) -> FloatArray:
+def minimise_on(f: Callable[[FloatArray], FloatArray], lo: FloatArray, hi: FloatArray, points: int = 129) -> FloatArray:
     """Global minimiser of ``f`` on ``[lo, hi]`` row by row: a grid, then golden section.
 
     ``f`` takes arrays of shape ``(N, k)``.  The grid guards against several
@@ -371,7 +379,7 @@ def _power_and_miss(
         caught, kept = _exact.split_mass(grid, grid.p_value <= nominal * (1 + _exact.REL_TOL))
         power[part], miss[part] = caught[0], kept[0]
         if miss[part].max() < 1e-16:  # larger effects are caught for certain
-            later = order[np.searchsorted(effects[order], effects[part].max(), side="right"):]
+            later = order[np.searchsorted(effects[order], effects[part].max(), side="right") :]
             power[later], miss[later] = 1.0, 0.0
             break
     return power, miss

@@ -189,13 +189,23 @@ def odds_to_risk(psi: FloatArray, p0: float) -> FloatArray:
 
 #: One reader per design.  A new design adds one entry here.
 READERS: dict[str, Reader] = {
-    "cohort-risk": Reader(_read_cohort_risk, risk_to_odds, odds_to_risk,
-                          ("cases_exposed", "n_exposed", "cases_unexposed", "n_unexposed")),
-    "cohort-rate": Reader(_read_cohort_rate, _same, _same,
-                          ("cases_exposed", "person_years_exposed", "cases_unexposed", "person_years_unexposed")),
+    "cohort-risk": Reader(
+        _read_cohort_risk, risk_to_odds, odds_to_risk, ("cases_exposed", "n_exposed", "cases_unexposed", "n_unexposed")
+    ),
+    "cohort-rate": Reader(
+        _read_cohort_rate,
+        _same,
+        _same,
+        ("cases_exposed", "person_years_exposed", "cases_unexposed", "person_years_unexposed"),
+    ),
     "reference-rate": Reader(_read_reference_rate, _same, _same, ("cases", "expected | person_years")),
-    "case-control": Reader(_read_case_control, _same, _same,
-                           ("cases", "exposed_cases", "controls", "exposed_controls"), conditional_estimate=True),
+    "case-control": Reader(
+        _read_case_control,
+        _same,
+        _same,
+        ("cases", "exposed_cases", "controls", "exposed_controls"),
+        conditional_estimate=True,
+    ),
 }
 
 
@@ -231,8 +241,14 @@ def fisher_log_pmf(c: Counts, log_psi: FloatArray) -> FloatArray:
     assert c.size0 is not None
     x = fisher_support(c)
     n1, n0, t = c.size1, c.size0, float(c.total)
-    base = (special.gammaln(n1 + 1) - special.gammaln(x + 1) - special.gammaln(n1 - x + 1)
-            + special.gammaln(n0 + 1) - special.gammaln(t - x + 1) - special.gammaln(n0 - t + x + 1))
+    base = (
+        special.gammaln(n1 + 1)
+        - special.gammaln(x + 1)
+        - special.gammaln(n1 - x + 1)
+        + special.gammaln(n0 + 1)
+        - special.gammaln(t - x + 1)
+        - special.gammaln(n0 - t + x + 1)
+    )
     lp = np.asarray(log_psi, dtype=np.float64)[..., None]
     with np.errstate(invalid="ignore"):
         terms = base + np.where(x == 0, 0.0, x * lp)
@@ -259,7 +275,7 @@ def log_likelihood(c: Counts, parameter: FloatArray) -> FloatArray:
         log_psi = np.log(np.where(np.isfinite(par), par, 1e300)).ravel()
     at = int(c.x1 - x[0])
     step = max(1, _CELLS // x.size)  # keep each block of (ratios x support) bounded
-    out = np.concatenate([fisher_log_pmf(c, log_psi[i:i + step])[:, at] for i in range(0, log_psi.size, step)])
+    out = np.concatenate([fisher_log_pmf(c, log_psi[i : i + step])[:, at] for i in range(0, log_psi.size, step)])
     return np.asarray(out.reshape(par.shape), dtype=np.float64)
 
 

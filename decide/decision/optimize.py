@@ -108,11 +108,15 @@ def _approximation_notes(model: LossModel, n: float, exact: bool) -> list[str]:
     s = model.setting
     smallest = float(smallest_count(s, n, model.effects[-1]))
     if not exact and smallest < AUTO_EXACT_BELOW:
-        return [f"normal approximation with as few as {smallest:.3g} expected in a cell (below "
-                f"{AUTO_EXACT_BELOW:g}); the exact test is safer here"]
+        return [
+            f"normal approximation with as few as {smallest:.3g} expected in a cell (below "
+            f"{AUTO_EXACT_BELOW:g}); the exact test is safer here"
+        ]
     if not exact and s.test == "exact":
-        return [f"exact test requested, but every cell expects more than {EXACT_UP_TO:g}: the normal "
-                "approximation was used, which agrees closely there"]
+        return [
+            f"exact test requested, but every cell expects more than {EXACT_UP_TO:g}: the normal "
+            "approximation was used, which agrees closely there"
+        ]
     return []
 
 
@@ -303,7 +307,8 @@ def compare(problem: Problem, policies: Sequence[Policy]) -> Comparison:
     decisions = [best if pol == LOSS_OPTIMAL else decide_policy(model, pol) for pol in policies]
     study = _best_study(best, decisions)
     options: list[tuple[float, Literal["study", "flag-now", "clear-now"], str | None]] = [
-        (model.flag_now, "flag-now", None), (model.clear_now, "clear-now", None)
+        (model.flag_now, "flag-now", None),
+        (model.clear_now, "clear-now", None),
     ]
     if study is not None and study.expected_loss is not None:
         options.insert(0, (study.expected_loss, "study", study.policy))
@@ -313,6 +318,10 @@ def compare(problem: Problem, policies: Sequence[Policy]) -> Comparison:
         for d in decisions
     )
     return Comparison(
-        decisions=out, flag_now=model.flag_now, clear_now=model.clear_now,
-        best_action=action, best_policy=name, best_loss=best_loss,
+        decisions=out,
+        flag_now=model.flag_now,
+        clear_now=model.clear_now,
+        best_action=action,
+        best_policy=name,
+        best_loss=best_loss,
     )

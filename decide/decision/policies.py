@@ -103,13 +103,18 @@ class Policy:
         def fail(key: str, message: str) -> DecideError:
             return DecideError(f"{where}: {key}{message}", (key,))
 
-        for key, word, rules in (("alpha.rule", self.alpha_rule, ALPHA_RULES),
-                                 ("size.rule", self.size_rule, SIZE_RULES)):
+        for key, word, rules in (
+            ("alpha.rule", self.alpha_rule, ALPHA_RULES),
+            ("size.rule", self.size_rule, SIZE_RULES),
+        ):
             if word not in rules:
                 raise fail(key, f" must be one of {', '.join(rules)}, but got {show(word)}")
         self._check_keys(fail)
-        for key, value in (("alpha.value", self.alpha), ("power.target", self.power),
-                           ("alpha.posterior_threshold", self.posterior_threshold)):
+        for key, value in (
+            ("alpha.value", self.alpha),
+            ("power.target", self.power),
+            ("alpha.posterior_threshold", self.posterior_threshold),
+        ):
             if value is not None:
                 try:
                     probability(key, scalar(key, value))
@@ -123,8 +128,10 @@ class Policy:
     def _check_keys(self, fail: Callable[[str, str], DecideError]) -> None:
         """Each rule's keys given with it, and only with it."""
         rule = self.alpha_rule
-        for key, value, wanted in (("alpha.value", self.alpha, "fixed"),
-                                   ("alpha.posterior_threshold", self.posterior_threshold, "posterior")):
+        for key, value, wanted in (
+            ("alpha.value", self.alpha, "fixed"),
+            ("alpha.posterior_threshold", self.posterior_threshold, "posterior"),
+        ):
             if rule == wanted and value is None:
                 raise fail(key, f': is required with rule = "{wanted}"')
             if rule != wanted and value is not None:
@@ -152,7 +159,6 @@ def check_policies(policies: object) -> None:
     bad = [p for p in items if not isinstance(p, Policy)] if items is not None else [policies]
     if bad:
         raise DecideError(
-            f"policies must be Policy objects (load them with decide.scenario.load_policies), "
-            f"but got {show(bad[0])}",
+            f"policies must be Policy objects (load them with decide.scenario.load_policies), but got {show(bad[0])}",
             ("policies",),
         )

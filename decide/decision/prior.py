@@ -94,25 +94,36 @@ class EffectPrior:
         """A single effect, above 1 (the effect if harmful)."""
         r = float(positive("effect.ratio", _checks.scalar("effect.ratio", ratio)))
         if r <= 1:
-            raise DecideError(f"effect.ratio must be above 1 (the effect if harmful), but got {_checks.show(r)}",
-                              ("effect.ratio",))
+            raise DecideError(
+                f"effect.ratio must be above 1 (the effect if harmful), but got {_checks.show(r)}", ("effect.ratio",)
+            )
         at_most("effect.ratio", np.asarray(r), _checks.EFFECT_RANGE[1], "the largest effect decide considers")
         return cls(r)
 
     @classmethod
-    def from_interval(
-        cls, low: float, high: float, level: float, median: float | None = None
-    ) -> EffectPrior:
+    def from_interval(cls, low: float, high: float, level: float, median: float | None = None) -> EffectPrior:
         """Lognormal whose central ``level`` interval is ``[low, high]``.
 
         ``log_sd = (ln high - ln low) / (2 z)``, ``z = Phi^-1((1 + level)/2)``;
         the median defaults to the geometric mean of ``low`` and ``high``.
         """
         top = _checks.EFFECT_RANGE[1]
-        lo = float(at_most("effect.low", positive("effect.low", _checks.scalar("effect.low", low)), top,
-                           "the largest effect decide considers"))
-        hi = float(at_most("effect.high", positive("effect.high", _checks.scalar("effect.high", high)), top,
-                           "the largest effect decide considers"))
+        lo = float(
+            at_most(
+                "effect.low",
+                positive("effect.low", _checks.scalar("effect.low", low)),
+                top,
+                "the largest effect decide considers",
+            )
+        )
+        hi = float(
+            at_most(
+                "effect.high",
+                positive("effect.high", _checks.scalar("effect.high", high)),
+                top,
+                "the largest effect decide considers",
+            )
+        )
         lev = float(probability("effect.level", _checks.scalar("effect.level", level)))
         if hi <= lo:
             raise DecideError(
@@ -135,8 +146,9 @@ class EffectPrior:
         if self.entered is not None:
             lo, hi, level = self.entered
             return f"lognormal, median {self.median:.3g}, {level * 100:g}% between {lo:g} and {hi:g}"
-        return (f"lognormal, median {self.median:.3g}, 90% between {self.quantile(0.05):.3g} "
-                f"and {self.quantile(0.95):.3g}")
+        return (
+            f"lognormal, median {self.median:.3g}, 90% between {self.quantile(0.05):.3g} and {self.quantile(0.95):.3g}"
+        )
 
     @property
     def is_point(self) -> bool:
@@ -149,9 +161,7 @@ class EffectPrior:
             return float(self.median <= 1.0)
         return float(special.ndtr(-np.log(self.median) / self.log_sd))
 
-    def nodes(
-        self, panels: int = SEARCH_PANELS, kink: float | None = None
-    ) -> tuple[FloatArray, FloatArray]:
+    def nodes(self, panels: int = SEARCH_PANELS, kink: float | None = None) -> tuple[FloatArray, FloatArray]:
         """Effects and weights that integrate functions of the effect under harm.
 
         Composite Gauss-Legendre in the standard normal variable ``u`` of

@@ -197,8 +197,12 @@ class Problem:
     title: str = ""
 
     def __post_init__(self) -> None:
-        for name, kind in (("study", Study), ("effect", EffectPrior), ("consequences", Consequences),
-                           ("constraints", Constraints)):
+        for name, kind in (
+            ("study", Study),
+            ("effect", EffectPrior),
+            ("consequences", Consequences),
+            ("constraints", Constraints),
+        ):
             if not isinstance(getattr(self, name), kind):
                 raise DecideError(
                     f"{name} must be a {kind.__name__}, but got {_checks.show(getattr(self, name))}", (name,)
@@ -250,8 +254,10 @@ class Problem:
         if c.missed_hazard is not None:
             missed = f"{c.missed_hazard:g}"
         else:
-            missed = (f"{c.exposed_population:g} exposed x {c.background_rate:g} cases per person-year x "
-                      f"(effect - 1) x {c.cost_per_case:g} per case x {c.horizon_years:g} years")
+            missed = (
+                f"{c.exposed_population:g} exposed x {c.background_rate:g} cases per person-year x "
+                f"(effect - 1) x {c.cost_per_case:g} per case x {c.horizon_years:g} years"
+            )
         rows = [
             ("design", d.title),
             (d.baseline_name, f"{self.study.baseline:g}"),

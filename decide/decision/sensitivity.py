@@ -62,9 +62,15 @@ POLICY_POINTS = 1
 ROOT_RTOL = 1e-9
 
 _COST_LIKE = {
-    "prior.p_harm", "consequences.missed_hazard", "consequences.false_alarm", "consequences.per_subject",
-    "consequences.exposed_population", "consequences.background_rate", "consequences.cost_per_case",
-    "consequences.horizon_years", COST_RATIO,
+    "prior.p_harm",
+    "consequences.missed_hazard",
+    "consequences.false_alarm",
+    "consequences.per_subject",
+    "consequences.exposed_population",
+    "consequences.background_rate",
+    "consequences.cost_per_case",
+    "consequences.horizon_years",
+    COST_RATIO,
 }
 
 
@@ -190,8 +196,9 @@ def optima(problem: Problem, name: str, values: FloatArray, progress: Progress |
     if name in _COST_LIKE and normal_throughout(model) and (name not in _SCALED or central > 0):
         b = batch_optimum(model, *_batch_settings(problem, name, values))
         acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
-        return Optima(values, b.n, b.nominal, b.attained, b.power, b.loss, b.flag_now, b.clear_now,
-                      tuple(str(a) for a in acts))
+        return Optima(
+            values, b.n, b.nominal, b.attained, b.power, b.loss, b.flag_now, b.clear_now, tuple(str(a) for a in acts)
+        )
     rows: list[tuple[float, ...]] = []
     acts_: list[str] = []
     for i, v in enumerate(values):
@@ -264,8 +271,9 @@ def _settle_root(
     return float(_roots.brentq(gap, a, b, xtol=tol * 1e-3, rtol=ROOT_RTOL))
 
 
-def _batch_gap(problem: Problem, name: str, study_vs_none: bool, xs: FloatArray,
-               start: tuple[FloatArray, FloatArray] | None = None) -> tuple[FloatArray, FloatArray, FloatArray]:
+def _batch_gap(
+    problem: Problem, name: str, study_vs_none: bool, xs: FloatArray, start: tuple[FloatArray, FloatArray] | None = None
+) -> tuple[FloatArray, FloatArray, FloatArray]:
     """The action's loss difference at each value by the batch optimum, and the optimal sizes and z."""
     b = batch_optimum(build_model(problem), *_batch_settings(problem, name, xs), start=start)
     gap = b.flag_now - b.clear_now if not study_vs_none else b.loss - np.minimum(b.flag_now, b.clear_now)
@@ -387,9 +395,7 @@ def policy_losses(
     at = with_value(problem, name, x)
     out = {}
     for pol in standards:
-        if _invariant(pol, problem, name) and not (
-            problem.consequences.missed_hazard == 0 and name != "prior.p_harm"
-        ):
+        if _invariant(pol, problem, name) and not (problem.consequences.missed_hazard == 0 and name != "prior.p_harm"):
             out[pol.name] = _relinked_loss(central[pol.name], problem, at)
         else:
             d = decide_policy(at, pol)
@@ -404,7 +410,12 @@ def least_loss(losses: dict[str, float]) -> str | None:
 
 
 def _policy_gap(
-    problem: Problem, name: str, pair: Sequence[Policy], central: dict[str, Decision], first: str, second: str,
+    problem: Problem,
+    name: str,
+    pair: Sequence[Policy],
+    central: dict[str, Decision],
+    first: str,
+    second: str,
     seen: dict[float, dict[str, float]],
 ) -> Callable[[float], float]:
     """The two standards' loss difference at each input value (kept in ``seen`` by value)."""
@@ -457,7 +468,13 @@ def policy_thresholds(
 def _end_point(problem: Problem, value: float, standards_losses: dict[str, float] | None) -> EndPoint:
     d = optimize(problem)
     return EndPoint(
-        value, d.alpha, d.attained_alpha, d.power, d.n_per_group, d.expected_loss, recommended_action(d),
+        value,
+        d.alpha,
+        d.attained_alpha,
+        d.power,
+        d.n_per_group,
+        d.expected_loss,
+        recommended_action(d),
         None if standards_losses is None else least_loss(standards_losses),
     )
 
@@ -469,8 +486,13 @@ def _scan_end(scan: Optima, i: int, standards_losses: dict[str, float] | None) -
 
     n = num(scan.n_per_group)
     return EndPoint(
-        float(scan.values[i]), num(scan.alpha), num(scan.attained_alpha), num(scan.power),
-        None if n is None else int(n), num(scan.expected_loss), scan.action[i],
+        float(scan.values[i]),
+        num(scan.alpha),
+        num(scan.attained_alpha),
+        num(scan.power),
+        None if n is None else int(n),
+        num(scan.expected_loss),
+        scan.action[i],
         None if standards_losses is None else least_loss(standards_losses),
     )
 
@@ -496,10 +518,17 @@ def one_way(
     scan = optima(problem, name, _spaced(r, points)) if r.high > r.low else None
     thresholds: tuple[Threshold, ...] = () if scan is None else action_thresholds(problem, name, scan)
     ppoints = _policy_points(r, POLICY_POINTS) if standards and r.high > r.low else np.array([r.low, r.high])
-    central_losses = {k: math.inf if not d.feasible or d.expected_loss is None else d.expected_loss
-                      for k, d in central.items()}
-    plosses = [central_losses if float(x) == r.central else policy_losses(problem, name, float(x), standards, central)
-               for x in ppoints] if standards else []
+    central_losses = {
+        k: math.inf if not d.feasible or d.expected_loss is None else d.expected_loss for k, d in central.items()
+    }
+    plosses = (
+        [
+            central_losses if float(x) == r.central else policy_losses(problem, name, float(x), standards, central)
+            for x in ppoints
+        ]
+        if standards
+        else []
+    )
     if standards and r.high > r.low:
         thresholds += policy_thresholds(problem, name, ppoints, plosses, standards, central)
     first, last = (plosses[0], plosses[-1]) if plosses else (None, None)
@@ -544,8 +573,9 @@ def tornado(
     ranges = dict(ranges or {})
     standards = [p for p in policies if not is_benchmark(p)]
     central = {p.name: decide_policy(problem, p) for p in standards}
-    central_losses = {k: math.inf if not d.feasible or d.expected_loss is None else d.expected_loss
-                      for k, d in central.items()}
+    central_losses = {
+        k: math.inf if not d.feasible or d.expected_loss is None else d.expected_loss for k, d in central.items()
+    }
     rows = []
     for i, name in enumerate(names):
         r = ranges.get(name) or default_range(problem, name)
@@ -607,15 +637,28 @@ def two_way(
         grid = np.meshgrid(np.arange(xs.size), np.arange(ys.size))
         jx, iy = grid[0].ravel(), grid[1].ravel()
         settings = []
-        for vx, vy, base in ((px, py, problem.p_harm), (sx, sy, 1.0),
-                             (fx, fy, problem.consequences.false_alarm), (cx, cy, problem.consequences.per_subject)):
+        for vx, vy, base in (
+            (px, py, problem.p_harm),
+            (sx, sy, 1.0),
+            (fx, fy, problem.consequences.false_alarm),
+            (cx, cy, problem.consequences.per_subject),
+        ):
             settings.append(vx[jx] * vy[iy] / base if base != 0 else vx[jx])
         b = batch_optimum(model, settings[0], settings[1], settings[2], settings[3])
         acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
-        return TwoWay(problem.title, x.name, y.name, tuple(map(float, xs)), tuple(map(float, ys)),
-                      _table(b.nominal, shape), _table(b.attained, shape), _table(b.n, shape),
-                      _table(b.loss, shape), tuple(tuple(str(a) for a in row) for row in acts.reshape(shape)),
-                      "batch normal test")
+        return TwoWay(
+            problem.title,
+            x.name,
+            y.name,
+            tuple(map(float, xs)),
+            tuple(map(float, ys)),
+            _table(b.nominal, shape),
+            _table(b.attained, shape),
+            _table(b.n, shape),
+            _table(b.loss, shape),
+            tuple(tuple(str(a) for a in row) for row in acts.reshape(shape)),
+            "batch normal test",
+        )
     rows = []
     for i, vy in enumerate(ys):
         rows.append(optima(with_value(problem, y.name, float(vy)), x.name, xs))
@@ -625,8 +668,19 @@ def two_way(
     def stack(field: str) -> tuple[tuple[float, ...], ...]:
         return _table(np.array([getattr(o, field) for o in rows]), shape)
 
-    method = "batch normal test by row" if fast_available(problem) and x.name in _COST_LIKE else (
-        "optimiser at each cell")
-    return TwoWay(problem.title, x.name, y.name, tuple(map(float, xs)), tuple(map(float, ys)),
-                  stack("alpha"), stack("attained_alpha"), stack("n_per_group"), stack("expected_loss"),
-                  tuple(o.action for o in rows), method)
+    method = (
+        "batch normal test by row" if fast_available(problem) and x.name in _COST_LIKE else ("optimiser at each cell")
+    )
+    return TwoWay(
+        problem.title,
+        x.name,
+        y.name,
+        tuple(map(float, xs)),
+        tuple(map(float, ys)),
+        stack("alpha"),
+        stack("attained_alpha"),
+        stack("n_per_group"),
+        stack("expected_loss"),
+        tuple(o.action for o in rows),
+        method,
+    )

@@ -133,8 +133,10 @@ def _draw(problem: Problem, n: int, m: int, theta: FloatArray, rng: np.random.Ge
         p1 = theta * b / (1 + b * (theta - 1))
         return rng.binomial(n, p1).astype(float), rng.binomial(m, b, theta.size).astype(float)
     if design_name(problem) == "cohort-rate":
-        return (rng.poisson(n * s.years * b * theta).astype(float),
-                rng.poisson(m * s.years * b, theta.size).astype(float))
+        return (
+            rng.poisson(n * s.years * b * theta).astype(float),
+            rng.poisson(m * s.years * b, theta.size).astype(float),
+        )
     expected = n * s.years * b
     return rng.poisson(expected * theta).astype(float), np.full(theta.size, expected)
 
@@ -171,10 +173,12 @@ def _unique_p(keys: NDArray[np.float64], one: object) -> FloatArray:
 
 def _exact_p(problem: Problem, x: FloatArray, y: FloatArray, n: int, m: int, sides: int) -> FloatArray:
     """p-values of the design's exact test (two-sided: central, twice the smaller tail)."""
+
     def central(upper: float, lower: float) -> float:
         return upper if sides == 1 else min(1.0, 2 * min(upper, lower))
 
     if design_name(problem) in ("cohort-risk", "case-control"):
+
         def fisher(a: float, c: float) -> float:
             table = [[int(a), n - int(a)], [int(c), m - int(c)]]
             up = stats.fisher_exact(table, alternative="greater").pvalue
@@ -230,8 +234,10 @@ def simulate(
     if studies < 1:
         raise DecideError(f"studies must be at least 1, but got {studies}", ("studies",))
     if design_name(problem) not in SIMULATED:
-        raise DecideError(f"simulate: the {design_name(problem)} design cannot be simulated yet; "
-                          f"it can for {', '.join(SIMULATED)}", ("design",))
+        raise DecideError(
+            f"simulate: the {design_name(problem)} design cannot be simulated yet; it can for {', '.join(SIMULATED)}",
+            ("design",),
+        )
     if not decision.feasible or decision.n_per_group is None or decision.alpha is None:
         raise InfeasibleError(f"the policy {decision.policy} has no feasible design to simulate")
     assert decision.attained_alpha is not None and decision.power is not None
@@ -259,10 +265,27 @@ def simulate(
     false_alarm = _rate_check("false-alarm probability", null_hits, studies, decision.attained_alpha)
     power = _rate_check("power (averaged over the effect prior)", harm_hits, studies, decision.power)
     loss = _loss_check(problem, decision, studies, null_hits, missed_sum, missed_sq)
-    method = ("exact test (scipy.stats fisher_exact / binomtest / poisson tail)" if exact
-              else "normal statistic (scipy.stats.norm)")
-    return Simulation(problem.title, decision.policy, int(seed), studies, design_name(problem),
-                      decision.test or "", rule_sides, alpha, n, m, false_alarm, power, loss, method)
+    method = (
+        "exact test (scipy.stats fisher_exact / binomtest / poisson tail)"
+        if exact
+        else "normal statistic (scipy.stats.norm)"
+    )
+    return Simulation(
+        problem.title,
+        decision.policy,
+        int(seed),
+        studies,
+        design_name(problem),
+        decision.test or "",
+        rule_sides,
+        alpha,
+        n,
+        m,
+        false_alarm,
+        power,
+        loss,
+        method,
+    )
 
 
 def _loss_check(

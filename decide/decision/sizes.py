@@ -210,10 +210,17 @@ def _solver_size(model: LossModel, policy: Policy, lo: float) -> tuple[float | N
     allocation, years = s.design.applicable(study.allocation, study.years)
     try:
         sol = solve(
-            s.design, baseline=study.baseline, alpha=policy.alpha, power=policy.power,
+            s.design,
+            baseline=study.baseline,
+            alpha=policy.alpha,
+            power=policy.power,
             effect=model.problem.effect.median,
-            allocation=allocation, years=years, sides=s.sides, test=s.test,
-            continuity=s.continuity, max_n_per_group=SIZE_CEILING,
+            allocation=allocation,
+            years=years,
+            sides=s.sides,
+            test=s.test,
+            continuity=s.continuity,
+            max_n_per_group=SIZE_CEILING,
         )
     except DecideError:
         return None, OK

@@ -81,8 +81,9 @@ class BetaInput:
         limit = math.sqrt(mean * (1 - mean))
         if sd >= limit:
             raise DecideError(
-                f"{name}.sd must be below sqrt(mean (1 - mean)) = {limit:.4g} for a beta distribution, "
-                f"but got {sd:g}", (name,))
+                f"{name}.sd must be below sqrt(mean (1 - mean)) = {limit:.4g} for a beta distribution, but got {sd:g}",
+                (name,),
+            )
         total = mean * (1 - mean) / sd**2 - 1
         return cls(mean, mean * total, (1 - mean) * total)
 
@@ -144,8 +145,9 @@ def check_uncertainty(problem: Problem, inputs: dict[str, Distribution]) -> None
     """Raise :class:`DecideError` for an input that cannot carry a distribution in this problem."""
     for name, dist in inputs.items():
         if name not in FAMILIES:
-            raise DecideError(f"uncertainty: {name} cannot carry a distribution; choose from "
-                              f"{', '.join(FAMILIES)}", ("uncertainty",))
+            raise DecideError(
+                f"uncertainty: {name} cannot carry a distribution; choose from {', '.join(FAMILIES)}", ("uncertainty",)
+            )
         check_name(problem, name)
         family = "beta" if isinstance(dist, BetaInput) else "lognormal"
         if family != FAMILIES[name]:
@@ -154,8 +156,9 @@ def check_uncertainty(problem: Problem, inputs: dict[str, Distribution]) -> None
             try:
                 with_value(problem, name, dist.quantile(q) if not dist.is_point else value_of(problem, name))
             except DecideError as exc:
-                raise DecideError(f"uncertainty: {name}: the distribution reaches invalid values: {exc}",
-                                  ("uncertainty",)) from None
+                raise DecideError(
+                    f"uncertainty: {name}: the distribution reaches invalid values: {exc}", ("uncertainty",)
+                ) from None
 
 
 @dataclass(frozen=True)
@@ -235,13 +238,12 @@ def _design_losses(
     if not d.feasible or d.loss_parts is None or d.attained_alpha is None or d.n_total is None:
         return np.full(p.shape, np.inf)
     missed_unit = d.loss_parts["missed"] / problem.p_harm
-    return np.asarray(p * scale * missed_unit + (1 - p) * fa * d.attained_alpha
-                      + problem.consequences.fixed + per * d.n_total)
+    return np.asarray(
+        p * scale * missed_unit + (1 - p) * fa * d.attained_alpha + problem.consequences.fixed + per * d.n_total
+    )
 
 
-def _certainty_equivalent(
-    problem: Problem, settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
-) -> Problem:
+def _certainty_equivalent(problem: Problem, settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray]) -> Problem:
     """A problem whose loss equals, for every design, the loss averaged over the draws.
 
     The loss is linear in ``p_harm * scale``, ``(1 - p_harm) * false_alarm``
@@ -272,11 +274,15 @@ def _optima_per_draw(
     if "study.baseline" not in values and normal_throughout(model):
         b = batch_optimum(model, *_settings(problem, values, size))
         acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
-        out = {"alpha": b.nominal, "attained_alpha": b.attained, "power": b.power, "n_per_group": b.n,
-               "expected_loss": b.loss}
+        out = {
+            "alpha": b.nominal,
+            "attained_alpha": b.attained,
+            "power": b.power,
+            "n_per_group": b.n,
+            "expected_loss": b.loss,
+        }
         return out, tuple(str(a) for a in acts), "batch normal test", []
-    cols: dict[str, list[float]] = {k: [] for k in ("alpha", "attained_alpha", "power", "n_per_group",
-                                                   "expected_loss")}
+    cols: dict[str, list[float]] = {k: [] for k in ("alpha", "attained_alpha", "power", "n_per_group", "expected_loss")}
     acts_: list[str] = []
     seen: list[Decision] = []
     for i in range(size):
@@ -358,8 +364,21 @@ def probabilistic(
     own_loss = np.fmin(own["expected_loss"], np.minimum(flag, clear))
     best_avg = min(avg_loss, float(np.mean(flag)), float(np.mean(clear)))
     committed = _committed(central, central_losses, flag, clear)
-    return _result(problem, seed, draws, inputs, own, acts, own_loss, design_losses, central, committed,
-                   _summary("least average loss", avg, avg_loss), best_avg, method)
+    return _result(
+        problem,
+        seed,
+        draws,
+        inputs,
+        own,
+        acts,
+        own_loss,
+        design_losses,
+        central,
+        committed,
+        _summary("least average loss", avg, avg_loss),
+        best_avg,
+        method,
+    )
 
 
 def _committed(central: Decision, study: FloatArray, flag: FloatArray, clear: FloatArray) -> FloatArray:
@@ -373,14 +392,28 @@ def _committed(central: Decision, study: FloatArray, flag: FloatArray, clear: Fl
 
 
 def _result(
-    problem: Problem, seed: int, draws: int, inputs: dict[str, Distribution], own: dict[str, FloatArray],
-    acts: tuple[str, ...], own_loss: FloatArray, design_losses: dict[str, FloatArray], central: Decision,
-    central_losses: FloatArray, average: DesignSummary, best_avg: float, method: str,
+    problem: Problem,
+    seed: int,
+    draws: int,
+    inputs: dict[str, Distribution],
+    own: dict[str, FloatArray],
+    acts: tuple[str, ...],
+    own_loss: FloatArray,
+    design_losses: dict[str, FloatArray],
+    central: Decision,
+    central_losses: FloatArray,
+    average: DesignSummary,
+    best_avg: float,
+    method: str,
 ) -> Probabilistic:
-    spreads = tuple(
-        Spread(k, float(np.nanmean(own[k])), tuple(float(v) for v in np.nanquantile(own[k], QUANTILES)))
-        for k in ("alpha", "attained_alpha", "power", "n_per_group", "expected_loss")
-    ) if np.isfinite(own["expected_loss"]).any() else ()
+    spreads = (
+        tuple(
+            Spread(k, float(np.nanmean(own[k])), tuple(float(v) for v in np.nanquantile(own[k], QUANTILES)))
+            for k in ("alpha", "attained_alpha", "power", "n_per_group", "expected_loss")
+        )
+        if np.isfinite(own["expected_loss"]).any()
+        else ()
+    )
     names = list(design_losses)
     table = np.vstack([design_losses[k] for k in names])
     best = np.min(table, axis=0)
@@ -394,16 +427,34 @@ def _result(
     if abs(evpi) <= 1e-9 * abs(mean_own):  # zero up to rounding (it cannot be negative)
         evpi = 0.0
     return Probabilistic(
-        problem.title, int(seed), draws, {k: _describe(v) for k, v in sorted(inputs.items())}, QUANTILES,
-        spreads, action_share, share,
-        _summary("optimum at the central inputs", central, float(np.mean(central_losses))), average,
-        regret, evpi, float(np.mean(own_loss)), method,
+        problem.title,
+        int(seed),
+        draws,
+        {k: _describe(v) for k, v in sorted(inputs.items())},
+        QUANTILES,
+        spreads,
+        action_share,
+        share,
+        _summary("optimum at the central inputs", central, float(np.mean(central_losses))),
+        average,
+        regret,
+        evpi,
+        float(np.mean(own_loss)),
+        method,
     )
 
 
 def _with_baseline(
-    problem: Problem, values: dict[str, FloatArray], draws: int, seed: int, inputs: dict[str, Distribution],
-    own: dict[str, FloatArray], acts: tuple[str, ...], decisions: list[Decision], central: Decision, method: str,
+    problem: Problem,
+    values: dict[str, FloatArray],
+    draws: int,
+    seed: int,
+    inputs: dict[str, Distribution],
+    own: dict[str, FloatArray],
+    acts: tuple[str, ...],
+    decisions: list[Decision],
+    central: Decision,
+    method: str,
 ) -> Probabilistic:
     """Design losses under draws that move the baseline: each design re-evaluated per draw.
 
@@ -430,14 +481,23 @@ def _with_baseline(
         test = "exact" if d.test == "exact" else "normal"
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ApproximationWarning)
-            res = _power(s.design, d.alpha, d.n_per_group, effects, baselines[:, None],
-                         allocation=s.allocation if model.setting.design.allocation_name else None,
-                         years=s.years if model.setting.design.uses_years else None, sides=s.sides, test=test,
-                         continuity=s.continuity)
+            res = _power(
+                s.design,
+                d.alpha,
+                d.n_per_group,
+                effects,
+                baselines[:, None],
+                allocation=s.allocation if model.setting.design.allocation_name else None,
+                years=s.years if model.setting.design.uses_years else None,
+                sides=s.sides,
+                test=test,
+                continuity=s.continuity,
+            )
         miss = (1 - res.power) @ (weights * m_cost)
         att = res.attained_alpha[:, 0]
-        losses[d.policy] = np.asarray(p * scale * miss + (1 - p) * fa * att + problem.consequences.fixed
-                                      + per * d.n_total)
+        losses[d.policy] = np.asarray(
+            p * scale * miss + (1 - p) * fa * att + problem.consequences.fixed + per * d.n_total
+        )
     flag = (1 - p) * fa
     clear = p * scale * model.expected_missed
     own_loss = np.fmin(own["expected_loss"], np.minimum(flag, clear))
@@ -448,8 +508,21 @@ def _with_baseline(
     design_losses = {k: v for k, v in losses.items() if k not in draw_keys}
     central_losses = _committed(central, losses.get(central.policy, np.full(draws, np.inf)), flag, clear)
     average = _summary("least average loss among candidates", avg_d, float(np.mean(losses[avg_key])))
-    return _result(problem, seed, draws, inputs, own, acts, own_loss, design_losses, central, central_losses,
-                   average, best_avg, method + "; averaged-loss design among candidates (baseline uncertain)")
+    return _result(
+        problem,
+        seed,
+        draws,
+        inputs,
+        own,
+        acts,
+        own_loss,
+        design_losses,
+        central,
+        central_losses,
+        average,
+        best_avg,
+        method + "; averaged-loss design among candidates (baseline uncertain)",
+    )
 
 
 def lognormal_check_quantiles(dist: LognormalInput, qs: Sequence[float]) -> FloatArray:

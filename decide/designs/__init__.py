@@ -35,9 +35,7 @@ def get_design(design: str | StudyDesign) -> StudyDesign:
     try:
         return DESIGNS[design]
     except (KeyError, TypeError):
-        raise DecideError(
-            f"design must be one of {', '.join(DESIGNS)}, but got {design!r}"
-        ) from None
+        raise DecideError(f"design must be one of {', '.join(DESIGNS)}, but got {design!r}") from None
 
 
 __all__ = [

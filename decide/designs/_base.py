@@ -243,10 +243,13 @@ class StudyDesign(ABC):
         """The smallest expected cell count under either hypothesis."""
         alt = self.cell_counts(n, baseline, effect, allocation, years)
         null = self.cell_counts(n, baseline, np.ones_like(effect), allocation, years)
-        return np.asarray(np.minimum(
-            np.minimum.reduce(list(np.broadcast_arrays(*alt.values()))),
-            np.minimum.reduce(list(np.broadcast_arrays(*null.values()))),
-        ), dtype=np.float64)
+        return np.asarray(
+            np.minimum(
+                np.minimum.reduce(list(np.broadcast_arrays(*alt.values()))),
+                np.minimum.reduce(list(np.broadcast_arrays(*null.values()))),
+            ),
+            dtype=np.float64,
+        )
 
     @abstractmethod
     def normal_statistic(

@@ -24,9 +24,7 @@ import numpy as np
 from ._base import CountModel, FloatArray, Marginal, NormalMoments
 
 
-def normal_moments(
-    p1: FloatArray, p0: FloatArray, ratio: FloatArray, continuity: bool
-) -> NormalMoments:
+def normal_moments(p1: FloatArray, p0: FloatArray, ratio: FloatArray, continuity: bool) -> NormalMoments:
     """Moments of ``p1_hat - p0_hat`` per subject of the first group.
 
     Pooled variance ``pbar*qbar*(1 + 1/r)`` under no effect, with

@@ -86,9 +86,7 @@ class CohortRisk(StudyDesign):
         years: FloatArray,
         continuity: bool,
     ) -> tuple[FloatArray, FloatArray]:
-        return _two_proportions.normal_statistic(
-            exposed, other, n, self.comparison_size(n, allocation), continuity
-        )
+        return _two_proportions.normal_statistic(exposed, other, n, self.comparison_size(n, allocation), continuity)
 
     def count_model(
         self,

@@ -208,8 +208,11 @@ class MatchedCaseControl(StudyDesign):
         ``nan`` with no discordant pair, and for more controls per case,
         whose statistic needs every set's exposure count.
         """
-        b, c, m = np.broadcast_arrays(np.asarray(exposed, dtype=np.float64), np.asarray(other, dtype=np.float64),
-                                      np.asarray(allocation, dtype=np.float64))
+        b, c, m = np.broadcast_arrays(
+            np.asarray(exposed, dtype=np.float64),
+            np.asarray(other, dtype=np.float64),
+            np.asarray(allocation, dtype=np.float64),
+        )
         with np.errstate(divide="ignore", invalid="ignore"):
             z = np.where((b + c > 0) & (m == 1), (b - c) / np.sqrt(b + c), np.nan)
         return np.asarray(z), np.asarray(z)

@@ -316,9 +316,7 @@ def _x0_window(model: CountModel) -> tuple[FloatArray, FloatArray]:
     return lo0, hi0
 
 
-def _pair_law(
-    model: CountModel, x1: FloatArray, x0: FloatArray, valid: NDArray[np.bool_]
-) -> tuple[PairLaw, PairLaw]:
+def _pair_law(model: CountModel, x1: FloatArray, x0: FloatArray, valid: NDArray[np.bool_]) -> tuple[PairLaw, PairLaw]:
     """The pair laws of two cells of one multinomial over ``model.units``, no effect and each effect.
 
     With cell probabilities ``p1`` and ``p0``, the pair total ``d = x1 + x0``
@@ -389,10 +387,7 @@ def build_grid(model: CountModel, sides: int) -> CountGrid:
     null = model.exposed_null
     null_exposed = _pmf(null.family, null.trials[:, None], null.parameter[:, None], x1) * valid1
     alt = model.exposed_alt
-    alt_exposed = (
-        _pmf(alt.family, alt.trials[..., None], alt.parameter[..., None], x1[:, None, :])
-        * valid1[:, None, :]
-    )
+    alt_exposed = _pmf(alt.family, alt.trials[..., None], alt.parameter[..., None], x1[:, None, :]) * valid1[:, None, :]
     if model.other is None:
         x0 = np.zeros((x1.shape[0], 1))
         valid0 = np.ones_like(x0, dtype=bool)
@@ -631,9 +626,7 @@ def _grouped(label: IntArray, groups: int) -> tuple[IntArray, IntArray]:
     return order, np.searchsorted(label[order], np.arange(groups + 1))
 
 
-def shared_power(
-    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
-) -> tuple[FloatArray, FloatArray]:
+def shared_power(members: CountModel, study: IntArray, alpha: FloatArray, sides: int) -> tuple[FloatArray, FloatArray]:
     """Power and attained size of exact tests, one grid per study shared by its effects and alphas.
 
     For each distinct (study, alpha) the mass the test rejects is summed over
@@ -679,9 +672,7 @@ def shared_power(
     return np.minimum(out_power, 1.0), np.minimum(out_size, 1.0)
 
 
-def _joint_power(
-    members: CountModel, study: IntArray, alpha: FloatArray, sides: int
-) -> tuple[FloatArray, FloatArray]:
+def _joint_power(members: CountModel, study: IntArray, alpha: FloatArray, sides: int) -> tuple[FloatArray, FloatArray]:
     """Power and attained size where the counts are two cells of one multinomial.
 
     The pairs' masses then change with the effect on both axes, so each

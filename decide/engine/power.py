@@ -93,8 +93,14 @@ class PowerResult:
         todo = ~self.exact
         if todo.any():
             out[todo] = normal_false_alarm(
-                get_design(self.design), self.alpha[todo], self.n_per_group[todo], self.baseline[todo],
-                self.allocation[todo], self.years[todo], self.sides, self.continuity,
+                get_design(self.design),
+                self.alpha[todo],
+                self.n_per_group[todo],
+                self.baseline[todo],
+                self.allocation[todo],
+                self.years[todo],
+                self.sides,
+                self.continuity,
             )
         return np.asarray(out)
 
@@ -107,9 +113,7 @@ class PowerResult:
         return "normal-cc" if self.continuity else "normal"
 
 
-def choose_exact(
-    test: str, smallest_count: FloatArray, offered: NDArray[np.bool_] | bool = True
-) -> NDArray[np.bool_]:
+def choose_exact(test: str, smallest_count: FloatArray, offered: NDArray[np.bool_] | bool = True) -> NDArray[np.bool_]:
     """Where the exact test runs.
 
     ``auto``: where a cell expects fewer than 10.  ``exact``: everywhere but
@@ -174,9 +178,7 @@ def evaluate(
 ) -> PowerResult:
     """Power for validated inputs (the solver and optimiser call this)."""
     d = setting.design
-    arrays = np.broadcast_arrays(
-        alpha, n, effect, setting.baseline, setting.allocation, setting.years
-    )
+    arrays = np.broadcast_arrays(alpha, n, effect, setting.baseline, setting.allocation, setting.years)
     a, nn, e, b, r, y = (np.array(x, dtype=np.float64) for x in arrays)
     smallest = d.smallest_expected_count(nn, b, e, r, y)
     use_exact = choose_exact(setting.test, smallest, d.exact_offered(r))
@@ -293,7 +295,12 @@ def power(
     n = _checks.whole_at_least_one("n_per_group", n_per_group)
     _checks.broadcast(
         ("alpha", "n_per_group", "effect", "baseline", "allocation", "years"),
-        a, n, _checks.as_float_array("effect", effect), setting.baseline, setting.allocation, setting.years,
+        a,
+        n,
+        _checks.as_float_array("effect", effect),
+        setting.baseline,
+        setting.allocation,
+        setting.years,
     )
     e = check_effect(setting, effect)
     return evaluate(setting, a, n, e)

@@ -167,8 +167,9 @@ def normal_false_alarm(
     ``alpha``.  Studies where a cell expects more than
     :data:`~decide.designs.EXACT_UP_TO` get ``nan`` (not computed).
     """
-    alpha, n, b, r, y = (np.asarray(x, dtype=np.float64) for x in np.broadcast_arrays(
-        alpha, n, baseline, allocation, years))
+    alpha, n, b, r, y = (
+        np.asarray(x, dtype=np.float64) for x in np.broadcast_arrays(alpha, n, baseline, allocation, years)
+    )
     out = np.full(n.shape, np.nan)
     ones = np.ones_like(n)
     small = (design.smallest_expected_count(n, b, ones, r, y) <= EXACT_UP_TO) & design.exact_offered(r)
@@ -210,8 +211,9 @@ class _Study:
 
     def normal_p(self, exposed: FloatArray, other: FloatArray) -> FloatArray:
         s = self.setting
-        return normal_p_values(self.design, exposed, other, self.n, self.baseline, self.allocation,
-                               self.years, s.sides, s.continuity)
+        return normal_p_values(
+            self.design, exposed, other, self.n, self.baseline, self.allocation, self.years, s.sides, s.continuity
+        )
 
 
 def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effect: float) -> DecisionRule:
@@ -245,24 +247,51 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     >>> r.flag_at_least, r.cutoff_shown
     (5, '0.06825')
     """
+
     def one(x: FloatArray) -> FloatArray:
         return np.asarray(np.ravel(x)[:1], dtype=np.float64)
 
-    st = _Study(setting, np.array([float(n)]), one(setting.baseline), one(setting.allocation),
-                one(setting.years), float(alpha), exact)
+    st = _Study(
+        setting,
+        np.array([float(n)]),
+        one(setting.baseline),
+        one(setting.allocation),
+        one(setting.years),
+        float(alpha),
+        exact,
+    )
     d = setting.design
     test = "exact" if exact else ("normal-cc" if setting.continuity else "normal")
     count_name, total_name = _names(d)
-    base = DecisionRule(d.name, test, setting.sides, int(n), float(alpha), None, _shown(alpha, None),
-                        None, count_name, total_name, None, None, None)
+    base = DecisionRule(
+        d.name,
+        test,
+        setting.sides,
+        int(n),
+        float(alpha),
+        None,
+        _shown(alpha, None),
+        None,
+        count_name,
+        total_name,
+        None,
+        None,
+        None,
+    )
     smallest = float(d.smallest_expected_count(st.n, st.baseline, np.array([effect]), st.allocation, st.years)[0])
     if not exact and (smallest > EXACT_UP_TO or not d.exact_offered(st.allocation).all()):
         return _with_statement(base)
     model = d.count_model(st.n, st.baseline, np.array([[effect]]), st.allocation, st.years)
     grid = _exact.build_grid(model, setting.sides)
-    p = grid.p_value[0] if exact else np.where(
-        np.isfinite(grid.p_value[0]), st.normal_p(grid.exposed_counts[0][:, None], grid.other_counts[0][None, :]),
-        np.inf)
+    p = (
+        grid.p_value[0]
+        if exact
+        else np.where(
+            np.isfinite(grid.p_value[0]),
+            st.normal_p(grid.exposed_counts[0][:, None], grid.other_counts[0][None, :]),
+            np.inf,
+        )
+    )
     # an exact level below the floor is the test that never flags (p-values under 1e-20 read as 0)
     never = alpha <= 0 or (exact and alpha < _exact.ALPHA_FLOOR)
     flag = np.zeros(p.shape, dtype=bool) if never else p <= _limit(alpha)
@@ -272,8 +301,21 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     high = float(rest.min()) if rest.size else math.inf
     if never and exact:
         high = _exact.ALPHA_FLOOR
-    rule = DecisionRule(d.name, test, setting.sides, int(n), float(alpha), (low, high), _shown(alpha, (low, high)),
-                        false_alarm, count_name, total_name, None, None, None)
+    rule = DecisionRule(
+        d.name,
+        test,
+        setting.sides,
+        int(n),
+        float(alpha),
+        (low, high),
+        _shown(alpha, (low, high)),
+        false_alarm,
+        count_name,
+        total_name,
+        None,
+        None,
+        None,
+    )
     if never:
         return _with_statement(rule)
     if model.conditional == "poisson":
@@ -379,8 +421,9 @@ def _normal_rows(st: _Study, totals: FloatArray) -> tuple[Threshold, ...]:
     lim = _limit(st.alpha)
 
     def flags(x: FloatArray, side: int) -> NDArray[np.bool_]:
-        up, down = st.design.normal_statistic(x, totals - x, st.n, st.baseline, st.allocation, st.years,
-                                              st.setting.continuity)
+        up, down = st.design.normal_statistic(
+            x, totals - x, st.n, st.baseline, st.allocation, st.years, st.setting.continuity
+        )
         tail = special.ndtr(-up) if side > 0 else special.ndtr(down)
         return np.asarray(np.minimum(1.0, st.setting.sides * tail) <= lim)
 
@@ -389,9 +432,7 @@ def _normal_rows(st: _Study, totals: FloatArray) -> tuple[Threshold, ...]:
     return _thresholds(totals, c, a)
 
 
-def _bisect(
-    f: Callable[[FloatArray], NDArray[np.bool_]], lo: FloatArray, hi: FloatArray, rising: bool
-) -> FloatArray:
+def _bisect(f: Callable[[FloatArray], NDArray[np.bool_]], lo: FloatArray, hi: FloatArray, rising: bool) -> FloatArray:
     """The first (``rising``) or last flagged whole count in ``[lo, hi]``; ``nan`` if none."""
     left, right = lo - 1, hi + 1  # left never flags, right always does (rising), or mirrored
     if not rising:
@@ -460,12 +501,18 @@ def statement(rule: DecisionRule) -> str:
         if rule.flag_at_most is not None:
             parts.append(f"{rule.flag_at_most:,} or fewer")
         assert rule.expected_null is not None
-        return (f"Flag the exposure if {' or '.join(parts)} {rule.count_name} are observed "
-                f"({rule.expected_null:.3g} expected at the reference rate).")
+        return (
+            f"Flag the exposure if {' or '.join(parts)} {rule.count_name} are observed "
+            f"({rule.expected_null:.3g} expected at the reference rate)."
+        )
     if rule.thresholds:
-        return (f"Flag the exposure if the {rule.count_name} reach the threshold listed for the total "
-                f"number of {rule.total_name} observed.")
+        return (
+            f"Flag the exposure if the {rule.count_name} reach the threshold listed for the total "
+            f"number of {rule.total_name} observed."
+        )
     if rule.cutoff is not None:
         return "No outcome of the study flags the exposure."
-    return (f"Flag the exposure if the {rule.test} test is significant at alpha = {rule.cutoff_shown} "
-            "(the counts are too many to lay out).")
+    return (
+        f"Flag the exposure if the {rule.test} test is significant at alpha = {rule.cutoff_shown} "
+        "(the counts are too many to lay out)."
+    )

@@ -48,8 +48,10 @@ class TestChoice:
         if self.requested == "auto" and self.no_exact:
             return f"auto: normal, because {self.no_exact}"
         if self.requested == "exact" and not self.exact:
-            return (f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} ({smallest:.3g}): "
-                    "the normal approximation was used, which agrees closely there")
+            return (
+                f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} ({smallest:.3g}): "
+                "the normal approximation was used, which agrees closely there"
+            )
         if self.requested != "auto":
             return f"{self.requested} test requested"
         if self.exact:
@@ -62,8 +64,11 @@ def smallest_count(setting: Setting, n: ArrayLike, effect: ArrayLike) -> NDArray
     d = setting.design
     return np.asarray(
         d.smallest_expected_count(
-            np.asarray(n, dtype=np.float64), setting.baseline, np.asarray(effect, dtype=np.float64),
-            setting.allocation, setting.years,
+            np.asarray(n, dtype=np.float64),
+            setting.baseline,
+            np.asarray(effect, dtype=np.float64),
+            setting.allocation,
+            setting.years,
         ),
         dtype=np.float64,
     )

@@ -102,7 +102,6 @@ class Solution(PlainData):
     false_alarm: float | None = None
 
 
-
 # --------------------------------------------------------------------------
 # vectorised normal solves
 
@@ -155,16 +154,12 @@ def effect_cap(setting: Setting) -> FloatArray:
     return np.asarray(np.where(np.isfinite(limit), limit * (1 - 1e-12), MAX_EFFECT))
 
 
-def normal_effect(
-    setting: Setting, alpha: FloatArray, n: FloatArray, power: FloatArray
-) -> FloatArray:
+def normal_effect(setting: Setting, alpha: FloatArray, n: FloatArray, power: FloatArray) -> FloatArray:
     """Smallest effect above 1 the normal test detects with the given power.
 
     Returns ``nan`` where no effect up to the cap (:func:`effect_cap`) does.
     """
-    a, nn, p, b, r, y = np.broadcast_arrays(
-        alpha, n, power, setting.baseline, setting.allocation, setting.years
-    )
+    a, nn, p, b, r, y = np.broadcast_arrays(alpha, n, power, setting.baseline, setting.allocation, setting.years)
     shape = a.shape
     a, nn, p, b, r, y = (np.ravel(x) for x in (a, nn, p, b, r, y))
     cap = np.log(np.ravel(np.broadcast_to(effect_cap(setting), shape)))
@@ -172,8 +167,10 @@ def normal_effect(
 
     def near_tail(log_effect: FloatArray) -> FloatArray:
         m = d.normal_moments(b[:, None], np.exp(log_effect), r[:, None], y[:, None], setting.continuity)
-        return _normal.power(m, nn[:, None], a[:, None], 1) if setting.sides == 1 else (
-            _normal.power(m, nn[:, None], a[:, None] / 2, 1)
+        return (
+            _normal.power(m, nn[:, None], a[:, None], 1)
+            if setting.sides == 1
+            else (_normal.power(m, nn[:, None], a[:, None] / 2, 1))
         )
 
     reach = near_tail(cap[:, None])[:, 0] >= p
@@ -270,8 +267,7 @@ def _exact_size_scan(
     while curve(np.array([float(hi)]))[0] < target:
         if hi >= cap:
             raise InfeasibleError(
-                f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g} "
-                f"with the exact test"
+                f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g} with the exact test"
             )
         hi = min(cap, hi * 2)
     checked = min(cap, 2 * hi)
@@ -318,9 +314,7 @@ def _every_size(curve: Callable[[FloatArray], FloatArray], target: float, checke
     return n_first, max(n_first, n_stable), checked
 
 
-def _poisson_test_sizes(
-    setting: Setting, alpha: float, target: float, effect: float, cap: int
-) -> tuple[int, int, int]:
+def _poisson_test_sizes(setting: Setting, alpha: float, target: float, effect: float, cap: int) -> tuple[int, int, int]:
     """Exact one-sided sizes for the Poisson test against an expected count, segment by segment.
 
     With ``u`` expected cases per subject, the critical count is ``c`` for
@@ -350,9 +344,7 @@ def _poisson_test_sizes(
             if settled or start[-1] > cap:
                 break
         elif start[-1] > cap:
-            raise InfeasibleError(
-                f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}"
-            )
+            raise InfeasibleError(f"n_per_group: no size up to the cap of {cap:,} reaches power {target:g}")
         if c_max >= MAX_CRITICAL_COUNT:
             raise InfeasibleError(
                 f"n_per_group: the exact test would need a critical count above {MAX_CRITICAL_COUNT:,}, "
@@ -458,18 +450,25 @@ def solve(
     >>> many.n_per_group.tolist()
     [569.0, 188.0]
     """
-    unknown = _only_unknown(
-        {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect}
-    )
-    named = {"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect,
-             "baseline": baseline, "allocation": allocation, "years": years}
+    unknown = _only_unknown({"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect})
+    named = {
+        "alpha": alpha,
+        "power": power,
+        "n_per_group": n_per_group,
+        "effect": effect,
+        "baseline": baseline,
+        "allocation": allocation,
+        "years": years,
+    }
     arrays = any(v is not None and np.ndim(v) for v in named.values())
     if arrays:
         given = {k: v for k, v in named.items() if v is not None}
         _checks.broadcast(tuple(given), *(_checks.as_float_array(k, v) for k, v in given.items()))
     else:
-        alpha, power, effect = (None if v is None else _checks.scalar(k, v)
-                                for k, v in (("alpha", alpha), ("power", power), ("effect", effect)))
+        alpha, power, effect = (
+            None if v is None else _checks.scalar(k, v)
+            for k, v in (("alpha", alpha), ("power", power), ("effect", effect))
+        )
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
     check_alpha_power(alpha, power)
     if n_per_group is not None:
@@ -489,6 +488,7 @@ def solve(
 
 def _check_detectable(unknown: str, sides: int, effect: FloatArray) -> None:
     """An effect a size or alpha solve can look for: above 1 (one-sided, or any size solve), never 1."""
+
     def first(bad: Any) -> float:
         return float(np.ravel(effect)[np.flatnonzero(np.ravel(bad))[0]])
 
@@ -513,8 +513,15 @@ def _finish(
     extra: tuple[str, ...] = (),
 ) -> Solution:
     d = setting.design
-    forced = Setting(d, setting.baseline, setting.allocation, setting.years, setting.sides,
-                     "exact" if use_exact else "normal", setting.continuity)
+    forced = Setting(
+        d,
+        setting.baseline,
+        setting.allocation,
+        setting.years,
+        setting.sides,
+        "exact" if use_exact else "normal",
+        setting.continuity,
+    )
     res = evaluate(forced, np.asarray(alpha), np.asarray(float(n)), np.asarray(effect))
     b, r, y = setting.baseline, setting.allocation, setting.years
     nn = np.asarray(float(n))
@@ -585,15 +592,15 @@ def _solve_size(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any, 
     else:
         first, stable, checked = _exact_size_scan(setting, alpha, target, effect, guess, cap)
     if first > cap:
-        raise InfeasibleError(
-            f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:,}"
-        )
+        raise InfeasibleError(f"n_per_group: the exact test needs {first:,} per group, more than the cap of {cap:,}")
     if not _wants_exact(setting, first, effect):
         # the test is chosen at the size reported: where the exact test first reaches the target
         # every cell expects enough for the normal test, which reaches it from a smaller size on
         n_switch = first_normal_size(setting, effect, n_normal, first)
-        note = (f"the exact test first reaches power {target:g} at {first:,}; from {n_switch:,} on, "
-                "every cell expects enough cases for the normal test, which reaches it there")
+        note = (
+            f"the exact test first reaches power {target:g} at {first:,}; from {n_switch:,} on, "
+            "every cell expects enough cases for the normal test, which reaches it there"
+        )
         return _finish(setting, "n_per_group", alpha, n_switch, effect, False, target, extra=(note,))
     notes: tuple[str, ...] = ()
     if stable > first:
@@ -609,19 +616,17 @@ def _solve_alpha(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any,
     if not _wants_exact(setting, n, effect):
         a = float(normal_alpha(setting, nn, p, e))
         if not 0 < a < 1:
-            raise InfeasibleError(
-                f"alpha: no significance level below 1 gives power {target:g} with {n:,} per group"
-            )
+            raise InfeasibleError(f"alpha: no significance level below 1 gives power {target:g} with {n:,} per group")
         return _finish(setting, "alpha", a, n, effect, False, target)
     d = setting.design
-    model = d.count_model(nn[None], setting.baseline[None], e[None, None],
-                          setting.allocation[None], setting.years[None])
+    model = d.count_model(
+        nn[None], setting.baseline[None], e[None, None], setting.allocation[None], setting.years[None]
+    )
     path = _exact.rejection_path(_exact.build_grid(model, setting.sides), np.ones((1, 1)))
     reach = path.last[0] & (path.weighted[0, 0] >= target * (1 - 1e-12)) & (path.p_value[0] < 1)
     if not reach.any():
         raise InfeasibleError(
-            f"alpha: no significance level below 1 gives power {target:g} with {n:,} per group "
-            f"under the exact test"
+            f"alpha: no significance level below 1 gives power {target:g} with {n:,} per group under the exact test"
         )
     a = float(path.p_value[0, int(reach.argmax())])
     notes: tuple[str, ...] = ()
@@ -653,8 +658,7 @@ def _solve_effect(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any
             found = float(np.exp(_bracket_increasing(curve, np.zeros(1), np.log([hi]), p[None], 15, 6)[0]))
     if not np.isfinite(found):
         raise InfeasibleError(
-            f"effect: no {setting.design.effect_name} up to {top:g} reaches power {target:g} "
-            f"with {n:,} per group"
+            f"effect: no {setting.design.effect_name} up to {top:g} reaches power {target:g} with {n:,} per group"
         )
     return _finish(setting, "effect", alpha, n, found, use_exact, target)
 

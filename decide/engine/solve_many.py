@@ -38,8 +38,19 @@ from .selection import uses_exact
 from .study import Setting
 
 #: The numeric fields of a :class:`~decide.engine.solve.Solution`, as arrays in an array solve.
-NUMERIC = ("alpha", "attained_alpha", "power", "beta", "effect", "n_per_group", "n_total",
-           "smallest_expected_count", "n_stable", "n_checked", "false_alarm")
+NUMERIC = (
+    "alpha",
+    "attained_alpha",
+    "power",
+    "beta",
+    "effect",
+    "n_per_group",
+    "n_total",
+    "smallest_expected_count",
+    "n_stable",
+    "n_checked",
+    "false_alarm",
+)
 #: The text fields, one string per element.
 TEXT = ("test", "test_reason", "method")
 #: The given and solved quantities of a study, in the order the scalar solver takes them.
@@ -51,10 +62,13 @@ Scalar = Callable[..., Any]
 def _flat(setting: Setting, given: dict[str, Any]) -> tuple[Setting, dict[str, FloatArray], tuple[int, ...]]:
     """The setting and the given quantities broadcast to one shape, flattened."""
     parts = [np.asarray(v, dtype=np.float64) for v in given.values()]
-    shape = np.broadcast_shapes(*(p.shape for p in parts), setting.baseline.shape,
-                                setting.allocation.shape, setting.years.shape)
-    b, r, y = (np.broadcast_to(x, shape).ravel().astype(np.float64) for x in
-               (setting.baseline, setting.allocation, setting.years))
+    shape = np.broadcast_shapes(
+        *(p.shape for p in parts), setting.baseline.shape, setting.allocation.shape, setting.years.shape
+    )
+    b, r, y = (
+        np.broadcast_to(x, shape).ravel().astype(np.float64)
+        for x in (setting.baseline, setting.allocation, setting.years)
+    )
     flat = {k: np.broadcast_to(p, shape).ravel().astype(np.float64) for k, p in zip(given, parts, strict=True)}
     return replace(setting, baseline=b, allocation=r, years=y), flat, shape
 
@@ -83,14 +97,17 @@ def _reasons(requested: str, exact: NDArray[np.bool_], smallest: FloatArray) -> 
     if requested == "normal":
         return np.full(exact.shape, "normal test requested")
     if requested == "exact":
-        fell_back = np.char.add(np.char.add(
-            f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} (", count),
-            "): the normal approximation was used, which agrees closely there")
+        fell_back = np.char.add(
+            np.char.add(f"exact test requested, but every cell expects more than {EXACT_UP_TO:g} (", count),
+            "): the normal approximation was used, which agrees closely there",
+        )
         return np.where(exact, "exact test requested", fell_back)
-    as_exact = np.char.add(np.char.add("auto: exact, because the smallest expected cell count is ", count),
-                           f" (< {AUTO_EXACT_BELOW:g})")
-    as_normal = np.char.add(np.char.add(f"auto: normal, because every cell expects at least {AUTO_EXACT_BELOW:g} (",
-                                        count), ")")
+    as_exact = np.char.add(
+        np.char.add("auto: exact, because the smallest expected cell count is ", count), f" (< {AUTO_EXACT_BELOW:g})"
+    )
+    as_normal = np.char.add(
+        np.char.add(f"auto: normal, because every cell expects at least {AUTO_EXACT_BELOW:g} (", count), ")"
+    )
     return np.where(exact, as_exact, as_normal)
 
 
@@ -103,8 +120,13 @@ def _finish(setting: Setting, q: dict[str, FloatArray], exact: NDArray[np.bool_]
         sel = exact == use_exact
         if not sel.any():
             continue
-        part = replace(setting, baseline=setting.baseline[sel], allocation=setting.allocation[sel],
-                       years=setting.years[sel], test="exact" if use_exact else "normal")
+        part = replace(
+            setting,
+            baseline=setting.baseline[sel],
+            allocation=setting.allocation[sel],
+            years=setting.years[sel],
+            test="exact" if use_exact else "normal",
+        )
         res = evaluate(part, q["alpha"][sel], q["n_per_group"][sel], q["effect"][sel])
         out["attained_alpha"][sel] = res.attained_alpha
         out["power"][sel] = res.power
@@ -112,16 +134,22 @@ def _finish(setting: Setting, q: dict[str, FloatArray], exact: NDArray[np.bool_]
         out["false_alarm"][sel] = res.false_alarm()
         warnings += res.warnings
     n = q["n_per_group"]
-    out.update(alpha=q["alpha"], effect=q["effect"], n_per_group=n, beta=1 - out["power"],
-               n_total=n + d.comparison_size(n, setting.allocation))
+    out.update(
+        alpha=q["alpha"],
+        effect=q["effect"],
+        n_per_group=n,
+        beta=1 - out["power"],
+        n_total=n + d.comparison_size(n, setting.allocation),
+    )
     sided = "one-sided (harm)" if setting.sides == 1 else "two-sided (equal tails)"
     normal = d.normal_method + (", continuity-corrected" if setting.continuity else "")
     out["test"] = np.where(exact, "exact", "normal-cc" if setting.continuity else "normal")
     out["method"] = np.where(exact, f"{sided} {d.exact_method}", f"{sided} {normal}")
     out["test_reason"] = _reasons(setting.test, exact, out["smallest_expected_count"])
-    out["expected_cases"] = {k: np.asarray(v, dtype=np.float64) for k, v in
-                             d.cell_counts(n, setting.baseline, q["effect"], setting.allocation,
-                                           setting.years).items()}
+    out["expected_cases"] = {
+        k: np.asarray(v, dtype=np.float64)
+        for k, v in d.cell_counts(n, setting.baseline, q["effect"], setting.allocation, setting.years).items()
+    }
     out["warnings"] = warnings
     return out
 
@@ -145,8 +173,10 @@ def _one_by_one(
 ) -> tuple[list[tuple[NDArray[np.intp], Any]], list[str]]:
     """Scalar solves of the elements at ``where``, once per distinct design point."""
     given = [k for k in QUANTITIES if k != unknown]
-    table = np.stack([q[k][where] for k in given] + [setting.baseline[where], setting.allocation[where],
-                                                     setting.years[where]], axis=1)
+    table = np.stack(
+        [q[k][where] for k in given] + [setting.baseline[where], setting.allocation[where], setting.years[where]],
+        axis=1,
+    )
     points, which = np.unique(table, axis=0, return_inverse=True)
     found: list[tuple[NDArray[np.intp], Any]] = []
     notes: list[str] = []
@@ -155,9 +185,17 @@ def _one_by_one(
         if "n_per_group" in values:
             values["n_per_group"] = int(values["n_per_group"])
         try:
-            sol = scalar(setting.design, baseline=float(row[3]), allocation=float(row[4]), years=float(row[5]),
-                         sides=setting.sides, test=setting.test, continuity=setting.continuity,
-                         max_n_per_group=cap, **values)
+            sol = scalar(
+                setting.design,
+                baseline=float(row[3]),
+                allocation=float(row[4]),
+                years=float(row[5]),
+                sides=setting.sides,
+                test=setting.test,
+                continuity=setting.continuity,
+                max_n_per_group=cap,
+                **values,
+            )
         except InfeasibleError:
             continue
         found.append((where[np.ravel(which) == i], sol))
@@ -180,13 +218,20 @@ def solve_many(scalar: Scalar, setting: Setting, unknown: str, given: dict[str, 
     q = {**q, unknown: value} if unknown != "power" else q
     known = q[unknown] if unknown != "power" else np.zeros(exact.shape)
     direct = np.flatnonzero(~searched & np.isfinite(known))
-    keys = list(flat_setting.design.cell_counts(np.ones(1), flat_setting.baseline[:1], np.ones(1),
-                                                 flat_setting.allocation[:1], flat_setting.years[:1]))
+    keys = list(
+        flat_setting.design.cell_counts(
+            np.ones(1), flat_setting.baseline[:1], np.ones(1), flat_setting.allocation[:1], flat_setting.years[:1]
+        )
+    )
     out = _blank(exact.size, keys)
     notes: list[str] = []
     if direct.size:
-        sub = replace(flat_setting, baseline=flat_setting.baseline[direct],
-                      allocation=flat_setting.allocation[direct], years=flat_setting.years[direct])
+        sub = replace(
+            flat_setting,
+            baseline=flat_setting.baseline[direct],
+            allocation=flat_setting.allocation[direct],
+            years=flat_setting.years[direct],
+        )
         part = _finish(sub, {k: q[k][direct] for k in ("alpha", "n_per_group", "effect")}, exact[direct])
         _put(out, direct, part)
         notes += part["warnings"]

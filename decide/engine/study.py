@@ -34,9 +34,7 @@ def _designs_where(test: Callable[[StudyDesign], bool]) -> str:
     return ", ".join(name for name, d in DESIGNS.items() if test(d))
 
 
-def _not_applicable(
-    d: StudyDesign, name: str, why: str, takes: Callable[[StudyDesign], bool], got: Any
-) -> DecideError:
+def _not_applicable(d: StudyDesign, name: str, why: str, takes: Callable[[StudyDesign], bool], got: Any) -> DecideError:
     return DecideError(
         f"{name} does not apply to the {d.name} design ({why}); it applies to {_designs_where(takes)}, "
         f"but got {_checks.show(got)}",
@@ -78,12 +76,10 @@ def check_setting(
     d.check_baseline(b)
     # rates per person-year; probabilities already lie well inside these limits
     _checks.within("baseline", b, *_checks.BASELINE_RATE_RANGE)
-    alloc = _setting_value(d, "allocation", allocation, d.groups == 2,
-                           _checks.ALLOCATION_RANGE, "one group only")
+    alloc = _setting_value(d, "allocation", allocation, d.groups == 2, _checks.ALLOCATION_RANGE, "one group only")
     if d.groups == 2:
         d.check_allocation(alloc)
-    yrs = _setting_value(d, "years", years, d.uses_years, _checks.YEARS_RANGE,
-                         "it counts cases, not person-time")
+    yrs = _setting_value(d, "years", years, d.uses_years, _checks.YEARS_RANGE, "it counts cases, not person-time")
     s = _checks.sides(sides)
     t = _checks.choice("test", test, TESTS)
     if not isinstance(continuity, bool | np.bool_):

@@ -32,8 +32,10 @@ def loss_rows(a: Audit, unit: str) -> list[tuple[str, str]]:
     rows = [
         ("stated cost of a missed hazard", _money(x.missed_hazard, unit)),
         ("stated cost of a false alarm", _money(x.false_alarm, unit)),
-        ("stated cost ratio (miss : false alarm)",
-         NO_FINITE_RATIO if x.stated_cost_ratio is None else nb.number(x.stated_cost_ratio)),
+        (
+            "stated cost ratio (miss : false alarm)",
+            NO_FINITE_RATIO if x.stated_cost_ratio is None else nb.number(x.stated_cost_ratio),
+        ),
         ("expected loss of the protocol", _money(x.expected_loss, unit)),
         ("  from missed hazards", _money(x.loss_parts["missed"], unit)),
         ("  from false alarms", _money(x.loss_parts["false_alarm"], unit)),
@@ -57,18 +59,24 @@ def explanations(a: Audit, unit: str = "") -> list[str]:
     if x is not None:
         size_name = get_design(a.design).size_name
         if x.optimal_action == "study":
-            out.append(f"Loss-optimal design for the same costs and prior: {nb.count(x.optimal_n_per_group)} "
-                       f"{size_name}, the {x.optimal_test} test at alpha = {x.optimal_alpha}, expected loss "
-                       f"{nb.money(x.optimal_expected_loss, unit)}.")
+            out.append(
+                f"Loss-optimal design for the same costs and prior: {nb.count(x.optimal_n_per_group)} "
+                f"{size_name}, the {x.optimal_test} test at alpha = {x.optimal_alpha}, expected loss "
+                f"{nb.money(x.optimal_expected_loss, unit)}."
+            )
         else:
             verb = "flag" if x.optimal_action == "flag-now" else "clear"
-            out.append(f"By the same costs and prior no study is worth its cost: the best action is to {verb} "
-                       f"now (expected loss {nb.money(x.optimal_expected_loss, unit)}); the regret is measured "
-                       "against it.")
+            out.append(
+                f"By the same costs and prior no study is worth its cost: the best action is to {verb} "
+                f"now (expected loss {nb.money(x.optimal_expected_loss, unit)}); the regret is measured "
+                "against it."
+            )
         if x.net_benefit <= 0:
             better = "flag" if x.no_study["flag_now"] < x.no_study["clear_now"] else "clear"
-            out.append(f"By the stated costs the protocol is not worth running: deciding now (to {better}) "
-                       "has the smaller expected loss.")
+            out.append(
+                f"By the stated costs the protocol is not worth running: deciding now (to {better}) "
+                "has the smaller expected loss."
+            )
     return out
 
 
@@ -78,18 +86,24 @@ def markdown(a: Audit, unit: str) -> str:
     from .text import CAUTION
 
     d = get_design(a.design)
-    rows = [("test", a.method), *alpha_rows(a),
-            (f"power against {d.effect_name} {nb.number(a.effect)}", nb.probability(a.power)),
-            (d.size_name, nb.count(a.n_per_group)), ("subjects in all", nb.count(a.n_total))]
+    rows = [
+        ("test", a.method),
+        *alpha_rows(a),
+        (f"power against {d.effect_name} {nb.number(a.effect)}", nb.probability(a.power)),
+        (d.size_name, nb.count(a.n_per_group)),
+        ("subjects in all", nb.count(a.n_total)),
+    ]
     if a.prior is not None:
         rows.append((f"{d.effect_name} if harmful (prior, as entered)", a.prior))
     ratio = nb.ratio_range(a.implied_cost_ratio, a.implied_cost_ratio_range)
-    rows += [("implied cost ratio (miss : false alarm)", ratio),
-             (f"power gained per extra {one_subject(a.design)}", nb.number(a.marginal_power_per_subject)),
-             ("implied cost of a missed hazard", _money(a.implied_missed_hazard, unit)),
-             ("implied cost of a false alarm", _money(a.implied_false_alarm, unit)),
-             ("P(harmful \\| negative result)", nb.probability(a.p_harm_given_negative)),
-             ("P(harmful \\| positive result)", nb.probability(a.p_harm_given_positive))]
+    rows += [
+        ("implied cost ratio (miss : false alarm)", ratio),
+        (f"power gained per extra {one_subject(a.design)}", nb.number(a.marginal_power_per_subject)),
+        ("implied cost of a missed hazard", _money(a.implied_missed_hazard, unit)),
+        ("implied cost of a false alarm", _money(a.implied_false_alarm, unit)),
+        ("P(harmful \\| negative result)", nb.probability(a.p_harm_given_negative)),
+        ("P(harmful \\| positive result)", nb.probability(a.p_harm_given_positive)),
+    ]
     rows += [(f"{d.effect_name} detected with power {lv}", nb.number(e)) for lv, e in a.detectable_effects.items()]
     rows += loss_rows(a, unit)
     lines = [f"# Audit of a {d.title.lower()} protocol", "", "| quantity | value |", "|---|---|"]

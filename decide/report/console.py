@@ -80,8 +80,10 @@ def solution_table(s: Solution) -> Group:
         t.add_row(label, Text(value, style="bold green" if solved else ""))
 
     row(f"alpha (nominal, {'one' if s.sides == 1 else 'two'}-sided)", nb.probability(s.alpha), s.solved_for == "alpha")
-    row("alpha attained (real false-alarm probability)",
-        rule_words.NOT_COMPUTED if s.false_alarm is None else nb.probability(s.false_alarm))
+    row(
+        "alpha attained (real false-alarm probability)",
+        rule_words.NOT_COMPUTED if s.false_alarm is None else nb.probability(s.false_alarm),
+    )
     row("power", nb.probability(s.power), s.solved_for == "power")
     row("beta (miss probability)", nb.probability(s.beta))
     row(d.effect_name, nb.number(s.effect), s.solved_for == "effect")
@@ -143,8 +145,9 @@ def decision_table(d: Decision, title: str, unit: str) -> Group:
     if d.p_harm_given_negative is not None:
         t.add_row("P(harmful | negative result)", nb.probability(d.p_harm_given_negative))
     if d.p_harm_given_positive is not None:
-        t.add_row("P(harmful | positive result), the share of flags that are true",
-                  nb.probability(d.p_harm_given_positive))
+        t.add_row(
+            "P(harmful | positive result), the share of flags that are true", nb.probability(d.p_harm_given_positive)
+        )
     if d.detectable_effect is not None:
         t.add_row(f"smallest {design.effect_name} detected with power 0.8", nb.number(d.detectable_effect))
     t.add_row("implied cost ratio (miss : false alarm)", _ratio(d))
@@ -198,8 +201,10 @@ def _now_columns(decisions: Sequence[Decision] | Comparison) -> list[_NowColumn]
     if not isinstance(decisions, Comparison):
         return []
     c = decisions
-    return [_NowColumn("Flag now, no study", c.flag_now, c.flag_now - c.best_loss),
-            _NowColumn("Clear now, no study", c.clear_now, c.clear_now - c.best_loss)]
+    return [
+        _NowColumn("Flag now, no study", c.flag_now, c.flag_now - c.best_loss),
+        _NowColumn("Clear now, no study", c.clear_now, c.clear_now - c.best_loss),
+    ]
 
 
 def compare_table(
@@ -357,9 +362,12 @@ def audit_table(a: Audit, unit: str) -> Group:
     t.add_row("implied cost of a missed hazard", nb.money(a.implied_missed_hazard, cur))
     t.add_row("implied cost of a false alarm", nb.money(a.implied_false_alarm, cur))
     t.add_row("P(harmful | negative result)", nb.probability(a.p_harm_given_negative))
-    t.add_row("P(harmful | positive result)",
-              "none: a positive result cannot happen" if a.p_harm_given_positive is None
-              else nb.probability(a.p_harm_given_positive))
+    t.add_row(
+        "P(harmful | positive result)",
+        "none: a positive result cannot happen"
+        if a.p_harm_given_positive is None
+        else nb.probability(a.p_harm_given_positive),
+    )
     for level, effect in a.detectable_effects.items():
         t.add_row(f"{design.effect_name} detected with power {level}", nb.number(effect))
     for label, value in audit_words.loss_rows(a, cur):

@@ -93,8 +93,9 @@ def power_curves(problem: Problem, decisions: Sequence[Decision]) -> tuple[Float
             continue
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # approximation notes are in the decision's warnings
-            r = evaluate(setting, np.full(effects.shape, d.alpha), np.full(effects.shape, float(d.n_per_group)),
-                         effects)
+            r = evaluate(
+                setting, np.full(effects.shape, d.alpha), np.full(effects.shape, float(d.n_per_group)), effects
+            )
         curves.append(Curve(d.title, effects, np.asarray(r.power, dtype=np.float64)))
     e = problem.effect
     if e.is_point:

@@ -106,8 +106,19 @@ def gather(
             step("simulating studies")
             sim = simulate(problem, decision, SIMULATED_STUDIES, seed)
     return ReportResults(
-        loaded=loaded, comparison=comparison, decision=decision, tornado=tor, grid=grid,
-        probabilistic=drawn, simulation=sim, loss_curve=loss, power=power, alpha_curve=alpha,
-        quick=quick, seed=None if quick else seed, sha256=file_sha256(loaded.path),
-        version=__version__, date=(today or _dt.datetime.now(_dt.UTC).date()).isoformat(),
+        loaded=loaded,
+        comparison=comparison,
+        decision=decision,
+        tornado=tor,
+        grid=grid,
+        probabilistic=drawn,
+        simulation=sim,
+        loss_curve=loss,
+        power=power,
+        alpha_curve=alpha,
+        quick=quick,
+        seed=None if quick else seed,
+        sha256=file_sha256(loaded.path),
+        version=__version__,
+        date=(today or _dt.datetime.now(_dt.UTC).date()).isoformat(),
     )

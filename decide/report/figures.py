@@ -32,8 +32,12 @@ LINESTYLES = ("-", "--", "-.", ":")
 MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
 #: Colours of the actions on the two-way map.
 ACTION_COLOURS = {"study": "#56B4E9", "flag-now": "#E69F00", "clear-now": "#009E73", "not-available": "#999999"}
-ACTION_WORDS = {"study": "run the study", "flag-now": "flag now", "clear-now": "clear now",
-                "not-available": "not available"}
+ACTION_WORDS = {
+    "study": "run the study",
+    "flag-now": "flag now",
+    "clear-now": "clear now",
+    "not-available": "not available",
+}
 
 
 @dataclass(frozen=True)
@@ -53,11 +57,12 @@ def _svg(fig: Any, alt: str) -> str:
     from markupsafe import escape
 
     buf = io.StringIO()
-    fig.savefig(buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None, "Format": None,
-                                                                   "Type": None})
+    fig.savefig(
+        buf, format="svg", bbox_inches="tight", metadata={"Date": None, "Creator": None, "Format": None, "Type": None}
+    )
     plt.close(fig)
     text = buf.getvalue()
-    text = text[text.index("<svg"):]
+    text = text[text.index("<svg") :]
     text = re.sub(r"<metadata>.*?</metadata>", "", text, flags=re.DOTALL)
     return text.replace("<svg ", f'<svg role="img" aria-label="{escape(alt)}" ', 1)
 
@@ -67,8 +72,14 @@ def _setup() -> Any:
     from cycler import cycler
 
     matplotlib.use("svg")
-    matplotlib.rcParams.update({"svg.hashsalt": "decide", "svg.fonttype": "path", "font.size": 9,
-                                "axes.prop_cycle": cycler(color=PALETTE[1:] + PALETTE[:1])})
+    matplotlib.rcParams.update(
+        {
+            "svg.hashsalt": "decide",
+            "svg.fonttype": "path",
+            "font.size": 9,
+            "axes.prop_cycle": cycler(color=PALETTE[1:] + PALETTE[:1]),
+        }
+    )
     import matplotlib.pyplot as plt
 
     return plt
@@ -86,15 +97,20 @@ def _loss(plt: Any, r: ReportResults) -> Figure | None:
     if c is None:
         return None
     fig, ax = plt.subplots(figsize=(6.4, 3.6))
-    ax.plot(c.x, c.y, color=PALETTE[5], lw=1.8, drawstyle="steps-post" if r.decision.test == "exact" else "default",
-            label=f"at {nb.count(r.decision.n_per_group)} per group")
+    ax.plot(
+        c.x,
+        c.y,
+        color=PALETTE[5],
+        lw=1.8,
+        drawstyle="steps-post" if r.decision.test == "exact" else "default",
+        label=f"at {nb.count(r.decision.n_per_group)} per group",
+    )
     shown = []
     for i, d in enumerate(r.comparison):
         if d.attained_alpha is None or not d.feasible:
             continue
         y = float(np.interp(d.attained_alpha, c.x, c.y))
-        ax.plot([d.attained_alpha], [y], MARKERS[i % 8], color=PALETTE[(i + 1) % 8], ms=7, mec="black",
-                label=d.title)
+        ax.plot([d.attained_alpha], [y], MARKERS[i % 8], color=PALETTE[(i + 1) % 8], ms=7, mec="black", label=d.title)
         shown.append(f"{d.title} at attained alpha {nb.probability(d.attained_alpha)}")
     ax.set_xscale("log")
     ax.set_xlabel("attained alpha (false-alarm probability)")
@@ -103,13 +119,19 @@ def _loss(plt: Any, r: ReportResults) -> Figure | None:
     ax.legend(fontsize=7, loc="best")
     ax.grid(alpha=0.3)
     low = int(np.argmin(c.y))
-    alt = (f"A curve of expected loss against the attained alpha for a study of {nb.count(r.decision.n_per_group)} "
-           f"per group; it is lowest at attained alpha {nb.probability(c.x[low])} "
-           f"(loss {nb.money(c.y[low], cur)}). Marked: " + "; ".join(shown) + ".")
-    return Figure("loss-against-alpha", "Expected loss against the attained alpha",
-                  "Expected loss (missed hazards, false alarms and the study) at the loss-optimal size, as the "
-                  "alpha varies; each policy's alpha is marked on the curve (the policy's own size may differ).",
-                  alt, _svg(fig, alt))
+    alt = (
+        f"A curve of expected loss against the attained alpha for a study of {nb.count(r.decision.n_per_group)} "
+        f"per group; it is lowest at attained alpha {nb.probability(c.x[low])} "
+        f"(loss {nb.money(c.y[low], cur)}). Marked: " + "; ".join(shown) + "."
+    )
+    return Figure(
+        "loss-against-alpha",
+        "Expected loss against the attained alpha",
+        "Expected loss (missed hazards, false alarms and the study) at the loss-optimal size, as the "
+        "alpha varies; each policy's alpha is marked on the curve (the policy's own size may differ).",
+        alt,
+        _svg(fig, alt),
+    )
 
 
 def _power(plt: Any, r: ReportResults) -> Figure | None:
@@ -120,8 +142,9 @@ def _power(plt: Any, r: ReportResults) -> Figure | None:
     said = []
     for i, c in enumerate(lines):
         ax.plot(c.x, c.y, LINESTYLES[i % 4], color=PALETTE[(i + 1) % 8], lw=1.6, label=c.label)
-        said.append(f"{c.label}: power {nb.probability(np.interp(r.decision.design_effect, c.x, c.y))} at the "
-                    f"design effect")
+        said.append(
+            f"{c.label}: power {nb.probability(np.interp(r.decision.design_effect, c.x, c.y))} at the design effect"
+        )
     e = r.loaded.problem.effect
     if density.max() > 0:
         ax2 = ax.twinx()
@@ -138,9 +161,14 @@ def _power(plt: Any, r: ReportResults) -> Figure | None:
     ax.legend(fontsize=7, loc="lower right")
     ax.grid(alpha=0.3)
     alt = "Power against the effect for each available policy's design. " + "; ".join(said) + ". " + prior
-    return Figure("power-against-effect", "Power against the effect",
-                  "Probability that each available policy's study flags the exposure, by the true effect; the "
-                  "prior for the effect if harmful is shown beneath.", alt, _svg(fig, alt))
+    return Figure(
+        "power-against-effect",
+        "Power against the effect",
+        "Probability that each available policy's study flags the exposure, by the true effect; the "
+        "prior for the effect if harmful is shown beneath.",
+        alt,
+        _svg(fig, alt),
+    )
 
 
 def _effect_name(r: ReportResults) -> str:
@@ -164,23 +192,42 @@ def _tornado(plt: Any, r: ReportResults) -> Figure | None:
         for th in w.thresholds:
             if th.kind == "action" and th.value is not None and th.losses is not None:
                 ax.plot([th.losses[0]], [i], "kD", ms=6)
-                ax.annotate(f"break-even {nb.number(th.value)}", (th.losses[0], i), xytext=(4, 6),
-                            textcoords="offset points", fontsize=7)
-        said.append(f"{w.input}: {nb.money(lo, cur)} at {nb.number(w.low.value)} to {nb.money(hi, cur)} at "
-                    f"{nb.number(w.high.value)}")
+                ax.annotate(
+                    f"break-even {nb.number(th.value)}",
+                    (th.losses[0], i),
+                    xytext=(4, 6),
+                    textcoords="offset points",
+                    fontsize=7,
+                )
+        said.append(
+            f"{w.input}: {nb.money(lo, cur)} at {nb.number(w.low.value)} to {nb.money(hi, cur)} at "
+            f"{nb.number(w.high.value)}"
+        )
     ax.axvline(centre, color="black", lw=1)
     _money_axis(ax.xaxis)
     ax.set_yticks(range(len(rows)), [w.input for w in rows], fontsize=8)
     ax.set_xlabel(f"expected loss of the loss-optimal choice ({cur})" if cur else "expected loss")
     from matplotlib.patches import Patch
 
-    ax.legend(handles=[Patch(color=PALETTE[5], label="input at its low end"),
-                       Patch(facecolor=PALETTE[1], hatch="//", label="input at its high end")], fontsize=7)
-    alt = ("Tornado of the one-way sensitivity, inputs ordered by swing; break-even values (where the "
-           "recommended action changes) are marked by black diamonds. " + "; ".join(said) + ".")
-    return Figure("tornado", "One-way sensitivity (tornado)",
-                  "Expected loss of the loss-optimal choice as each input moves over its range, the others held; "
-                  "a diamond marks a break-even value where the recommended action changes.", alt, _svg(fig, alt))
+    ax.legend(
+        handles=[
+            Patch(color=PALETTE[5], label="input at its low end"),
+            Patch(facecolor=PALETTE[1], hatch="//", label="input at its high end"),
+        ],
+        fontsize=7,
+    )
+    alt = (
+        "Tornado of the one-way sensitivity, inputs ordered by swing; break-even values (where the "
+        "recommended action changes) are marked by black diamonds. " + "; ".join(said) + "."
+    )
+    return Figure(
+        "tornado",
+        "One-way sensitivity (tornado)",
+        "Expected loss of the loss-optimal choice as each input moves over its range, the others held; "
+        "a diamond marks a break-even value where the recommended action changes.",
+        alt,
+        _svg(fig, alt),
+    )
 
 
 def _map(plt: Any, r: ReportResults) -> Figure | None:
@@ -196,8 +243,15 @@ def _map(plt: Any, r: ReportResults) -> Figure | None:
     codes = np.array([[names.index(a) for a in row] for row in g.action], dtype=float)
     fig, ax = plt.subplots(figsize=(6.4, 4.0))
     x, y = np.asarray(g.x_values), np.asarray(g.y_values)
-    ax.pcolormesh(x, y, codes, cmap=ListedColormap(list(ACTION_COLOURS.values())), vmin=-0.5,
-                  vmax=len(names) - 0.5, shading="nearest")
+    ax.pcolormesh(
+        x,
+        y,
+        codes,
+        cmap=ListedColormap(list(ACTION_COLOURS.values())),
+        vmin=-0.5,
+        vmax=len(names) - 0.5,
+        shading="nearest",
+    )
     px, py = value_of(r.loaded.problem, g.x), value_of(r.loaded.problem, g.y)
     ax.plot([px], [py], "k*", ms=14, mec="white", label="the scenario")
     ax.set_xscale("log")
@@ -205,16 +259,27 @@ def _map(plt: Any, r: ReportResults) -> Figure | None:
     ax.set_xlabel(g.x)
     ax.set_ylabel(g.y + " (missed hazard : false alarm)")
     seen = [a for a in names if (codes == names.index(a)).any()]
-    ax.legend(handles=[Patch(color=ACTION_COLOURS[a], label=ACTION_WORDS[a]) for a in seen]
-              + [ax.lines[0]], fontsize=7, loc="upper left")
-    share = ", ".join(f"{ACTION_WORDS[a]} in {int((codes == names.index(a)).sum())} of {codes.size} cells"
-                      for a in seen)
-    alt = (f"Map of the recommended action over {g.x} ({nb.number(x.min())} to {nb.number(x.max())}) and {g.y} "
-           f"({nb.number(y.min())} to {nb.number(y.max())}): {share}. The scenario's point "
-           f"({nb.number(px)}, {nb.number(py)}) is marked with a star.")
-    return Figure("action-map", "Recommended action over the prior and the cost ratio",
-                  "The loss-optimal action at each pair of values of the prior probability of harm and the "
-                  "cost ratio, other inputs held; the star is the scenario as stated.", alt, _svg(fig, alt))
+    ax.legend(
+        handles=[Patch(color=ACTION_COLOURS[a], label=ACTION_WORDS[a]) for a in seen] + [ax.lines[0]],
+        fontsize=7,
+        loc="upper left",
+    )
+    share = ", ".join(
+        f"{ACTION_WORDS[a]} in {int((codes == names.index(a)).sum())} of {codes.size} cells" for a in seen
+    )
+    alt = (
+        f"Map of the recommended action over {g.x} ({nb.number(x.min())} to {nb.number(x.max())}) and {g.y} "
+        f"({nb.number(y.min())} to {nb.number(y.max())}): {share}. The scenario's point "
+        f"({nb.number(px)}, {nb.number(py)}) is marked with a star."
+    )
+    return Figure(
+        "action-map",
+        "Recommended action over the prior and the cost ratio",
+        "The loss-optimal action at each pair of values of the prior probability of harm and the "
+        "cost ratio, other inputs held; the star is the scenario as stated.",
+        alt,
+        _svg(fig, alt),
+    )
 
 
 def _judgments(plt: Any, r: ReportResults) -> Figure | None:
@@ -228,8 +293,15 @@ def _judgments(plt: Any, r: ReportResults) -> Figure | None:
     for i, d in enumerate(r.comparison):
         if d.implied_cost_ratio is None or d.attained_alpha is None or not d.feasible:
             continue
-        ax.plot([d.implied_cost_ratio], [d.attained_alpha], MARKERS[i % 8], color=PALETTE[(i + 1) % 8], ms=7,
-                mec="black", label=d.title)
+        ax.plot(
+            [d.implied_cost_ratio],
+            [d.attained_alpha],
+            MARKERS[i % 8],
+            color=PALETTE[(i + 1) % 8],
+            ms=7,
+            mec="black",
+            label=d.title,
+        )
         said.append(f"{d.title} implies {nb.number(d.implied_cost_ratio)}")
     ax.axvline(r.decision.stated_cost_ratio, color="black", ls=":", lw=1.2, label="the stated ratio")
     ax.set_xscale("log")
@@ -240,13 +312,20 @@ def _judgments(plt: Any, r: ReportResults) -> Figure | None:
     ax.set_ylabel("attained alpha")
     ax.legend(fontsize=7, loc="best")
     ax.grid(alpha=0.3)
-    alt = ("The loss-optimal attained alpha falls as a missed hazard is made costlier relative to a false alarm. "
-           f"The stated ratio is {nb.number(r.decision.stated_cost_ratio)}. Each policy sits at the ratio its "
-           "alpha implies: " + "; ".join(said) + ".")
-    return Figure("value-judgments", "Which value judgment each standard makes",
-                  "The loss-optimal attained alpha against the cost ratio (missed hazard : false alarm); each policy "
-                  "is marked at the cost ratio for which its alpha would be optimal, the dotted line is the ratio "
-                  "the scenario states.", alt, _svg(fig, alt))
+    alt = (
+        "The loss-optimal attained alpha falls as a missed hazard is made costlier relative to a false alarm. "
+        f"The stated ratio is {nb.number(r.decision.stated_cost_ratio)}. Each policy sits at the ratio its "
+        "alpha implies: " + "; ".join(said) + "."
+    )
+    return Figure(
+        "value-judgments",
+        "Which value judgment each standard makes",
+        "The loss-optimal attained alpha against the cost ratio (missed hazard : false alarm); each policy "
+        "is marked at the cost ratio for which its alpha would be optimal, the dotted line is the ratio "
+        "the scenario states.",
+        alt,
+        _svg(fig, alt),
+    )
 
 
 def draw_all(r: ReportResults) -> list[Figure]:

@@ -53,13 +53,26 @@ def context(r: ReportResults, figures: list[Figure], figure_dir: str = "") -> di
     """Everything the templates show."""
     s = r.simulation
     return {
-        "title": r.loaded.title, "description": r.loaded.description.strip(), "caution": CAUTION,
-        "quick": r.quick, "inputs": input_rows(r), "chosen": chosen(r), "policies": policy_rows(r),
-        "figures": figures, "figure_dir": figure_dir, "tornado": tornado_rows(r), "draws": probabilistic_rows(r),
+        "title": r.loaded.title,
+        "description": r.loaded.description.strip(),
+        "caution": CAUTION,
+        "quick": r.quick,
+        "inputs": input_rows(r),
+        "chosen": chosen(r),
+        "policies": policy_rows(r),
+        "figures": figures,
+        "figure_dir": figure_dir,
+        "tornado": tornado_rows(r),
+        "draws": probabilistic_rows(r),
         "simulation": simulation_rows(r),
         "sim_studies": num("simulation.studies", s.studies if s else SIMULATED_STUDIES, "count"),
-        "sim_method": s.method if s else "", "seed": r.seed, "justification": justification(r),
-        "cautions": cautions(r), "version": r.version, "date": r.date, "sha256": r.sha256,
+        "sim_method": s.method if s else "",
+        "seed": r.seed,
+        "justification": justification(r),
+        "cautions": cautions(r),
+        "version": r.version,
+        "date": r.date,
+        "sha256": r.sha256,
         "file_name": r.loaded.path.name,
     }
 

@@ -36,21 +36,28 @@ def rules_out(r: Interpretation) -> str:
     level = f"{r.confidence:.0%}"
     name = r.effect_name
     if not math.isfinite(r.excludes_above):
-        return (f"The data set no upper limit on the {name} at {level} confidence: this study cannot "
-                f"exclude any {name}, however large.")
-    return (f"At {level} confidence the data are compatible with {name}s from {number(r.ci_low)} to "
-            f"{number(r.ci_high)}: this study cannot exclude {_a(name)} of {number(r.excludes_above)}; "
-            f"it rules out only {name}s above that.")
+        return (
+            f"The data set no upper limit on the {name} at {level} confidence: this study cannot "
+            f"exclude any {name}, however large."
+        )
+    return (
+        f"At {level} confidence the data are compatible with {name}s from {number(r.ci_low)} to "
+        f"{number(r.ci_high)}: this study cannot exclude {_a(name)} of {number(r.excludes_above)}; "
+        f"it rules out only {name}s above that."
+    )
 
 
 def power_note(r: Interpretation) -> str:
     """What the study could detect, and the warning against reading 'not significant' as 'safe'."""
     if r.detectable is None:
-        could = (f"the study had less than {r.detect_power:.0%} power against every {r.effect_name} "
-                 "in the design's range")
+        could = (
+            f"the study had less than {r.detect_power:.0%} power against every {r.effect_name} in the design's range"
+        )
     else:
-        could = (f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
-                 f"{number(r.detectable)} or more (alpha {probability(r.detect_alpha)})")
+        could = (
+            f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
+            f"{number(r.detectable)} or more (alpha {probability(r.detect_alpha)})"
+        )
     if r.p_value > r.detect_alpha:
         return f"A result that is not significant is not evidence of safety: {could}."
     return f"For scale: {could}."
@@ -58,27 +65,32 @@ def power_note(r: Interpretation) -> str:
 
 def bayes_sentence(r: Interpretation, unit: str = "") -> str:
     """The posterior probability of harm and the action of least posterior expected loss."""
-    return (f"Given the data, the probability of harm is {probability(r.posterior_harm)} "
-            f"({probability(r.prior_harm)} before the study). Expected loss of flagging "
-            f"{money(r.loss_flag, literal(unit))}, of clearing {money(r.loss_clear, literal(unit))}: "
-            f"the loss-minimising action is to {_ACTION[r.recommendation]}."
-            + _disagreement(r))
+    return (
+        f"Given the data, the probability of harm is {probability(r.posterior_harm)} "
+        f"({probability(r.prior_harm)} before the study). Expected loss of flagging "
+        f"{money(r.loss_flag, literal(unit))}, of clearing {money(r.loss_clear, literal(unit))}: "
+        f"the loss-minimising action is to {_ACTION[r.recommendation]}." + _disagreement(r)
+    )
 
 
 def _disagreement(r: Interpretation) -> str:
     """Why the loss-minimising action may differ from the loss-optimal policy's test."""
     if r.loss_optimal_verdict is None or r.loss_optimal_verdict == r.recommendation:
         return ""
-    return (f" The loss-optimal policy's test says {r.loss_optimal_verdict}: its threshold was fixed before the "
-            "data, for the planned size and design effect, while this action weighs these data's exact "
-            "likelihood over the whole prior.")
+    return (
+        f" The loss-optimal policy's test says {r.loss_optimal_verdict}: its threshold was fixed before the "
+        "data, for the planned size and design effect, while this action weighs these data's exact "
+        "likelihood over the whole prior."
+    )
 
 
 def estimate_sentence(r: Interpretation) -> str:
     """The estimate, its interval and the one-sided p-value."""
     est = "not estimable (no case in the comparison group)" if r.estimate is None else number(r.estimate)
-    return (f"{r.effect_name.capitalize()} {est}; {r.confidence:.0%} interval {number(r.ci_low)} to "
-            f"{_limit(r.ci_high)}; exact one-sided p-value {probability(r.p_value)}.")
+    return (
+        f"{r.effect_name.capitalize()} {est}; {r.confidence:.0%} interval {number(r.ci_low)} to "
+        f"{_limit(r.ci_high)}; exact one-sided p-value {probability(r.p_value)}."
+    )
 
 
 def interpretation_record(r: Interpretation, title: str = "", unit: str = "") -> dict[str, Any]:
@@ -124,11 +136,17 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
         verdict: str = pv.verdict or "no test"
         if not pv.available and pv.verdict is not None:
             verdict += " (policy unmet)"
-        v.add_row(Text(literal(pv.policy)), pv.test or "-", probability(pv.alpha), probability(pv.attained_alpha),
-                  verdict)
+        v.add_row(
+            Text(literal(pv.policy)), pv.test or "-", probability(pv.alpha), probability(pv.attained_alpha), verdict
+        )
     notes = [Text(s) for s in (estimate_sentence(r), rules_out(r), power_note(r), bayes_sentence(r, unit))]
-    notes.append(Text(f"Method: {r.method}. Verdicts apply each policy's test and nominal alpha to these "
-                      "data; 'policy unmet' marks a policy whose study the limits did not allow.", style="dim"))
+    notes.append(
+        Text(
+            f"Method: {r.method}. Verdicts apply each policy's test and nominal alpha to these "
+            "data; 'policy unmet' marks a policy whose study the limits did not allow.",
+            style="dim",
+        )
+    )
     notes += [Text(f"Note: {w}", style="yellow") for w in r.warnings]
     notes.append(Text(CAUTION, style="dim italic"))
     return Group(t, v, Panel(Group(*notes), border_style="dim"))
@@ -149,11 +167,28 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
         f"| expected loss of flagging | {money(r.loss_flag)}{cur} |",
         f"| expected loss of clearing | {money(r.loss_clear)}{cur} |",
         f"| loss-minimising action | {r.recommendation} |",
-        "", "| policy | test | alpha | attained alpha | verdict |", "|---|---|---|---|---|",
+        "",
+        "| policy | test | alpha | attained alpha | verdict |",
+        "|---|---|---|---|---|",
     ]
     for pv in r.verdicts:
-        lines.append(f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {probability(pv.alpha)} | "
-                     f"{probability(pv.attained_alpha)} | {pv.verdict or 'no test'} |")
-    lines += ["", estimate_sentence(r), "", rules_out(r), "", power_note(r), "", bayes_sentence(r, unit), "",
-              f"Method: {r.method}.", "", f"> {CAUTION}", ""]
+        lines.append(
+            f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {probability(pv.alpha)} | "
+            f"{probability(pv.attained_alpha)} | {pv.verdict or 'no test'} |"
+        )
+    lines += [
+        "",
+        estimate_sentence(r),
+        "",
+        rules_out(r),
+        "",
+        power_note(r),
+        "",
+        bayes_sentence(r, unit),
+        "",
+        f"Method: {r.method}.",
+        "",
+        f"> {CAUTION}",
+        "",
+    ]
     return "\n".join(lines)

@@ -54,20 +54,37 @@ def num(key: str, value: Any, kind: str, currency: str = "") -> Num:
 
 #: Units of the inputs, by key path ("$" is the currency; "@..." a design word).
 _UNITS = {
-    "study.baseline": "@baseline_name", "study.allocation": "@allocation_name",
-    "study.years": "years per subject", "study.sides": "1 one-sided, 2 two-sided",
-    "effect.ratio": "@effect_name", "effect.low": "@effect_name", "effect.high": "@effect_name",
-    "effect.median": "@effect_name", "effect.level": "share of the prior",
-    "prior.p_harm": "probability", "consequences.missed_hazard": "$", "consequences.false_alarm": "$",
-    "consequences.per_subject": "$ per subject", "consequences.fixed": "$", "consequences.cost_per_case": "$ per case",
-    "consequences.exposed_population": "people", "consequences.background_rate": "cases per person-year",
-    "consequences.horizon_years": "years", "constraints.max_n_per_group": "@size_name",
-    "constraints.min_n_per_group": "@size_name", "constraints.max_alpha": "probability",
-    "constraints.min_power": "probability", "constraints.budget": "$",
+    "study.baseline": "@baseline_name",
+    "study.allocation": "@allocation_name",
+    "study.years": "years per subject",
+    "study.sides": "1 one-sided, 2 two-sided",
+    "effect.ratio": "@effect_name",
+    "effect.low": "@effect_name",
+    "effect.high": "@effect_name",
+    "effect.median": "@effect_name",
+    "effect.level": "share of the prior",
+    "prior.p_harm": "probability",
+    "consequences.missed_hazard": "$",
+    "consequences.false_alarm": "$",
+    "consequences.per_subject": "$ per subject",
+    "consequences.fixed": "$",
+    "consequences.cost_per_case": "$ per case",
+    "consequences.exposed_population": "people",
+    "consequences.background_rate": "cases per person-year",
+    "consequences.horizon_years": "years",
+    "constraints.max_n_per_group": "@size_name",
+    "constraints.min_n_per_group": "@size_name",
+    "constraints.max_alpha": "probability",
+    "constraints.min_power": "probability",
+    "constraints.budget": "$",
 }
 _MONEY = {k for k, u in _UNITS.items() if u.startswith("$")}
-_COUNTS = {"constraints.max_n_per_group", "constraints.min_n_per_group", "consequences.exposed_population",
-           "study.sides"}
+_COUNTS = {
+    "constraints.max_n_per_group",
+    "constraints.min_n_per_group",
+    "consequences.exposed_population",
+    "study.sides",
+}
 
 
 def _unit(key: str, design: Any, currency: str) -> str:
@@ -94,14 +111,25 @@ def input_rows(r: ReportResults) -> list[dict[str, Any]]:
             else:
                 kind = "money" if key in _MONEY else "count" if key in _COUNTS else "number"
                 shown = num(f"inputs.{key}", value, kind, "")
-            rows.append({"key": key, "value": shown, "unit": _unit(key, design, currency),
-                         "source": source_of(model.sources, key), "sourced": key in model.sources})
+            rows.append(
+                {
+                    "key": key,
+                    "value": shown,
+                    "unit": _unit(key, design, currency),
+                    "source": source_of(model.sources, key),
+                    "sourced": key in model.sources,
+                }
+            )
     return rows
 
 
 def _action_words(action: str) -> str:
-    return {"study": "run the study", "flag-now": "flag now", "clear-now": "clear now",
-            "not-available": "not available"}.get(action, action)
+    return {
+        "study": "run the study",
+        "flag-now": "flag now",
+        "clear-now": "clear now",
+        "not-available": "not available",
+    }.get(action, action)
 
 
 def chosen(r: ReportResults) -> dict[str, Any]:
@@ -153,10 +181,15 @@ def rule_rows(rule: Any) -> dict[str, Any] | None:
         shown = [groups[i] for i in picks]
     single = None  # one group: the sentence already names the threshold
     return {
-        "statement": rule.statement, "total_name": rule.total_name or "", "count_name": rule.count_name,
+        "statement": rule.statement,
+        "total_name": rule.total_name or "",
+        "count_name": rule.count_name,
         "rows": [(totals_text(a, b), threshold_text(up, down)) for a, b, up, down in shown],
-        "thinned": len(shown) < len(groups), "all_rows": len(groups), "single": single,
-        "coverage": _coverage(rule) if groups else "", "cutoff": rule.cutoff_shown,
+        "thinned": len(shown) < len(groups),
+        "all_rows": len(groups),
+        "single": single,
+        "coverage": _coverage(rule) if groups else "",
+        "cutoff": rule.cutoff_shown,
     }
 
 
@@ -164,8 +197,11 @@ def _implied(i: int, d: Any) -> Any:
     key = f"comparison.decisions[{i}]"
     if d.implied_cost_ratio_range is not None:
         lo, hi = d.implied_cost_ratio_range
-        return [num(f"{key}.implied_cost_ratio_range[0]", lo, "number"), " to ",
-                num(f"{key}.implied_cost_ratio_range[1]", hi, "number")]
+        return [
+            num(f"{key}.implied_cost_ratio_range[0]", lo, "number"),
+            " to ",
+            num(f"{key}.implied_cost_ratio_range[1]", hi, "number"),
+        ]
     return [num(f"{key}.implied_cost_ratio", d.implied_cost_ratio, "number")]
 
 
@@ -175,20 +211,24 @@ def policy_rows(r: ReportResults) -> list[dict[str, Any]]:
     rows = []
     for i, d in enumerate(r.comparison):
         k = f"comparison.decisions[{i}]"
-        rows.append({
-            "title": d.title, "summary": d.summary, "action": _action_words(d.action),
-            "reason": d.reason or "",
-            "alpha": num(f"{k}.alpha", d.alpha, "probability"),
-            "attained_alpha": num(f"{k}.attained_alpha", d.attained_alpha, "probability"),
-            "power": num(f"{k}.power", d.power, "probability"),
-            "n_per_group": num(f"{k}.n_per_group", d.n_per_group, "count"),
-            "expected_loss": num(f"{k}.expected_loss", d.expected_loss, "money", cur),
-            "regret": num(f"{k}.regret", d.regret, "money", cur),
-            "true_flags": num(f"{k}.p_harm_given_positive", d.p_harm_given_positive, "probability"),
-            "harm_if_negative": num(f"{k}.p_harm_given_negative", d.p_harm_given_negative, "probability"),
-            "detectable": num(f"{k}.detectable_effect", d.detectable_effect, "number"),
-            "implied": _implied(i, d),
-        })
+        rows.append(
+            {
+                "title": d.title,
+                "summary": d.summary,
+                "action": _action_words(d.action),
+                "reason": d.reason or "",
+                "alpha": num(f"{k}.alpha", d.alpha, "probability"),
+                "attained_alpha": num(f"{k}.attained_alpha", d.attained_alpha, "probability"),
+                "power": num(f"{k}.power", d.power, "probability"),
+                "n_per_group": num(f"{k}.n_per_group", d.n_per_group, "count"),
+                "expected_loss": num(f"{k}.expected_loss", d.expected_loss, "money", cur),
+                "regret": num(f"{k}.regret", d.regret, "money", cur),
+                "true_flags": num(f"{k}.p_harm_given_positive", d.p_harm_given_positive, "probability"),
+                "harm_if_negative": num(f"{k}.p_harm_given_negative", d.p_harm_given_negative, "probability"),
+                "detectable": num(f"{k}.detectable_effect", d.detectable_effect, "number"),
+                "implied": _implied(i, d),
+            }
+        )
     return rows
 
 
@@ -199,18 +239,27 @@ def tornado_rows(r: ReportResults) -> list[dict[str, Any]]:
     cur, rows = r.loaded.currency, []
     for i, w in enumerate(r.tornado.rows):
         k = f"tornado.rows[{i}]"
-        breaks = [[num(f"{k}.thresholds[{j}].value", t.value, "number"),
-                   f" ({_action_words(t.below)} below, {_action_words(t.above)} above)"]
-                  for j, t in enumerate(w.thresholds) if t.value is not None and t.kind == "action"]
-        rows.append({
-            "input": w.input, "central": num(f"{k}.central", w.central, "number"),
-            "low": num(f"{k}.low.value", w.low.value, "number"),
-            "high": num(f"{k}.high.value", w.high.value, "number"),
-            "low_loss": num(f"{k}.low.expected_loss", w.low.expected_loss, "money", cur),
-            "high_loss": num(f"{k}.high.expected_loss", w.high.expected_loss, "money", cur),
-            "low_action": _action_words(w.low.action), "high_action": _action_words(w.high.action),
-            "breaks": breaks,
-        })
+        breaks = [
+            [
+                num(f"{k}.thresholds[{j}].value", t.value, "number"),
+                f" ({_action_words(t.below)} below, {_action_words(t.above)} above)",
+            ]
+            for j, t in enumerate(w.thresholds)
+            if t.value is not None and t.kind == "action"
+        ]
+        rows.append(
+            {
+                "input": w.input,
+                "central": num(f"{k}.central", w.central, "number"),
+                "low": num(f"{k}.low.value", w.low.value, "number"),
+                "high": num(f"{k}.high.value", w.high.value, "number"),
+                "low_loss": num(f"{k}.low.expected_loss", w.low.expected_loss, "money", cur),
+                "high_loss": num(f"{k}.high.expected_loss", w.high.expected_loss, "money", cur),
+                "low_action": _action_words(w.low.action),
+                "high_action": _action_words(w.high.action),
+                "breaks": breaks,
+            }
+        )
     return rows
 
 
@@ -220,19 +269,25 @@ def simulation_rows(r: ReportResults) -> list[dict[str, Any]]:
     if s is None:
         return []
     cur, rows = r.loaded.currency, []
-    for name, label in (("false_alarm", "false-alarm probability"), ("power", "power (over the prior)"),
-                        ("loss", "loss")):
+    for name, label in (
+        ("false_alarm", "false-alarm probability"),
+        ("power", "power (over the prior)"),
+        ("loss", "loss"),
+    ):
         c = getattr(s, name)
         kind = "money" if name == "loss" else "probability"
         k = f"simulation.{name}"
-        rows.append({
-            "label": label, "analytic": num(f"{k}.analytic", c.analytic, kind, cur),
-            "simulated": num(f"{k}.simulated", c.simulated, kind, cur),
-            "low": num(f"{k}.interval.low", c.interval.low, kind, cur) if c.interval else nb.MISSING,
-            "high": num(f"{k}.interval.high", c.interval.high, kind, cur) if c.interval else nb.MISSING,
-            "se": num(f"{k}.standard_error", c.standard_error, kind, cur),
-            "agrees": "no, differs by more than 4 standard errors" if c.flagged else "yes",
-        })
+        rows.append(
+            {
+                "label": label,
+                "analytic": num(f"{k}.analytic", c.analytic, kind, cur),
+                "simulated": num(f"{k}.simulated", c.simulated, kind, cur),
+                "low": num(f"{k}.interval.low", c.interval.low, kind, cur) if c.interval else nb.MISSING,
+                "high": num(f"{k}.interval.high", c.interval.high, kind, cur) if c.interval else nb.MISSING,
+                "se": num(f"{k}.standard_error", c.standard_error, kind, cur),
+                "agrees": "no, differs by more than 4 standard errors" if c.flagged else "yes",
+            }
+        )
     return rows
 
 
@@ -245,8 +300,10 @@ def probabilistic_rows(r: ReportResults) -> dict[str, Any] | None:
     return {
         "draws": num("probabilistic.draws", p.draws, "count"),
         "inputs": [f"{k}: {v}" for k, v in p.inputs.items()],
-        "actions": [(_action_words(a), num(f"probabilistic.action_probability.{a}", v, "probability"))
-                    for a, v in p.action_probability.items()],
+        "actions": [
+            (_action_words(a), num(f"probabilistic.action_probability.{a}", v, "probability"))
+            for a, v in p.action_probability.items()
+        ],
         "regret": num("probabilistic.expected_regret_of_central", p.expected_regret_of_central, "money", cur),
         "evpi": num("probabilistic.evpi", p.evpi, "money", cur),
     }
@@ -256,10 +313,13 @@ def cautions(r: ReportResults) -> list[str]:
     """The assumptions and cautions every report carries."""
     d = r.decision
     exact = d.test == "exact"
-    test = ("The chosen study is analysed with an exact test (" + (d.method or "") + "); its attained alpha "
-            "is below the nominal one because counts are whole numbers." if exact else
-            "The chosen study is analysed with a normal approximation (" + (d.method or "-") + "); it can be "
-            "inaccurate when few cases are expected, where an exact test is used instead.")
+    test = (
+        "The chosen study is analysed with an exact test (" + (d.method or "") + "); its attained alpha "
+        "is below the nominal one because counts are whole numbers."
+        if exact
+        else "The chosen study is analysed with a normal approximation (" + (d.method or "-") + "); it can be "
+        "inaccurate when few cases are expected, where an exact test is used instead."
+    )
     return [
         CAUTION,
         "The prior probability of harm, the effect worth detecting and the costs are value judgments; the "

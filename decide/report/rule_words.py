@@ -85,8 +85,9 @@ def alpha_rows(d: Any) -> list[tuple[str, str]]:
         sided = "one-sided" if sides == 1 else "two-sided"
     value = attained(d)
     rows = [(f"alpha, nominal ({sided}; flag when p <= alpha)", nominal_text(d))]
-    rows.append(("alpha, attained (real false-alarm probability)",
-                 nb.probability(value) if value is not None else NOT_COMPUTED))
+    rows.append(
+        ("alpha, attained (real false-alarm probability)", nb.probability(value) if value is not None else NOT_COMPUTED)
+    )
     return rows
 
 
@@ -118,17 +119,20 @@ def console_rule(rule: DecisionRule | None, title: str = "Decision rule") -> Any
             t.add_row(*cells)
         parts.append(t)
         if every > 1:
-            parts.append(Text(f"One group of totals in {every} is shown; --markdown and --json list them all.",
-                              style="dim"))
+            parts.append(
+                Text(f"One group of totals in {every} is shown; --markdown and --json list them all.", style="dim")
+            )
         parts.append(Text(_coverage(rule), style="dim"))
     return Group(*parts)
 
 
 def _coverage(rule: DecisionRule) -> str:
     sided = "one-sided" if rule.sides == 1 else "two-sided"
-    return (f"The table covers the totals that carry 99.9% of the probability both if the exposure is harmful "
-            f"(at the design effect) and if it is harmless. On any other total, flag when the {sided} "
-            f"{rule.test} test gives p <= {rule.cutoff_shown}.")
+    return (
+        f"The table covers the totals that carry 99.9% of the probability both if the exposure is harmful "
+        f"(at the design effect) and if it is harmless. On any other total, flag when the {sided} "
+        f"{rule.test} test gives p <= {rule.cutoff_shown}."
+    )
 
 
 def markdown_rule(rule: DecisionRule | None, heading: str = "") -> list[str]:

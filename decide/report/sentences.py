@@ -26,18 +26,24 @@ def _now(action: str) -> str:
 def recommendation(d: Decision, currency: str = "") -> str:
     """What the decision recommends, in one or two sentences (money in ``currency``)."""
     if d.action == "not-available":
-        return (f"{d.title} cannot be met: {d.reason}. Without a study, the better action is to "
-                f"{_now(d.no_study_action)} (expected loss {nb.money(d.no_study_loss, currency)}).")
+        return (
+            f"{d.title} cannot be met: {d.reason}. Without a study, the better action is to "
+            f"{_now(d.no_study_action)} (expected loss {nb.money(d.no_study_loss, currency)})."
+        )
     if d.action != "study":
-        return (f"No study is worth its cost under {d.title.lower()}: {_now(d.action)} "
-                f"(expected loss {nb.money(d.no_study_loss, currency)}, against "
-                f"{nb.money(d.expected_loss, currency)} with the study).")
+        return (
+            f"No study is worth its cost under {d.title.lower()}: {_now(d.action)} "
+            f"(expected loss {nb.money(d.no_study_loss, currency)}, against "
+            f"{nb.money(d.expected_loss, currency)} with the study)."
+        )
     size_name = get_design(d.design).size_name
     sided = "one-sided" if d.sides == 1 else "two-sided"
-    return (f"Study {d.n_per_group:,} {size_name} ({d.n_total:,} subjects in all); flag the exposure "
-            f"if the {sided} {d.test} test is significant at alpha = {_shown_alpha(d)}. "
-            f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): "
-            f"{nb.money(d.net_benefit, currency)}.")
+    return (
+        f"Study {d.n_per_group:,} {size_name} ({d.n_total:,} subjects in all); flag the exposure "
+        f"if the {sided} {d.test} test is significant at alpha = {_shown_alpha(d)}. "
+        f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): "
+        f"{nb.money(d.net_benefit, currency)}."
+    )
 
 
 def _shown_alpha(d: Decision) -> str:
@@ -47,8 +53,10 @@ def _shown_alpha(d: Decision) -> str:
 
 def best_action(c: Comparison, currency: str = "") -> str:
     """The best of all actions in a comparison, a study or none, in one sentence (money in ``currency``)."""
-    now = (f"without a study, flagging now would cost {nb.money(c.flag_now, currency)} and clearing now "
-           f"{nb.money(c.clear_now, currency)}")
+    now = (
+        f"without a study, flagging now would cost {nb.money(c.flag_now, currency)} and clearing now "
+        f"{nb.money(c.clear_now, currency)}"
+    )
     if c.best_action == "study":
         # the best study may belong to a policy left out of the comparison shown (--policy)
         title = next((d.title for d in c if d.policy == c.best_policy), c.best_policy)

@@ -22,11 +22,29 @@ from .text import CAUTION, NO_FINITE_RATIO, POSTERIOR_NOTE, RANGE_NOTE, literal,
 
 #: Columns of the flat comparison formats (CSV).
 COMPARE_COLUMNS = (
-    "policy", "feasible", "action", "test", "alpha", "attained_alpha", "beta", "power",
-    "power_at_design_effect", "n_per_group", "n_total", "expected_loss", "regret",
-    "p_harm_given_negative", "p_harm_given_positive", "detectable_effect", "implied_cost_ratio",
-    "implied_cost_ratio_low", "implied_cost_ratio_high", "net_benefit", "study_cost",
-    "expected_loss_if_allowed", "reason",
+    "policy",
+    "feasible",
+    "action",
+    "test",
+    "alpha",
+    "attained_alpha",
+    "beta",
+    "power",
+    "power_at_design_effect",
+    "n_per_group",
+    "n_total",
+    "expected_loss",
+    "regret",
+    "p_harm_given_negative",
+    "p_harm_given_positive",
+    "detectable_effect",
+    "implied_cost_ratio",
+    "implied_cost_ratio_low",
+    "implied_cost_ratio_high",
+    "net_benefit",
+    "study_cost",
+    "expected_loss_if_allowed",
+    "reason",
 )
 
 
@@ -40,8 +58,12 @@ def _flat(d: Decision) -> dict[str, Any]:
     """
     row = d.to_dict()
     low, high = d.implied_cost_ratio_range or (None, None)
-    row.update(implied_cost_ratio_low=low, implied_cost_ratio_high=high,
-               study_cost=(d.loss_parts or {}).get("study"), expected_loss_if_allowed=None)
+    row.update(
+        implied_cost_ratio_low=low,
+        implied_cost_ratio_high=high,
+        study_cost=(d.loss_parts or {}).get("study"),
+        expected_loss_if_allowed=None,
+    )
     if not d.feasible:
         row.update(expected_loss=None, regret=None, net_benefit=None, expected_loss_if_allowed=d.expected_loss)
     return row
@@ -52,8 +74,10 @@ def _now_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
     if not isinstance(decisions, Comparison):
         return []
     c = decisions
-    return [{"policy": action, "action": action, "expected_loss": loss, "regret": loss - c.best_loss}
-            for action, loss in (("flag-now", c.flag_now), ("clear-now", c.clear_now))]
+    return [
+        {"policy": action, "action": action, "expected_loss": loss, "regret": loss - c.best_loss}
+        for action, loss in (("flag-now", c.flag_now), ("clear-now", c.clear_now))
+    ]
 
 
 def decision_rows(decisions: Sequence[Decision]) -> list[dict[str, Any]]:
@@ -106,8 +130,12 @@ def compare_document(
         policies.append(entry)
     best = None
     if isinstance(decisions, Comparison):
-        best = {"action": decisions.best_action, "policy": decisions.best_policy, "expected_loss": decisions.best_loss,
-                "in_words": best_action(decisions, currency)}
+        best = {
+            "action": decisions.best_action,
+            "policy": decisions.best_policy,
+            "expected_loss": decisions.best_loss,
+            "in_words": best_action(decisions, currency),
+        }
     document: dict[str, Any] = nb.for_json(
         {
             "scenario": scenario,
@@ -122,23 +150,53 @@ def compare_document(
     return document
 
 
-_HEAD = ["choice", "action", "alpha", "attained alpha", "beta", "power (design)",
-         "per group", "in all", "expected loss", "regret", "P(harm \\| negative)",
-         "P(harm \\| positive)", "detects (80%)", "implied cost ratio"]
+_HEAD = [
+    "choice",
+    "action",
+    "alpha",
+    "attained alpha",
+    "beta",
+    "power (design)",
+    "per group",
+    "in all",
+    "expected loss",
+    "regret",
+    "P(harm \\| negative)",
+    "P(harm \\| positive)",
+    "detects (80%)",
+    "implied cost ratio",
+]
 
-_UNAVAILABLE_HEAD = ["policy", "would need: per group", "would need: in all", "alpha", "power (design)",
-                     "would cost: study", "if allowed, expected loss"]
+_UNAVAILABLE_HEAD = [
+    "policy",
+    "would need: per group",
+    "would need: in all",
+    "alpha",
+    "power (design)",
+    "would cost: study",
+    "if allowed, expected loss",
+]
 
 _ACTION_WORDS = {"study": "study", "flag-now": "flag now", "clear-now": "clear now"}
 
 
 def _markdown_row(d: Decision, cur: str) -> str:
-    cells = [markdown_literal(d.title), _ACTION_WORDS.get(d.action, d.action), rule_words.nominal_text(d),
-             nb.probability(rule_words.attained(d)), nb.probability(d.beta), nb.probability(d.power_at_design_effect),
-             nb.count(d.n_per_group), nb.count(d.n_total), nb.money(d.expected_loss, cur),
-             nb.money(d.regret, cur), nb.probability(d.p_harm_given_negative),
-             nb.probability(d.p_harm_given_positive), nb.number(d.detectable_effect),
-             nb.ratio_range(d.implied_cost_ratio, d.implied_cost_ratio_range)]
+    cells = [
+        markdown_literal(d.title),
+        _ACTION_WORDS.get(d.action, d.action),
+        rule_words.nominal_text(d),
+        nb.probability(rule_words.attained(d)),
+        nb.probability(d.beta),
+        nb.probability(d.power_at_design_effect),
+        nb.count(d.n_per_group),
+        nb.count(d.n_total),
+        nb.money(d.expected_loss, cur),
+        nb.money(d.regret, cur),
+        nb.probability(d.p_harm_given_negative),
+        nb.probability(d.p_harm_given_positive),
+        nb.number(d.detectable_effect),
+        nb.ratio_range(d.implied_cost_ratio, d.implied_cost_ratio_range),
+    ]
     return "| " + " | ".join(cells) + " |"
 
 
@@ -148,9 +206,11 @@ def _markdown_now_rows(decisions: Sequence[Decision], cur: str) -> list[str]:
         return []
     c = decisions
     dashes = [nb.MISSING] * 6
-    return [f"| {title} | no study | " + " | ".join(dashes) + f" | {nb.money(loss, cur)} | "
-            f"{nb.money(loss - c.best_loss, cur)} | " + " | ".join([nb.MISSING] * 4) + " |"
-            for title, loss in (("Flag now, no study", c.flag_now), ("Clear now, no study", c.clear_now))]
+    return [
+        f"| {title} | no study | " + " | ".join(dashes) + f" | {nb.money(loss, cur)} | "
+        f"{nb.money(loss - c.best_loss, cur)} | " + " | ".join([nb.MISSING] * 4) + " |"
+        for title, loss in (("Flag now, no study", c.flag_now), ("Clear now, no study", c.clear_now))
+    ]
 
 
 def _markdown_unavailable(decisions: Sequence[Decision], cur: str) -> list[str]:
@@ -158,13 +218,25 @@ def _markdown_unavailable(decisions: Sequence[Decision], cur: str) -> list[str]:
     out = [d for d in decisions if not d.feasible]
     if not out:
         return []
-    lines = ["", "## Not available under the constraints", "",
-             "What each policy would need; the constraints do not allow it, so it is not a choice.", "",
-             "| " + " | ".join(_UNAVAILABLE_HEAD) + " |", "|" + "---|" * len(_UNAVAILABLE_HEAD)]
+    lines = [
+        "",
+        "## Not available under the constraints",
+        "",
+        "What each policy would need; the constraints do not allow it, so it is not a choice.",
+        "",
+        "| " + " | ".join(_UNAVAILABLE_HEAD) + " |",
+        "|" + "---|" * len(_UNAVAILABLE_HEAD),
+    ]
     for d in out:
-        cells = [markdown_literal(d.title), nb.count(d.n_per_group), nb.count(d.n_total), rule_words.nominal_text(d),
-                 nb.probability(d.power_at_design_effect), nb.money((d.loss_parts or {}).get("study"), cur),
-                 nb.money(d.expected_loss, cur)]
+        cells = [
+            markdown_literal(d.title),
+            nb.count(d.n_per_group),
+            nb.count(d.n_total),
+            rule_words.nominal_text(d),
+            nb.probability(d.power_at_design_effect),
+            nb.money((d.loss_parts or {}).get("study"), cur),
+            nb.money(d.expected_loss, cur),
+        ]
         lines.append("| " + " | ".join(cells) + " |")
     lines += [""] + [f"- **{markdown_literal(d.title)}**: {markdown_literal(d.reason)}." for d in out]
     return lines
@@ -208,25 +280,31 @@ def decision_markdown(d: Decision, title: str, inputs: list[tuple[str, str]], cu
     lines += ["### Inputs", ""]
     lines += [f"- {markdown_literal(label)}: {markdown_literal(value)}" for label, value in inputs] + [""]
     rows: list[tuple[str, str]] = [
-        ("meets the constraints", "yes" if d.feasible else f"no: {markdown_literal(d.reason)}")]
+        ("meets the constraints", "yes" if d.feasible else f"no: {markdown_literal(d.reason)}")
+    ]
     if d.n_per_group is not None and d.loss_parts is not None:
-        rows += [("test", d.method or nb.MISSING), *rule_words.alpha_rows(d),
-                 ("beta (miss probability, averaged over the effect)", nb.probability(d.beta)),
-                 (f"power at the design effect {nb.number(d.design_effect)}", nb.probability(d.power_at_design_effect)),
-                 ("size per group", nb.count(d.n_per_group)), ("subjects in all", nb.count(d.n_total)),
-                 ("expected loss", nb.money(d.expected_loss, cur)),
-                 ("from missed hazards", nb.money(d.loss_parts["missed"], cur)),
-                 ("from false alarms", nb.money(d.loss_parts["false_alarm"], cur)),
-                 ("study cost", nb.money(d.loss_parts["study"], cur))]
-    rows += [("loss if flagged now, no study", nb.money(d.no_study["flag_now"], cur)),
-             ("loss if cleared now, no study", nb.money(d.no_study["clear_now"], cur)),
-             ("expected net benefit of the study", nb.money(d.net_benefit, cur)),
-             ("P(harmful \\| negative result)", nb.probability(d.p_harm_given_negative)),
-             ("P(harmful \\| positive result), the share of flags that are true",
-              nb.probability(d.p_harm_given_positive)),
-             ("smallest effect detected with power 0.8", nb.number(d.detectable_effect)),
-             ("implied cost ratio (miss : false alarm)", nb.number(d.implied_cost_ratio)),
-             ("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio))]
+        rows += [
+            ("test", d.method or nb.MISSING),
+            *rule_words.alpha_rows(d),
+            ("beta (miss probability, averaged over the effect)", nb.probability(d.beta)),
+            (f"power at the design effect {nb.number(d.design_effect)}", nb.probability(d.power_at_design_effect)),
+            ("size per group", nb.count(d.n_per_group)),
+            ("subjects in all", nb.count(d.n_total)),
+            ("expected loss", nb.money(d.expected_loss, cur)),
+            ("from missed hazards", nb.money(d.loss_parts["missed"], cur)),
+            ("from false alarms", nb.money(d.loss_parts["false_alarm"], cur)),
+            ("study cost", nb.money(d.loss_parts["study"], cur)),
+        ]
+    rows += [
+        ("loss if flagged now, no study", nb.money(d.no_study["flag_now"], cur)),
+        ("loss if cleared now, no study", nb.money(d.no_study["clear_now"], cur)),
+        ("expected net benefit of the study", nb.money(d.net_benefit, cur)),
+        ("P(harmful \\| negative result)", nb.probability(d.p_harm_given_negative)),
+        ("P(harmful \\| positive result), the share of flags that are true", nb.probability(d.p_harm_given_positive)),
+        ("smallest effect detected with power 0.8", nb.number(d.detectable_effect)),
+        ("implied cost ratio (miss : false alarm)", nb.number(d.implied_cost_ratio)),
+        ("stated cost ratio (miss : false alarm)", nb.number(d.stated_cost_ratio)),
+    ]
     lines += ["| quantity | value |", "|---|---|"] + [f"| {k} | {v} |" for k, v in rows]
     lines += ["", f"**{markdown_literal(recommendation(d, currency))}**", ""]
     lines += [f"- Warning: {markdown_literal(w)}" for w in d.warnings] + ([""] if d.warnings else [])

@@ -173,9 +173,7 @@ def from_core_error(
     return cls(file, key, message)
 
 
-def from_toml_error(
-    file: str, err: tomllib.TOMLDecodeError, cls: type[ScenarioError] = ScenarioError
-) -> ScenarioError:
+def from_toml_error(file: str, err: tomllib.TOMLDecodeError, cls: type[ScenarioError] = ScenarioError) -> ScenarioError:
     """A TOML syntax error, located by line and column."""
     message = str(err)
     match = re.fullmatch(r"(.*) \(at line (\d+), column (\d+)\)", message)

@@ -173,9 +173,7 @@ def parse_toml(text: str, file: str, cls: type[ScenarioError] = ScenarioError) -
         raise cls(file, "", f"not valid TOML here: {str(e).split(';')[0]}") from None
 
 
-def validate_model(
-    file: str, data: dict[str, Any], model: type[BaseModel], cls: type[ScenarioError]
-) -> Any:
+def validate_model(file: str, data: dict[str, Any], model: type[BaseModel], cls: type[ScenarioError]) -> Any:
     """``model.model_validate(data)``, its errors as one line."""
     try:
         return model.model_validate(data)
@@ -252,4 +250,3 @@ def scenario_template() -> str:
     designs = "".join(f"# {name:<22}{d.title}\n" for name, d in DESIGNS.items())
     baselines = "".join(f"# {name:<22}{d.baseline_name}\n" for name, d in DESIGNS.items())
     return text.replace("# {designs}\n", designs).replace("# {baselines}\n", baselines)
-

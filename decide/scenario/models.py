@@ -53,6 +53,7 @@ TestName = Literal["normal", "exact", "auto"]
 def _designs_where(test: Any) -> str:
     return ", ".join(name for name, d in DESIGNS.items() if test(d))
 
+
 #: Marks "no value to show" in a rule error.
 NO_VALUE = "\x00no value"
 RULE_ERROR = "decide_rule"
@@ -73,8 +74,7 @@ class StudyModel(BaseModel):
     model_config = _config("[study]")
 
     design: DesignName = Field(
-        description="The study design. "
-        + " ".join(f"{name}: {d.title}." for name, d in DESIGNS.items())
+        description="The study design. " + " ".join(f"{name}: {d.title}." for name, d in DESIGNS.items())
     )
     baseline: Annotated[
         float,
@@ -97,17 +97,14 @@ class StudyModel(BaseModel):
         dict[str, float] | None,
         Field(
             description="Settings of the design itself (default none). "
-            + " ".join(
-                f"{name}: {key}, {text}." for name, d in DESIGNS.items() for key, text in d.settings.items()
-            ),
+            + " ".join(f"{name}: {key}, {text}." for name, d in DESIGNS.items() for key, text in d.settings.items()),
         ),
     ] = None
     years: Annotated[
         float | None,
         Field(
             description=(
-                "Follow-up years per subject (person-time designs cohort-rate and "
-                "reference-rate only). Default 1."
+                "Follow-up years per subject (person-time designs cohort-rate and reference-rate only). Default 1."
             ),
         ),
     ] = None
@@ -159,8 +156,7 @@ class EffectModel(BaseModel):
     ] = None
     low: Annotated[
         float | None,
-        Field( description="Lower end of a central interval of a lognormal prior on the effect."
-        ),
+        Field(description="Lower end of a central interval of a lognormal prior on the effect."),
     ] = None
     high: Annotated[
         float | None,
@@ -191,8 +187,7 @@ class EffectModel(BaseModel):
                 extra = (given or ["median"])[0]
                 raise rule_error(
                     extra,
-                    "give either ratio (a single effect) or low, high and level (a lognormal "
-                    "prior), not both",
+                    "give either ratio (a single effect) or low, high and level (a lognormal prior), not both",
                     getattr(self, extra),
                 )
             return self
@@ -250,9 +245,7 @@ class ConsequencesModel(BaseModel):
     exposed_population: Annotated[
         float | None,
         Field(
-            description=(
-                "People who stay exposed if a hazard is missed (to derive missed_hazard)."
-            ),
+            description=("People who stay exposed if a hazard is missed (to derive missed_hazard)."),
         ),
     ] = None
     background_rate: Annotated[
@@ -271,17 +264,14 @@ class ConsequencesModel(BaseModel):
     horizon_years: Annotated[
         float | None,
         Field(
-            description=(
-                "Years the exposure goes on if a hazard is missed (to derive missed_hazard)."
-            ),
+            description=("Years the exposure goes on if a hazard is missed (to derive missed_hazard)."),
         ),
     ] = None
     false_alarm: Annotated[
         float,
         Field(
             description=(
-                "Cost of a false alarm: flagging a harmless exposure (needless restrictions, "
-                "substitution, lost trust)."
+                "Cost of a false alarm: flagging a harmless exposure (needless restrictions, substitution, lost trust)."
             ),
         ),
     ]
@@ -289,8 +279,7 @@ class ConsequencesModel(BaseModel):
         float,
         Field(
             description=(
-                "Cost of enrolling one subject, in every group alike (exposed and unexposed, "
-                "cases and controls)."
+                "Cost of enrolling one subject, in every group alike (exposed and unexposed, cases and controls)."
             ),
         ),
     ]
@@ -301,10 +290,7 @@ class ConsequencesModel(BaseModel):
     currency: Annotated[
         str,
         Field(
-            description=(
-                "Label of the unit all costs are in (e.g. EUR, or QALY); a label only, "
-                "nothing is converted."
-            ),
+            description=("Label of the unit all costs are in (e.g. EUR, or QALY); a label only, nothing is converted."),
         ),
     ] = ""
 
@@ -348,9 +334,7 @@ class ConstraintsModel(BaseModel):
     min_power: Annotated[
         float,
         Field(
-            description=(
-                "Smallest power at the design effect any policy must reach. Default 0 (none)."
-            ),
+            description=("Smallest power at the design effect any policy must reach. Default 0 (none)."),
         ),
     ] = 0.0
     budget: Annotated[
@@ -378,12 +362,8 @@ class ScenarioModel(BaseModel):
 
     model_config = _config("decide scenario")
 
-    title: Annotated[
-        str, Field(min_length=1, description="A short name for the scenario, shown in reports.")
-    ]
-    description: Annotated[
-        str, Field(description="Free text: the setting, the sources of the numbers, caveats.")
-    ] = ""
+    title: Annotated[str, Field(min_length=1, description="A short name for the scenario, shown in reports.")]
+    description: Annotated[str, Field(description="Free text: the setting, the sources of the numbers, caveats.")] = ""
     study: StudyModel = Field(description="The study design and how it is analysed.")
     effect: EffectModel = Field(description='What "harmful" means: the effect if harmful.')
     prior: PriorModel = Field(description="How likely harm is before the study.")
@@ -412,8 +392,13 @@ class ScenarioModel(BaseModel):
 
     @model_validator(mode="after")
     def _sources_name_inputs(self) -> ScenarioModel:
-        tables: dict[str, type[BaseModel]] = {"study": StudyModel, "effect": EffectModel, "prior": PriorModel,
-                  "consequences": ConsequencesModel, "constraints": ConstraintsModel}
+        tables: dict[str, type[BaseModel]] = {
+            "study": StudyModel,
+            "effect": EffectModel,
+            "prior": PriorModel,
+            "consequences": ConsequencesModel,
+            "constraints": ConstraintsModel,
+        }
         bad = unknown_source_key(self.sources, input_key_paths(tables))
         if bad is not None:
             raise rule_error(f"sources.{bad}", "names no input of a scenario file (e.g. prior.p_harm)")

@@ -50,9 +50,7 @@ class ObservedModel(BaseModel):
     n_unexposed: Annotated[int, Field(gt=0)] | None = Field(None, description="Unexposed subjects (cohort-risk).")
     person_years_exposed: Size | None = Field(None, description="Person-years of the exposed (cohort-rate).")
     person_years_unexposed: Size | None = Field(None, description="Person-years of the unexposed (cohort-rate).")
-    cases: Count | None = Field(
-        None, description="Cases observed (reference-rate); cases enrolled (case-control)."
-    )
+    cases: Count | None = Field(None, description="Cases observed (reference-rate); cases enrolled (case-control).")
     expected: Size | None = Field(
         None, description="Cases expected at the reference rate (reference-rate; or give person_years)."
     )

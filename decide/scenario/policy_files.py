@@ -75,14 +75,10 @@ class AlphaTable(BaseModel):
             "posterior_threshold. for-power: the smallest alpha that reaches power.target."
         )
     )
-    value: Annotated[
-        float | None, Field(description='The alpha, with rule = "fixed" only.')
-    ] = None
+    value: Annotated[float | None, Field(description='The alpha, with rule = "fixed" only.')] = None
     posterior_threshold: Annotated[
         float | None,
-        Field(
-            description='Posterior probability of harm that flags, with rule = "posterior" only.'
-        ),
+        Field(description='Posterior probability of harm that flags, with rule = "posterior" only.'),
     ] = None
 
 
@@ -125,9 +121,7 @@ class PolicyFileModel(BaseModel):
     model_config = _config("decide policy")
 
     title: Annotated[str, Field(min_length=1, description="A short plain-words name.")]
-    summary: Annotated[
-        str, Field(min_length=1, description="One or two sentences on what the policy stands for.")
-    ]
+    summary: Annotated[str, Field(min_length=1, description="One or two sentences on what the policy stands for.")]
     alpha: AlphaTable = Field(description="How alpha is chosen.")
     power: PowerTable = Field(default_factory=PowerTable, description="Required power (optional).")
     size: SizeTable = Field(description="How the study size is chosen.")

@@ -76,8 +76,7 @@ class BetaModel(BaseModel):
             raise _rule("sd" if self.sd is None else "mean", "mean and sd go together")
         limit = math.sqrt(self.mean * (1 - self.mean))
         if self.sd >= limit:
-            raise _rule("sd", f"must be below sqrt(mean (1 - mean)) = {limit:.4g} for a beta distribution",
-                        self.sd)
+            raise _rule("sd", f"must be below sqrt(mean (1 - mean)) = {limit:.4g} for a beta distribution", self.sd)
         return self
 
     def to_input(self, name: str) -> BetaInput:
@@ -115,7 +114,8 @@ class ConsequencesUncertainty(BaseModel):
     model_config = _config("[uncertainty.consequences]")
     missed_hazard: LognormalModel | None = Field(default=None, description="Lognormal (a given missed-hazard cost).")
     cost_per_case: LognormalModel | None = Field(
-        default=None, description="Lognormal (when the missed-hazard cost is derived from excess cases).")
+        default=None, description="Lognormal (when the missed-hazard cost is derived from excess cases)."
+    )
     false_alarm: LognormalModel | None = Field(default=None, description="Lognormal false-alarm cost.")
     per_subject: LognormalModel | None = Field(default=None, description="Lognormal per-subject cost.")
 
@@ -150,13 +150,16 @@ class UncertaintyModel(BaseModel):
         """Raise a rule error when a cost's distribution does not fit how the cost is given."""
         c = self.consequences
         if derived_missed and c.missed_hazard is not None:
-            raise _rule("uncertainty.consequences.missed_hazard",
-                        "the missed-hazard cost is derived from excess cases here; give the "
-                        "distribution of cost_per_case instead")
+            raise _rule(
+                "uncertainty.consequences.missed_hazard",
+                "the missed-hazard cost is derived from excess cases here; give the "
+                "distribution of cost_per_case instead",
+            )
         if not derived_missed and c.cost_per_case is not None:
-            raise _rule("uncertainty.consequences.cost_per_case",
-                        "applies only when the missed-hazard cost is derived; give the distribution "
-                        "of missed_hazard instead")
+            raise _rule(
+                "uncertainty.consequences.cost_per_case",
+                "applies only when the missed-hazard cost is derived; give the distribution of missed_hazard instead",
+            )
 
 
 def sweep_range(spec: Distribution) -> tuple[float, float]:
