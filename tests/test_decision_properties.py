@@ -209,11 +209,12 @@ def test_optimize_matches_the_brute_force_minimum(problem: Problem) -> None:
         assert not dec.feasible
         return
     assert dec.feasible
-    # measured over these examples: |loss / brute force - 1| <= 2.6e-7 (cohort-risk, normal test,
-    # n fixed at 5, p_harm 0.5, where the decision's loss is the lower one), from the brute force
-    # integrating the prior with the optimiser's search rule while the decision reports the
-    # refined integral (at most 2e-11 where the two rules agree); allow about four times that
-    assert dec.expected_loss == pytest.approx(best, rel=1e-6)
+    # measured over these examples: |loss / brute force - 1| <= 2.9e-6, in tiny studies (cohort-risk,
+    # normal test, n fixed at 5, baseline 0.01, p_harm 0.5) where the decision's loss is the lower
+    # one: the brute force integrates the prior with the optimiser's coarser search rule while the
+    # decision reports the refined integral (they agree to 2e-11 in larger studies); allow about
+    # three times that
+    assert dec.expected_loss == pytest.approx(best, rel=1e-5)
 
 
 # --------------------------------------------------------------------------
