@@ -319,3 +319,24 @@ def test_help_does_not_import_matplotlib_or_jinja2() -> None:
         env={"PYTHONPATH": str(REPO), "PATH": "/usr/bin:/bin"},
     )
     assert out.stdout.strip().splitlines()[-1] == "False False"
+
+
+def test_a_design_the_simulation_cannot_draw_still_gets_its_report() -> None:
+    """The matched design: its design settings are shown as inputs and the simulation says it is absent."""
+    from decide.decision.simulate import SIMULATED
+    from decide.report.document import gather
+    from decide.report.html import render_html
+
+    matched = REPO / "scenarios" / "quillmere-matched.toml"
+    loaded = load_scenario(matched)
+    assert loaded.problem.study.design not in SIMULATED
+    r = gather(loaded, list(load_policies(()).values()), quick=True)
+    root = parse(render_html(r))
+    assert _check_numbers(render_html(r), r) > 20
+    keys = {e.get("data-key") for e in root.iter() if e.get("data-key")}
+    assert "inputs.study.design_settings.correlation" in keys
+    # the full report's simulation branch, rendered from the same results with the draft flag off
+    from dataclasses import replace
+
+    text = "".join(parse(render_html(replace(r, quick=False))).find(".//section[@id='simulation']").itertext())
+    assert "cannot draw this study design" in text

@@ -22,7 +22,7 @@ from ..decision import inputs as _inputs
 from ..decision.optimize import Comparison, Decision, compare
 from ..decision.policies import LOSS_OPTIMAL, Policy
 from ..decision.sensitivity import Tornado, TwoWay, fast_available, tornado, two_way
-from ..decision.simulate import Simulation, simulate
+from ..decision.simulate import SIMULATED, Simulation, design_name, simulate
 from ..decision.uncertainty import Probabilistic, probabilistic
 from ..scenario import LoadedScenario
 from . import curves as cv
@@ -102,7 +102,7 @@ def gather(
         if unc is not None:
             step("probabilistic draws")
             drawn = probabilistic(problem, unc.to_inputs(), DRAWS, seed, list(policies))
-        if decision.n_per_group is not None and decision.alpha is not None:
+        if decision.n_per_group is not None and decision.alpha is not None and design_name(problem) in SIMULATED:
             step("simulating studies")
             sim = simulate(problem, decision, SIMULATED_STUDIES, seed)
     return ReportResults(

@@ -16,6 +16,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from ..decision.simulate import SIMULATED, design_name
 from ..scenario import write_text_atomic
 from .document import SIMULATED_STUDIES, ReportResults
 from .figures import Figure, draw_all
@@ -57,6 +58,7 @@ def context(r: ReportResults, figures: list[Figure], figure_dir: str = "") -> di
         "description": r.loaded.description.strip(),
         "caution": CAUTION,
         "quick": r.quick,
+        "simulable": design_name(r.loaded.problem) in SIMULATED,
         "inputs": input_rows(r),
         "chosen": chosen(r),
         "policies": policy_rows(r),

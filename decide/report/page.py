@@ -94,6 +94,20 @@ def _unit(key: str, design: Any, currency: str) -> str:
     return unit.replace("$", currency or "cost units").strip()
 
 
+def _stated(table: str, part: Any) -> list[tuple[str, Any]]:
+    """(key path, value) of each input the file states; a table of settings gives one row per setting."""
+    out: list[tuple[str, Any]] = []
+    for name in type(part).model_fields:
+        value = getattr(part, name)
+        if value is None or name == "currency" or name not in part.model_fields_set:
+            continue
+        if isinstance(value, dict):
+            out += [(f"{table}.{name}.{k}", v) for k, v in value.items()]
+        else:
+            out.append((f"{table}.{name}", value))
+    return out
+
+
 def input_rows(r: ReportResults) -> list[dict[str, Any]]:
     """The inputs as stated in the file: key path, value, unit, source."""
     model, currency = r.loaded.model, r.loaded.currency
@@ -101,11 +115,7 @@ def input_rows(r: ReportResults) -> list[dict[str, Any]]:
     rows = []
     for table in INPUT_TABLES:
         part = getattr(model, table)
-        for name in type(part).model_fields:
-            value = getattr(part, name)
-            if value is None or name == "currency" or name not in part.model_fields_set:
-                continue
-            key = f"{table}.{name}"
+        for key, value in _stated(table, part):
             if isinstance(value, bool) or isinstance(value, str):
                 shown: Any = str(value).lower() if isinstance(value, bool) else value
             else:
