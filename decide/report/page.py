@@ -17,6 +17,7 @@ from typing import Any
 from ..designs import get_design
 from ..scenario.sources import INPUT_TABLES, source_of
 from . import numbers as nb
+from . import rule_words
 from .document import ReportResults
 from .sentences import best_action, recommendation
 from .text import CAUTION
@@ -50,6 +51,12 @@ def num(key: str, value: Any, kind: str, currency: str = "") -> Num:
     else:
         text = nb.number(v)
     return Num(key, v, text)
+
+
+def _nominal(key: str, d: Any) -> Num:
+    """The nominal alpha as the rule shows it: rounded into its cut-off interval, never below the cut-off."""
+    shown = num(key, d.alpha, "probability")
+    return Num(key, shown.value, rule_words.nominal_text(d)) if d.alpha is not None else shown
 
 
 #: Units of the inputs, by key path ("$" is the currency; "@..." a design word).
@@ -152,7 +159,7 @@ def chosen(r: ReportResults) -> dict[str, Any]:
         "best": best_action(r.comparison, cur),
         "action": _action_words(d.action),
         "test": d.method or "-",
-        "alpha": num("decision.alpha", d.alpha, "probability"),
+        "alpha": _nominal("decision.alpha", d),
         "attained_alpha": num("decision.attained_alpha", d.attained_alpha, "probability"),
         "power": num("decision.power", d.power, "probability"),
         "power_at_design_effect": num("decision.power_at_design_effect", d.power_at_design_effect, "probability"),
@@ -227,7 +234,7 @@ def policy_rows(r: ReportResults) -> list[dict[str, Any]]:
                 "summary": d.summary,
                 "action": _action_words(d.action),
                 "reason": d.reason or "",
-                "alpha": num(f"{k}.alpha", d.alpha, "probability"),
+                "alpha": _nominal(f"{k}.alpha", d),
                 "attained_alpha": num(f"{k}.attained_alpha", d.attained_alpha, "probability"),
                 "power": num(f"{k}.power", d.power, "probability"),
                 "n_per_group": num(f"{k}.n_per_group", d.n_per_group, "count"),
