@@ -1,7 +1,8 @@
-"""The action a decision recommends: study, flag now, clear now, or none available.
+"""The action a decision recommends (study, flag now, clear now, or none available), on arrays.
 
-One small helper, so that the rest of the sensitivity and simulation code
-reads the action the same way wherever a :class:`Decision` comes from.
+A single :class:`~decide.decision.optimize.Decision` carries its ``action``;
+:func:`actions_of` is the same rule for arrays of losses (the batch optimiser
+and the sweeps).
 """
 
 from __future__ import annotations
@@ -10,27 +11,20 @@ import numpy as np
 from numpy.typing import NDArray
 
 from ..designs._base import FloatArray
-from .optimize import Decision
 
 STUDY, FLAG_NOW, CLEAR_NOW, NOT_AVAILABLE = "study", "flag-now", "clear-now", "not-available"
 ACTIONS = (STUDY, FLAG_NOW, CLEAR_NOW, NOT_AVAILABLE)
 
 
-def recommended_action(decision: Decision) -> str:
-    """``study`` if the study's expected net benefit is positive, else the better no-study action.
-
-    A policy that cannot be met recommends nothing (``not-available``).
-    Ties between flagging and clearing go to clearing, as in the decision
-    engine (flag only when it is strictly cheaper).  The decision carries
-    this as its ``action``; :func:`actions_of` is the same rule on arrays.
-    """
-    return str(decision.action)
-
-
 def actions_of(
     loss: FloatArray, flag_now: FloatArray, clear_now: FloatArray, feasible: NDArray[np.bool_]
 ) -> NDArray[np.str_]:
-    """The same rule on arrays of losses (``loss`` is the study's expected loss)."""
+    """The decision engine's action rule on arrays (``loss`` is the study's expected loss).
+
+    ``study`` where the study costs less than deciding now; else flag now
+    only where it is strictly cheaper than clearing; ``not-available`` where
+    the policy cannot be met.
+    """
     no_study = np.where(flag_now < clear_now, FLAG_NOW, CLEAR_NOW)
     out = np.where(loss < np.minimum(flag_now, clear_now), STUDY, no_study)
     return np.asarray(np.where(feasible, out, NOT_AVAILABLE))

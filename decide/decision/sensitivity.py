@@ -42,7 +42,7 @@ from scipy import special
 
 from .._results import PlainData
 from ..designs._base import FloatArray
-from .actions import NOT_AVAILABLE, STUDY, actions_of, recommended_action
+from .actions import NOT_AVAILABLE, STUDY, actions_of
 from .batch import batch_optimum, normal_throughout
 from .inputs import COST_RATIO, InputRange, default_range, input_names, value_of, with_value
 from .loss import build_model
@@ -204,7 +204,7 @@ def optima(problem: Problem, name: str, values: FloatArray, progress: Progress |
     for i, v in enumerate(values):
         d = optimize(with_value(problem, name, float(v)))
         rows.append(_numbers(d))
-        acts_.append(recommended_action(d))
+        acts_.append(str(d.action))
         if progress is not None:
             progress(i + 1, values.size)
     cols = np.array(rows, dtype=np.float64).reshape(-1, 7).T
@@ -474,7 +474,7 @@ def _end_point(problem: Problem, value: float, standards_losses: dict[str, float
         d.power,
         d.n_per_group,
         d.expected_loss,
-        recommended_action(d),
+        str(d.action),
         None if standards_losses is None else least_loss(standards_losses),
     )
 

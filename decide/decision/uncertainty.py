@@ -38,7 +38,7 @@ from scipy import special, stats
 from .._results import PlainData
 from ..designs._base import FloatArray
 from ..errors import ApproximationWarning, DecideError
-from .actions import ACTIONS, actions_of, recommended_action
+from .actions import ACTIONS, actions_of
 from .batch import batch_optimum, normal_throughout
 from .inputs import check_name, value_of, with_value
 from .loss import build_model
@@ -295,7 +295,7 @@ def _optima_per_draw(
         for k in cols:
             v_ = getattr(d, k)
             cols[k].append(math.nan if v_ is None else float(v_))
-        acts_.append(recommended_action(d))
+        acts_.append(str(d.action))
         if progress is not None and (i + 1) % 50 == 0:
             progress(i + 1, size)
     return {k: np.array(v) for k, v in cols.items()}, tuple(acts_), "optimiser at each draw", seen
@@ -383,7 +383,7 @@ def probabilistic(
 
 def _committed(central: Decision, study: FloatArray, flag: FloatArray, clear: FloatArray) -> FloatArray:
     """Loss in each draw of doing what the central optimum recommends (the study, or flag or clear now)."""
-    action = recommended_action(central)
+    action = str(central.action)
     if action == "flag-now":
         return flag
     if action == "clear-now":
