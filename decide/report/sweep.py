@@ -18,9 +18,15 @@ from rich.text import Text
 from ..decision.sensitivity import EndPoint, Tornado, TwoWay
 from ..decision.simulate import Check, Simulation
 from ..decision.uncertainty import Probabilistic
-from .text import CAUTION, fmt, fmt_compact, json_safe, literal
+from . import numbers as nb
+from .text import CAUTION, fmt, literal
 
 _ACTION_LETTER = {"study": "S", "flag-now": "F", "clear-now": "C", "not-available": "-"}
+
+
+def _money(value: float | None) -> str:
+    """Money in the sweep tables: short, with k/M/bn (the scenario's unit is named in the title)."""
+    return nb.money(value, compact=True)
 
 
 def _caution() -> Text:
@@ -33,7 +39,7 @@ def _end(e: EndPoint) -> str:
         alpha += f" ({fmt(e.attained_alpha, 3)} attained)"
     size = "-" if e.n_per_group is None else f"n {fmt(e.n_per_group)}"
     power = "-" if e.power is None else f"power {fmt(e.power, 3)}"
-    lines = [f"{alpha}, {power}, {size}", f"loss {fmt_compact(e.expected_loss)}; {e.action}"]
+    lines = [f"{alpha}, {power}, {size}", f"loss {_money(e.expected_loss)}; {e.action}"]
     if e.least_loss_policy is not None:
         lines.append(f"best standard: {e.least_loss_policy}")
     return "\n".join(lines)
@@ -50,7 +56,7 @@ def tornado_tables(t: Tornado, unit: str = "") -> Group:
         head.add_row(
             r.input,
             f"{fmt(r.low.value, 3)} to {fmt(r.high.value, 3)}\n(central {fmt(r.central, 3)})",
-            fmt_compact(r.swing),
+            _money(r.swing),
             _end(r.low),
             _end(r.high),
         )
@@ -67,7 +73,7 @@ def tornado_tables(t: Tornado, unit: str = "") -> Group:
                 if th.value is not None
                 else (f"between {fmt(th.between[0], 4)} and {fmt(th.between[1], 4)} (a policy becomes infeasible)")
             )
-            losses = "-" if th.losses is None else f"{fmt_compact(th.losses[0])} = {fmt_compact(th.losses[1])}"
+            losses = "-" if th.losses is None else f"{_money(th.losses[0])} = {_money(th.losses[1])}"
             roots.add_row(
                 r.input, "action" if th.kind == "action" else "least-loss standard", at, th.below, th.above, losses
             )
@@ -177,7 +183,7 @@ def _csv(rows: list[dict[str, Any]]) -> str:
     w = csv.DictWriter(buf, fieldnames=list(rows[0]), lineterminator="\n")
     w.writeheader()
     for row in rows:
-        w.writerow({k: "" if v is None else v for k, v in json_safe(row).items()})
+        w.writerow({k: "" if v is None else v for k, v in nb.for_json(row).items()})
     return buf.getvalue()
 
 

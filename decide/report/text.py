@@ -1,7 +1,7 @@
 """Shared wording, and user text made safe to print literally.
 
-Numbers are formatted in :mod:`decide.report.numbers`; ``fmt``,
-``fmt_compact`` and ``json_safe`` remain here as thin aliases for older callers.
+Numbers are formatted in :mod:`decide.report.numbers`; ``fmt`` remains here
+for tables whose numbers are neither money nor probabilities.
 """
 
 from __future__ import annotations
@@ -105,16 +105,6 @@ def fmt(value: Any, digits: int = 4) -> str:
     if hasattr(value, "__float__") and not isinstance(value, str):
         return numbers.number(float(value), digits)
     return numbers.MISSING if value is None else str(value)
-
-
-def fmt_compact(value: Any) -> str:
-    """Older callers' short money format: :func:`numbers.money` with ``compact=True``."""
-    return numbers.money(value, compact=True)
-
-
-def json_safe(value: Any) -> Any:
-    """Older callers' JSON preparation: :func:`numbers.for_json` (snake_case keys, non-finite as null)."""
-    return numbers.for_json(value)
 
 
 #: The stated cost ratio when a false alarm costs nothing, in words.
