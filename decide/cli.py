@@ -16,7 +16,7 @@ from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
 from types import FrameType
-from typing import TYPE_CHECKING, Annotated, Any, NoReturn
+from typing import TYPE_CHECKING, Annotated, Any, NoReturn, TypedDict
 
 import typer
 from typer.core import TyperGroup
@@ -555,18 +555,7 @@ def audit_command(
     """Reveal the value judgments a protocol's alpha and size imply, and judge it by its own costs."""
     _check_document_flags("audit", as_json, as_markdown, output)
     _check_output("audit", output, force)
-    if (effect_low is None) != (effect_high is None):
-        _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
-    if (effect_low is not None) and missed_hazard is None:
-        _fail(
-            "decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
-            "(--missed-hazard and --false-alarm)",
-            2,
-        )
-    prior = None
-    if effect_low is not None and effect_high is not None:
-        low, high = effect_low, effect_high
-        prior = run_api("audit", lambda: EffectPrior.from_interval(low, high, effect_level))
+    costs = _protocol_costs(missed_hazard, false_alarm, fixed_cost, effect_low, effect_high, effect_level)
 
     def call() -> Any:
         return _audit(
@@ -582,12 +571,49 @@ def audit_command(
             years=years,
             sides=sides,
             test=test.value,
-            missed_hazard=missed_hazard,
-            false_alarm=false_alarm,
-            fixed=fixed_cost,
-            prior=prior,
+            **costs,
         )
 
+    _run_audit(call, unit, as_json, as_markdown, output, force)
+
+
+class _ProtocolCosts(TypedDict):
+    """The protocol's own costs and effect prior, as :func:`decide.decision.audit.audit` takes them."""
+
+    missed_hazard: float | None
+    false_alarm: float | None
+    fixed: float
+    prior: EffectPrior | None
+
+
+def _protocol_costs(
+    missed_hazard: float | None,
+    false_alarm: float | None,
+    fixed_cost: float,
+    effect_low: float | None,
+    effect_high: float | None,
+    effect_level: float,
+) -> _ProtocolCosts:
+    """The costs of ``decide audit``; an effect prior needs both ends of its interval and the protocol's costs."""
+    if (effect_low is None) != (effect_high is None):
+        _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
+    if (effect_low is not None) and missed_hazard is None:
+        _fail(
+            "decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
+            "(--missed-hazard and --false-alarm)",
+            2,
+        )
+    prior = None
+    if effect_low is not None and effect_high is not None:
+        low, high = effect_low, effect_high
+        prior = run_api("audit", lambda: EffectPrior.from_interval(low, high, effect_level))
+    return {"missed_hazard": missed_hazard, "false_alarm": false_alarm, "fixed": fixed_cost, "prior": prior}
+
+
+def _run_audit(
+    call: Callable[[], Any], unit: str, as_json: bool, as_markdown: bool, output: Path | None, force: bool
+) -> None:
+    """Run the audit and show it: a table on screen, or JSON or Markdown on stdout or in ``output``."""
     with busy("Auditing the protocol...", enabled=not (as_json or as_markdown)):
         result = run_api("audit", call)
     if as_json or as_markdown:
