@@ -224,3 +224,15 @@ def test_grid_poisson_probabilities_match_scipy() -> None:
     np.testing.assert_allclose(ours[shown], theirs[shown], rtol=1e-12)
     assert np.all(ours[~shown] < 1e-240)
     assert ours[0, 0] == 1.0 and not ours[0, 1:].any()
+
+
+def test_exp_or_zero_matches_exp_above_the_normal_floats() -> None:
+    """The grid's ``exp`` equals ``numpy.exp`` wherever the result is a normal float, and is 0 below."""
+    from decide.engine.exact import LOG_UNDERFLOW, exp_or_zero
+
+    log_p = np.array([0.0, -1.5, -300.0, LOG_UNDERFLOW + 1e-9, LOG_UNDERFLOW, -720.0, -5_000.0, -np.inf])
+    ours = exp_or_zero(log_p.copy())
+    above = log_p > LOG_UNDERFLOW
+    np.testing.assert_array_equal(ours[above], np.exp(log_p[above]))
+    assert not ours[~above].any()
+    assert np.exp(LOG_UNDERFLOW) < 3.4e-308  # what is dropped is within 1.5 times the smallest normal float

@@ -91,6 +91,25 @@ class CountGrid:
     alt_joint: PairLaw | None = None
 
 
+#: Below this log-probability a probability is taken as 0 (``exp(-708)`` is
+#: 3.3e-308, just above the smallest normal float, 2.2e-308).
+LOG_UNDERFLOW = -708.0
+
+
+def exp_or_zero(log_p: FloatArray) -> FloatArray:
+    """``exp(log_p)`` in place, with 0 where it would fall below the normal floats.
+
+    Far tails of count laws (and the ``-inf`` of padding) make up most of a
+    grid; numpy's ``exp`` takes a slow path on those inputs (10-50 times
+    slower than on moderate ones), so it is skipped there.  The values set
+    to 0 are below 3.3e-308.
+    """
+    keep = log_p > LOG_UNDERFLOW
+    np.exp(log_p, out=log_p, where=keep)
+    log_p[~keep] = 0.0
+    return log_p
+
+
 @dataclass(frozen=True)
 class PairLaw:
     """Probabilities of the count pairs of two multinomial cells, under each of ``Q`` effects.
@@ -116,7 +135,7 @@ class PairLaw:
         log_p = total + self.coefficient[:, None]
         log_p += self.x1[:, None, :, None] * self.log_share[:, q, None, None]
         log_p += self.x0[:, None, None, :] * self.log_rest[:, q, None, None]
-        return np.asarray(np.exp(log_p, out=log_p))
+        return exp_or_zero(log_p)
 
     def slices(self) -> Iterator[slice]:
         """Effects a few at a time, keeping each :meth:`mass` under :data:`CELL_BUDGET` cells."""
@@ -196,7 +215,7 @@ def _poisson_pmf(x: FloatArray, mean: FloatArray) -> FloatArray:
         log_pmf = np.where(mean == 0, np.where(x == 0, 0.0, -np.inf), log_pmf)
     log_pmf -= mean
     log_pmf -= special.gammaln(x + 1)
-    return np.exp(log_pmf, out=log_pmf)
+    return exp_or_zero(log_pmf)
 
 
 def _axis(lo: FloatArray, hi: FloatArray) -> tuple[FloatArray, NDArray[np.bool_]]:
@@ -241,7 +260,7 @@ def _row_span(
     np.cumsum(step, axis=2, out=logf[:, :, 1:])
     logf[~inside] = -np.inf
     logf -= logf.max(axis=2, keepdims=True)
-    f = np.exp(logf, out=logf)
+    f = exp_or_zero(logf)
     f /= f.sum(axis=2, keepdims=True)
     return lo, hi, x, f
 
