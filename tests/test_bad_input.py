@@ -26,8 +26,7 @@ import sys
 import tempfile
 import time
 import warnings
-from collections.abc import Callable, Iterator
-from concurrent.futures import ThreadPoolExecutor
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -846,35 +845,25 @@ CLI_CASES: list[Case] = [
 ]
 
 
-@pytest.fixture(scope="module")
-def cli_outcomes() -> Iterator[dict[str, Outcome]]:
-    """Every case run once, two at a time (each in its own limited child).
+def run_case(case: Case) -> Outcome:
+    """Run one case in its own limited child, its files in a folder of its own (removed after).
 
-    The cases' files live in a folder of the fixture's own, removed at the
-    end (pytest's shared temporary folders can be pruned by other runs while
-    these cases are running).
+    Not pytest's shared temporary folders: other runs can prune those while a
+    case is running.
     """
-    root = Path(tempfile.mkdtemp(prefix="decide-bad-input-"))
-
-    def one(numbered: tuple[int, Case]) -> Outcome:
-        i, case = numbered
-        folder = root / f"case{i}"
-        folder.mkdir()
+    folder = Path(tempfile.mkdtemp(prefix="decide-bad-input-"))
+    try:
         for name, text in case.files.items():
             (folder / name).parent.mkdir(parents=True, exist_ok=True)
             (folder / name).write_text(text, encoding="utf-8")
         return run_cli([a.replace("{dir}", str(folder)) for a in case.args])
-
-    try:
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            yield dict(zip([c.id for c in CLI_CASES], pool.map(one, enumerate(CLI_CASES)), strict=True))
     finally:
-        shutil.rmtree(root, ignore_errors=True)
+        shutil.rmtree(folder, ignore_errors=True)
 
 
 @pytest.mark.parametrize("case", CLI_CASES, ids=[c.id for c in CLI_CASES])
-def test_command_line_case(case: Case, cli_outcomes: dict[str, Outcome]) -> None:
-    assert_clean(cli_outcomes[case.id], case.code, case.match, case.out)
+def test_command_line_case(case: Case) -> None:
+    assert_clean(run_case(case), case.code, case.match, case.out)
 
 
 # --------------------------------------------------------------------------

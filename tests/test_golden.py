@@ -25,7 +25,7 @@ import io
 import json
 import os
 import re
-from collections.abc import Callable
+from collections.abc import Callable, Iterator, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -141,19 +141,39 @@ def remembered(call: Callable[..., Any]) -> Callable[..., Any]:
     return again
 
 
-@pytest.fixture(scope="module")
-def screens() -> dict[tuple[str, int], str]:
-    """Every case at every width (in the repository, so file names print the same everywhere).
+@functools.cache
+def case_screens(name: str) -> dict[int, str]:
+    """One case at every width (run in the repository, so file names print the same everywhere).
 
     The computations behind the command line are remembered between widths;
     everything from the command line's parsing to the rendered text runs anew
-    at each width.
+    at each width.  Each case runs when a test first asks for it, so the
+    cases spread over the test workers.
     """
     with pytest.MonkeyPatch.context() as mp:
-        for name in ("_solve", "_optimize", "_compare", "_audit"):
-            mp.setattr(cli, name, remembered(getattr(cli, name)))
+        for attr in ("_solve", "_optimize", "_compare", "_audit"):
+            mp.setattr(cli, attr, remembered(getattr(cli, attr)))
         mp.chdir(REPO)
-        return {(name, w): invoke(args, w).stdout for name, args in CASES.items() for w in WIDTHS}
+        return {w: invoke(CASES[name], w).stdout for w in WIDTHS}
+
+
+class Screens(Mapping[tuple[str, int], str]):
+    """Every case at every width, each case run on first use (see :func:`case_screens`)."""
+
+    def __getitem__(self, key: tuple[str, int]) -> str:
+        name, width = key
+        return case_screens(name)[width]
+
+    def __iter__(self) -> Iterator[tuple[str, int]]:
+        return iter([(name, w) for name in CASES for w in WIDTHS])
+
+    def __len__(self) -> int:
+        return len(CASES) * len(WIDTHS)
+
+
+@pytest.fixture
+def screens() -> Screens:
+    return Screens()
 
 
 PAIRS = [(name, w) for name in CASES for w in WIDTHS]
@@ -161,7 +181,7 @@ IDS = [f"{name}-{w}" for name, w in PAIRS]
 
 
 @pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
-def test_golden_screen(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+def test_golden_screen(screens: Screens, name: str, width: int) -> None:
     path = GOLDEN / f"{name}-{width}.txt"
     text = screens[name, width]
     if REGENERATE:
@@ -184,7 +204,7 @@ def boxed_blocks(text: str) -> list[tuple[str, list[str]]]:
 
 
 @pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
-def test_nothing_is_cropped(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+def test_nothing_is_cropped(screens: Screens, name: str, width: int) -> None:
     text = screens[name, width]
     for line in text.splitlines():
         assert cell_len(line) <= width, f"line wider than {width}: {line!r}"
@@ -200,7 +220,7 @@ def test_nothing_is_cropped(screens: dict[tuple[str, int], str], name: str, widt
 
 
 @pytest.mark.parametrize(("name", "width"), PAIRS, ids=IDS)
-def test_no_e_notation_in_tables(screens: dict[tuple[str, int], str], name: str, width: int) -> None:
+def test_no_e_notation_in_tables(screens: Screens, name: str, width: int) -> None:
     text = screens[name, width]
     for kind, lines in boxed_blocks(text):
         if kind == "table":
@@ -211,7 +231,7 @@ def test_no_e_notation_in_tables(screens: dict[tuple[str, int], str], name: str,
         assert not E_NOTATION.search(line), line
 
 
-def test_no_e_notation_in_the_notes(screens: dict[tuple[str, int], str]) -> None:
+def test_no_e_notation_in_the_notes(screens: Screens) -> None:
     # the sentences beneath the tables once read "net benefit ... 1.516e+07" beside "14.8M"
     for (name, _), text in screens.items():
         if name.startswith(("optimize", "compare")):
@@ -286,7 +306,7 @@ NOW_TITLES = {"flag_now": "Flag now, no study", "clear_now": "Clear now, no stud
 
 
 @pytest.mark.parametrize("stem", list(SCENARIOS))
-def test_compare_money_matches_json_with_the_right_suffix(screens: dict[tuple[str, int], str], stem: str) -> None:
+def test_compare_money_matches_json_with_the_right_suffix(screens: Screens, stem: str) -> None:
     document = compare_json(stem)
     available = [p for p in document["policies"] if p["feasible"]]
     for width in WIDTHS:
@@ -305,7 +325,7 @@ def test_compare_money_matches_json_with_the_right_suffix(screens: dict[tuple[st
 
 
 @pytest.mark.parametrize("stem", list(SCENARIOS))
-def test_compare_sets_deciding_now_beside_the_policies(screens: dict[tuple[str, int], str], stem: str) -> None:
+def test_compare_sets_deciding_now_beside_the_policies(screens: Screens, stem: str) -> None:
     # Once a scenario where flagging now cost less than every study showed the loss-optimal study
     # with regret 0: flagging and clearing now are columns, and regret is against the best of all.
     document = compare_json(stem)
@@ -350,7 +370,7 @@ def test_regret_is_against_deciding_now_when_that_is_best() -> None:
 
 
 @pytest.mark.parametrize("stem", list(SCENARIOS))
-def test_policies_out_of_reach_are_set_apart(screens: dict[tuple[str, int], str], stem: str) -> None:
+def test_policies_out_of_reach_are_set_apart(screens: Screens, stem: str) -> None:
     # Conventional science once showed 11.2M beside the optimum's 14.8M with only "meets the constraints: no".
     document = compare_json(stem)
     out = [p for p in document["policies"] if not p["feasible"]]
@@ -372,7 +392,7 @@ def test_policies_out_of_reach_are_set_apart(screens: dict[tuple[str, int], str]
 
 @pytest.mark.parametrize("kind", ["compare", "optimize"])
 @pytest.mark.parametrize("stem", list(SCENARIOS))
-def test_share_of_true_flags_beside_p_harm_negative(screens: dict[tuple[str, int], str], kind: str, stem: str) -> None:
+def test_share_of_true_flags_beside_p_harm_negative(screens: Screens, kind: str, stem: str) -> None:
     document = compare_json(stem)
     by_title = {p["title"]: p for p in document["policies"]}
     for width in WIDTHS:
@@ -400,7 +420,7 @@ def test_share_of_true_flags_beside_p_harm_negative(screens: dict[tuple[str, int
 
 @pytest.mark.parametrize("kind", ["compare", "optimize"])
 @pytest.mark.parametrize("stem", list(SCENARIOS))
-def test_implied_cost_ratio_shows_its_range(screens: dict[tuple[str, int], str], kind: str, stem: str) -> None:
+def test_implied_cost_ratio_shows_its_range(screens: Screens, kind: str, stem: str) -> None:
     document = compare_json(stem)
     by_title = {p["title"]: p for p in document["policies"]}
     ranged = False
@@ -432,7 +452,7 @@ def test_a_regret_of_454778_reads_455k() -> None:
 
 
 @pytest.mark.parametrize("width", WIDTHS)
-def test_policies_show_every_name_in_full(screens: dict[tuple[str, int], str], width: int) -> None:
+def test_policies_show_every_name_in_full(screens: Screens, width: int) -> None:
     text = screens["policies", width]
     first_cells = {re.split(r"[│┃]", line)[1].strip() for line in text.splitlines() if line.startswith(("│", "┃"))}
     for name in BUILTIN_ORDER:

@@ -190,7 +190,7 @@ BAD_POLICIES = [
         "unknown rule",
         POLICY.replace('rule = "fixed"', 'rule = "strict"'),
         "alpha.rule",
-        r"must be 'fixed', 'loss-optimal', .* \(got \"strict\"\)",
+        r"must be one of fixed, loss-optimal, equal-to-beta, posterior, for-power \(got 'strict'\)",
     ),
     (
         "fixed without value",
