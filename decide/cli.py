@@ -16,7 +16,7 @@ from contextlib import contextmanager
 from enum import StrEnum
 from pathlib import Path
 from types import FrameType
-from typing import TYPE_CHECKING, Annotated, Any, NoReturn
+from typing import TYPE_CHECKING, Annotated, Any, NoReturn, TypedDict
 
 import typer
 from typer.core import TyperGroup
@@ -49,6 +49,11 @@ from .scenario import (
     scenario_template,
     write_text_atomic,
 )
+
+if TYPE_CHECKING:
+    from .decision.inputs import InputRange
+    from .decision.problem import Problem
+    from .decision.uncertainty import Distribution
 
 _OPTIONS = {
     "alpha": "--alpha",
@@ -555,18 +560,7 @@ def audit_command(
     """Reveal the value judgments a protocol's alpha and size imply, and judge it by its own costs."""
     _check_document_flags("audit", as_json, as_markdown, output)
     _check_output("audit", output, force)
-    if (effect_low is None) != (effect_high is None):
-        _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
-    if (effect_low is not None) and missed_hazard is None:
-        _fail(
-            "decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
-            "(--missed-hazard and --false-alarm)",
-            2,
-        )
-    prior = None
-    if effect_low is not None and effect_high is not None:
-        low, high = effect_low, effect_high
-        prior = run_api("audit", lambda: EffectPrior.from_interval(low, high, effect_level))
+    costs = _protocol_costs(missed_hazard, false_alarm, fixed_cost, effect_low, effect_high, effect_level)
 
     def call() -> Any:
         return _audit(
@@ -582,12 +576,49 @@ def audit_command(
             years=years,
             sides=sides,
             test=test.value,
-            missed_hazard=missed_hazard,
-            false_alarm=false_alarm,
-            fixed=fixed_cost,
-            prior=prior,
+            **costs,
         )
 
+    _run_audit(call, unit, as_json, as_markdown, output, force)
+
+
+class _ProtocolCosts(TypedDict):
+    """The protocol's own costs and effect prior, as :func:`decide.decision.audit.audit` takes them."""
+
+    missed_hazard: float | None
+    false_alarm: float | None
+    fixed: float
+    prior: EffectPrior | None
+
+
+def _protocol_costs(
+    missed_hazard: float | None,
+    false_alarm: float | None,
+    fixed_cost: float,
+    effect_low: float | None,
+    effect_high: float | None,
+    effect_level: float,
+) -> _ProtocolCosts:
+    """The costs of ``decide audit``; an effect prior needs both ends of its interval and the protocol's costs."""
+    if (effect_low is None) != (effect_high is None):
+        _fail("decide audit: give both --effect-low and --effect-high (a lognormal effect prior), or neither", 2)
+    if (effect_low is not None) and missed_hazard is None:
+        _fail(
+            "decide audit: an effect prior (--effect-low, --effect-high) needs the protocol's costs "
+            "(--missed-hazard and --false-alarm)",
+            2,
+        )
+    prior = None
+    if effect_low is not None and effect_high is not None:
+        low, high = effect_low, effect_high
+        prior = run_api("audit", lambda: EffectPrior.from_interval(low, high, effect_level))
+    return {"missed_hazard": missed_hazard, "false_alarm": false_alarm, "fixed": fixed_cost, "prior": prior}
+
+
+def _run_audit(
+    call: Callable[[], Any], unit: str, as_json: bool, as_markdown: bool, output: Path | None, force: bool
+) -> None:
+    """Run the audit and show it: a table on screen, or JSON or Markdown on stdout or in ``output``."""
     with busy("Auditing the protocol...", enabled=not (as_json or as_markdown)):
         result = run_api("audit", call)
     if as_json or as_markdown:
@@ -743,12 +774,28 @@ def sweep_command(
     as_csv: Annotated[bool, typer.Option("--csv", help="Print CSV.")] = False,
 ) -> None:
     """Does the choice survive doubt? One-way ranges and break-even values, a two-way grid, or draws."""
-    from .decision import inputs as _inputs
-    from .decision import sensitivity as _sens
-    from .decision import uncertainty as _unc
     from .report import sweep as _show
-    from .scenario.uncertainty import sweep_range
 
+    _check_sweep_flags(as_json, as_csv, two_way, draws, points)
+    spans = _parse_vary(vary or [])
+    loaded = run_api("sweep", lambda: load_scenario(scenario))
+    problem = loaded.problem
+    dists, ranges = _sweep_inputs(loaded, spans)
+    unit = loaded.currency or ""
+    quiet = as_json or as_csv
+    if draws is not None:
+        result = _sweep_draws(scenario, problem, dists, draws, seed, policy, policy_dir, quiet)
+        _emit(result, as_json, as_csv, _show.probabilistic_csv, lambda: _show.probabilistic_tables(result, unit))
+    elif two_way:
+        grid = _sweep_grid(problem, axes, ranges, points, quiet)
+        _emit(grid, as_json, as_csv, _show.two_way_csv, lambda: _show.two_way_tables(grid))
+    else:
+        tor = _sweep_tornado(problem, dists, ranges, policy, policy_dir, quiet)
+        _emit(tor, as_json, as_csv, _show.tornado_csv, lambda: _show.tornado_tables(tor, unit))
+
+
+def _check_sweep_flags(as_json: bool, as_csv: bool, two_way: bool, draws: int | None, points: int) -> None:
+    """Refuse conflicting or out-of-range options of ``decide sweep`` before any computing."""
     if as_json and as_csv:
         _fail("decide sweep: choose one of --json and --csv", 2)
     if draws is not None and two_way:
@@ -757,8 +804,15 @@ def sweep_command(
         _fail(f"decide sweep: --draws must be at least 1, but got {draws}", 2)
     if points < 2:
         _fail(f"decide sweep: --points must be at least 2, but got {points}", 2)
-    spans = _parse_vary(vary or [])
-    loaded = run_api("sweep", lambda: load_scenario(scenario))
+
+
+def _sweep_inputs(
+    loaded: LoadedScenario, spans: list[tuple[str, float, float]]
+) -> tuple[dict[str, Distribution], dict[str, InputRange]]:
+    """The scenario's input distributions and the --vary ranges, each checked against its problem."""
+    from .decision import inputs as _inputs
+    from .decision import uncertainty as _unc
+
     problem = loaded.problem
     model_unc = loaded.model.uncertainty
     dists = model_unc.to_inputs() if model_unc is not None else {}
@@ -766,38 +820,78 @@ def sweep_command(
         n: run_api("sweep", lambda n=n, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi)) for n, lo, hi in spans
     }
     run_api("sweep", lambda: _unc.check_uncertainty(problem, dists))
-    unit = loaded.currency or ""
-    quiet = as_json or as_csv
-    if draws is not None:
-        if not dists:
-            _fail(f"decide sweep: --draws needs an [uncertainty] table in {scenario}", 2)
-        chosen = _chosen_policies("sweep", policy, policy_dir)
-        used = _seed(seed)
-        with _progress(not quiet, "draws") as bar:
-            result = run_api("sweep", lambda: _unc.probabilistic(problem, dists, draws, used, chosen, bar))
-        _emit(result, as_json, as_csv, _show.probabilistic_csv, lambda: _show.probabilistic_tables(result, unit))
-        return
-    if two_way:
-        names = [a.strip() for a in axes.split(",")]
-        if len(names) != 2 or names[0] == names[1]:
-            _fail(f"decide sweep: --axes must name two different inputs, x,y, but got {axes!r}", 2)
-        for n in names:
-            run_api("sweep", lambda n=n: _inputs.check_name(problem, n))
-        x, y = (ranges.get(n) or run_api("sweep", lambda n=n: _inputs.default_range(problem, n)) for n in names)
-        with _progress(not quiet, "grid") as bar:
-            grid = run_api("sweep", lambda: _sens.two_way(problem, x, y, points, bar))
-        _emit(grid, as_json, as_csv, _show.two_way_csv, lambda: _show.two_way_tables(grid))
-        return
+    return dists, ranges
+
+
+def _sweep_draws(
+    scenario: Path,
+    problem: Problem,
+    dists: dict[str, Distribution],
+    draws: int,
+    seed: int | None,
+    policy: list[str] | None,
+    policy_dir: list[Path] | None,
+    quiet: bool,
+) -> Any:
+    """The probabilistic analysis: ``draws`` draws from the scenario's [uncertainty] table."""
+    from .decision import uncertainty as _unc
+
+    if not dists:
+        _fail(f"decide sweep: --draws needs an [uncertainty] table in {scenario}", 2)
+    policies = _chosen_policies("sweep", policy, policy_dir)
+    used = _seed(seed)
+    with _progress(not quiet, "draws") as bar:
+        return run_api("sweep", lambda: _unc.probabilistic(problem, dists, draws, used, policies, bar))
+
+
+def _sweep_grid(problem: Problem, axes: str, ranges: dict[str, InputRange], points: int, quiet: bool) -> Any:
+    """The two-way grid over the two inputs named by --axes (over their --vary ranges, or the default ones)."""
+    from .decision import inputs as _inputs
+    from .decision import sensitivity as _sens
+
+    names = [a.strip() for a in axes.split(",")]
+    if len(names) != 2 or names[0] == names[1]:
+        _fail(f"decide sweep: --axes must name two different inputs, x,y, but got {axes!r}", 2)
+    for n in names:
+        run_api("sweep", lambda n=n: _inputs.check_name(problem, n))
+    x, y = (ranges.get(n) or run_api("sweep", lambda n=n: _inputs.default_range(problem, n)) for n in names)
+    with _progress(not quiet, "grid") as bar:
+        return run_api("sweep", lambda: _sens.two_way(problem, x, y, points, bar))
+
+
+def _sweep_tornado(
+    problem: Problem,
+    dists: dict[str, Distribution],
+    ranges: dict[str, InputRange],
+    policy: list[str] | None,
+    policy_dir: list[Path] | None,
+    quiet: bool,
+) -> Any:
+    """The one-way analysis of every input, and of any other input given a --vary range."""
+    from .decision import inputs as _inputs
+    from .decision import sensitivity as _sens
+
+    ranges = _ranges_from_uncertainty(problem, dists, ranges)
+    policies = _chosen_policies("sweep", policy, policy_dir)
+    names = list(dict.fromkeys([*_inputs.input_names(problem), *ranges]))
+    with _progress(not quiet, "inputs") as bar:
+        return run_api("sweep", lambda: _sens.tornado(problem, policies, ranges, names, bar))
+
+
+def _ranges_from_uncertainty(
+    problem: Problem, dists: dict[str, Distribution], ranges: dict[str, InputRange]
+) -> dict[str, InputRange]:
+    """The --vary ranges, and for each other input with a distribution the range it spans (if not a point)."""
+    from .decision import inputs as _inputs
+    from .scenario.uncertainty import sweep_range
+
+    out = dict(ranges)
     for name, dist in dists.items():
-        if name not in ranges and name in _inputs.input_names(problem):
+        if name not in out and name in _inputs.input_names(problem):
             lo, hi = sweep_range(dist)
             if hi > lo:
-                ranges[name] = run_api("sweep", lambda n=name, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
-    chosen = _chosen_policies("sweep", policy, policy_dir)
-    names_ = list(dict.fromkeys([*_inputs.input_names(problem), *ranges]))
-    with _progress(not quiet, "inputs") as bar:
-        tor = run_api("sweep", lambda: _sens.tornado(problem, chosen, ranges, names_, bar))
-    _emit(tor, as_json, as_csv, _show.tornado_csv, lambda: _show.tornado_tables(tor, unit))
+                out[name] = run_api("sweep", lambda n=name, lo=lo, hi=hi: _inputs.checked_range(problem, n, lo, hi))
+    return out
 
 
 def _emit(result: Any, as_json: bool, as_csv: bool, to_csv: Callable[[Any], str], table: Callable[[], Any]) -> None:

@@ -9,6 +9,8 @@ and attained alpha 0 (definition of a test that never rejects).
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from decision_helpers import fixed_size_problem
@@ -17,13 +19,14 @@ from numpy.typing import NDArray
 from decide.decision import rules
 from decide.decision.loss import ExactOptions, LossModel
 from decide.decision.optimize import decide_policy
-from decide.decision.policies import ALPHA_RULES, Policy
+from decide.decision.policies import Policy, alpha_rule_names, size_rule_names
 from decide.decision.prior import EffectPrior
 from decide.designs._base import FloatArray
+from decide.errors import DecideError
 
 
 def test_the_registry_holds_every_rule_a_policy_may_name() -> None:
-    assert set(rules.RULES) == set(ALPHA_RULES)
+    assert alpha_rule_names() == ("fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power")
     for name, rule in rules.RULES.items():
         assert rule.name == name and isinstance(rule, rules.AlphaRule)
 
@@ -32,6 +35,8 @@ class NeverFlag(rules.AlphaRule):
     """A rule that picks the test that never flags (an invented rule, for the test)."""
 
     name = "fixed"
+    summary = "never flags."
+    needs = ("alpha.value",)
 
     def choose_normal(self, search: rules.NormalSearch) -> FloatArray:
         return search.z_high
@@ -57,7 +62,38 @@ def test_a_registered_rule_runs_for_both_tests(test: str, monkeypatch: pytest.Mo
 
 
 def test_the_size_registry_holds_every_size_rule_a_policy_may_name() -> None:
-    from decide.decision.policies import SIZE_RULES as NAMES
     from decide.decision.sizes import SIZE_RULES
 
-    assert set(SIZE_RULES) == set(NAMES)
+    assert size_rule_names() == tuple(SIZE_RULES) == ("smallest-for-power", "largest-allowed", "loss-optimal")
+
+
+class FlagAtThreshold(rules.Fixed):
+    """An invented rule for the tests: the fixed rule under a new name, taking ``alpha.value``."""
+
+    name = "invented-threshold"
+    summary = "an invented rule that flags at value."
+    needs = ("alpha.value",)
+
+
+def test_a_new_rule_is_one_registration(monkeypatch: pytest.MonkeyPatch, tmp_path: Path) -> None:
+    """Registered in RULES and nowhere else, a rule is named by a policy, a policy file and the schema."""
+    from decide.scenario.policy_files import load_policy_file, policy_json_schema
+
+    monkeypatch.setitem(rules.RULES, FlagAtThreshold.name, FlagAtThreshold())
+    assert FlagAtThreshold.name in alpha_rule_names()
+    policy = Policy("p", "P", "", FlagAtThreshold.name, "largest-allowed", alpha=0.05)
+    assert rules.rule_of(policy).stated_alpha(policy) == 0.05
+    with pytest.raises(DecideError, match=r'alpha\.value: is required with rule = "invented-threshold"'):
+        Policy("p", "P", "", FlagAtThreshold.name, "largest-allowed")
+    with pytest.raises(DecideError, match=r'applies to rule = "fixed" or rule = "invented-threshold" only'):
+        Policy("p", "P", "", "loss-optimal", "largest-allowed", alpha=0.05)
+    file = tmp_path / "invented.toml"
+    file.write_text(
+        'title = "Invented"\nsummary = "Invented."\n[alpha]\nrule = "invented-threshold"\nvalue = 0.05\n'
+        '[size]\nrule = "largest-allowed"\n',
+        encoding="utf-8",
+    )
+    assert load_policy_file(file).alpha_rule == FlagAtThreshold.name
+    rule_schema = policy_json_schema()["$defs"]["AlphaTable"]["properties"]["rule"]
+    assert FlagAtThreshold.name in rule_schema["enum"]
+    assert "invented-threshold: an invented rule that flags at value." in rule_schema["description"]

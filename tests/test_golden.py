@@ -20,6 +20,7 @@ every policy name a user must type shown in full.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import io
 import json
 import os
@@ -273,7 +274,9 @@ def table_cells(text: str, label: str, section: str = "main") -> list[tuple[str,
     return out
 
 
+@functools.cache
 def compare_json(stem: str) -> dict[str, Any]:
+    """``decide compare --json`` of a bundled scenario, run once per scenario (the tests only read it)."""
     result = CliRunner().invoke(app, ["compare", str(SCENARIOS[stem]), "--json"])
     document: dict[str, Any] = json.loads(result.stdout)
     return document

@@ -194,6 +194,60 @@ def _table_start(
     return left, np.maximum(left, right), zs[j, k], sizes[j]
 
 
+def _setting_rows(*settings: FloatArray) -> tuple[FloatArray, ...]:
+    """The settings broadcast together and flattened, one row each."""
+    return tuple(np.asarray(x, dtype=np.float64).ravel() for x in np.broadcast_arrays(*settings))
+
+
+def _size_bracket(
+    model: LossModel,
+    a_miss: FloatArray,
+    a_fa: FloatArray,
+    per: FloatArray,
+    hi: FloatArray,
+    start: tuple[FloatArray, FloatArray] | None,
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Where the size search starts in each row: a bracket in size and a critical value.
+
+    From the best cell of the table, or within 64 subjects of a given nearby optimum.
+    """
+    if start is None:
+        left, right, z, _ = _table_start(model, a_miss, a_fa, per, hi)
+        return left, right, z
+    lo = float(model.problem.constraints.min_n_per_group)
+    n0 = np.broadcast_to(np.asarray(start[0], dtype=np.float64), a_miss.shape)
+    z = np.broadcast_to(np.asarray(start[1], dtype=np.float64), a_miss.shape)
+    return np.clip(n0 - 64, lo, hi), np.clip(n0 + 64, lo, hi), z
+
+
+def _whole_size_neighbours(
+    model: LossModel,
+    total: Callable[[FloatArray, FloatArray], tuple[FloatArray, FloatArray]],
+    best: tuple[FloatArray, FloatArray, FloatArray],
+    hi: FloatArray,
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Try the whole sizes around the best (size, critical value, loss) of each row; keep any better one.
+
+    One step either way, or four when a comparison group of ``allocation * n``
+    rounds (a fractional allocation).
+    """
+    n_best, z_best, f_best = best
+    lo = float(model.problem.constraints.min_n_per_group)
+    alloc = model.setting.allocation
+    whole = model.setting.design.groups == 1 or float(alloc) == round(float(alloc))
+    steps = (-1, 1) if whole else (-4, -3, -2, -1, 1, 2, 3, 4)
+    for step in steps:
+        cand = np.clip(n_best + step, lo, hi)
+        zz, ff = total(cand, z_best)
+        better = ff < f_best
+        n_best, z_best, f_best = (
+            np.where(better, cand, n_best),
+            np.where(better, zz, z_best),
+            np.where(better, ff, f_best),
+        )
+    return n_best, z_best, f_best
+
+
 def batch_optimum(
     model: LossModel,
     p_harm: FloatArray,
@@ -222,42 +276,32 @@ def batch_optimum(
     -------
     BatchOptimum
     """
-    p, scale, fa, per = (
-        np.asarray(x, dtype=np.float64) for x in np.broadcast_arrays(p_harm, missed_scale, false_alarm, per_subject)
-    )
-    p, scale, fa, per = p.ravel(), scale.ravel(), fa.ravel(), per.ravel()
+    p, scale, fa, per = _setting_rows(p_harm, missed_scale, false_alarm, per_subject)
     a_miss, a_fa = p * scale, (1 - p) * fa
     flag, clear = a_fa, a_miss * model.expected_missed
     hi = _largest_sizes(model, per, flag, clear)
     ok = np.isfinite(hi)
     hi_ = np.where(ok, hi, float(model.problem.constraints.min_n_per_group))
-    lo_n = float(model.problem.constraints.min_n_per_group)
-    if start is None:
-        left, right, z, _ = _table_start(model, a_miss, a_fa, per, hi_)
-    else:
-        n0 = np.broadcast_to(np.asarray(start[0], dtype=np.float64), p.shape)
-        z = np.broadcast_to(np.asarray(start[1], dtype=np.float64), p.shape)
-        left, right = np.clip(n0 - 64, lo_n, hi_), np.clip(n0 + 64, lo_n, hi_)
+    left, right, z = _size_bracket(model, a_miss, a_fa, per, hi_, start)
     fixed = model.problem.consequences.fixed
 
     def total(n: FloatArray, z0: FloatArray) -> tuple[FloatArray, FloatArray]:
         zz, err = _best_z(model, a_miss, a_fa, n, z0, 0.5 if start is None else 0.25)
         return zz, err + fixed + per * model.n_total(n)
 
-    n_best, z_best, f_best = _golden_sizes(total, left, right, z)
-    alloc = model.setting.allocation
-    whole = model.setting.design.groups == 1 or float(alloc) == round(float(alloc))
-    steps = (-1, 1) if whole else (-4, -3, -2, -1, 1, 2, 3, 4)
-    for step in steps:  # whole sizes around the best (a comparison group of allocation * n rounds)
-        cand = np.clip(n_best + step, lo_n, hi_)
-        zz, ff = total(cand, z_best)
-        better = ff < f_best
-        n_best, z_best, f_best = (
-            np.where(better, cand, n_best),
-            np.where(better, zz, z_best),
-            np.where(better, ff, f_best),
-        )
-    best_n, best_z, best_f = n_best, z_best, f_best
+    best = _whole_size_neighbours(model, total, _golden_sizes(total, left, right, z), hi_)
+    return _optimum(model, best, ok, flag, clear)
+
+
+def _optimum(
+    model: LossModel,
+    best: tuple[FloatArray, FloatArray, FloatArray],
+    ok: NDArray[np.bool_],
+    flag: FloatArray,
+    clear: FloatArray,
+) -> BatchOptimum:
+    """The best size, critical value and loss of each row with its characteristics (NaN where infeasible)."""
+    best_n, best_z, best_f = best
     ch = normal_at(model, best_n, best_z)
     nan = np.where(ok & np.isfinite(best_f), 1.0, np.nan)
     return BatchOptimum(

@@ -14,14 +14,17 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from numpy.typing import NDArray
 
 from ..designs._base import FloatArray
 from .loss import Characteristics, LossModel, exact_batches
-from .policies import Policy
 from .rules import NO_TEST, OK, NormalSearch, failure_codes, rule_of
+
+if TYPE_CHECKING:  # policies read the rule registries to check a policy
+    from .policies import Policy
 
 _FIELDS = ("nominal", "attained", "power", "design_power", "missed")
 

@@ -3,31 +3,13 @@
 A policy states what it fixes and what it leaves free; whatever it leaves
 free the engine chooses to minimise expected loss within the constraints.
 
-Alpha rules
------------
-``fixed``
-    alpha is ``alpha`` (conventional science).
-``loss-optimal``
-    alpha minimises expected loss.
-``equal-to-beta``
-    attained alpha equals beta (beta averaged over the effect prior); for
-    exact tests the attainable test that makes the larger of the two least.
-``posterior``
-    flag when the posterior probability of harm given the result exceeds
-    ``posterior_threshold``: the Bayes rule with the costs of a miss and of a
-    false alarm in the ratio ``(1 - t) : t``.
-``for-power``
-    the smallest alpha that reaches ``power`` at the design effect (alpha
-    rises as needed, as a precautionary standard allows).
-
-Size rules
-----------
-``smallest-for-power``
-    the smallest size whose power at the design effect reaches ``power``.
-``largest-allowed``
-    the largest size the constraints (size cap, budget) allow.
-``loss-optimal``
-    the size that minimises expected loss.
+The rules a policy may name are registered where they are defined, and
+nowhere else: alpha rules are the classes of :mod:`decide.decision.rules`
+(:data:`~decide.decision.rules.RULES`: ``fixed``, ``loss-optimal``,
+``equal-to-beta``, ``posterior``, ``for-power``), size rules the entries of
+:data:`decide.decision.sizes.SIZE_RULES` (``smallest-for-power``,
+``largest-allowed``, ``loss-optimal``).  Each says which policy keys it
+needs, and the checks here read that.
 
 ``power`` is a requirement at the design effect (the point effect or the
 prior median); ``beta_at_most_alpha`` additionally requires beta (averaged
@@ -49,15 +31,21 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Literal
 
 from .._checks import probability, scalar, show
 from ..errors import DecideError
+from .rules import RULES
+from .sizes import SIZE_RULES
 
-AlphaRule = Literal["fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power"]
-SizeRule = Literal["smallest-for-power", "largest-allowed", "loss-optimal"]
-ALPHA_RULES: tuple[str, ...] = ("fixed", "loss-optimal", "equal-to-beta", "posterior", "for-power")
-SIZE_RULES: tuple[str, ...] = ("smallest-for-power", "largest-allowed", "loss-optimal")
+
+def alpha_rule_names() -> tuple[str, ...]:
+    """Every alpha rule a policy may name, from the registry :data:`decide.decision.rules.RULES`."""
+    return tuple(RULES)
+
+
+def size_rule_names() -> tuple[str, ...]:
+    """Every size rule a policy may name, from the registry :data:`decide.decision.sizes.SIZE_RULES`."""
+    return tuple(SIZE_RULES)
 
 
 @dataclass(frozen=True)
@@ -73,7 +61,7 @@ class Policy:
     summary : str
         One or two sentences on what the policy stands for.
     alpha_rule, size_rule : str
-        See the module documentation.
+        Names in :func:`alpha_rule_names` and :func:`size_rule_names`.
     alpha : float or None
         The fixed alpha (``alpha_rule = "fixed"``).
     power : float or None
@@ -87,8 +75,8 @@ class Policy:
     name: str
     title: str
     summary: str
-    alpha_rule: AlphaRule
-    size_rule: SizeRule
+    alpha_rule: str
+    size_rule: str
     alpha: float | None = None
     power: float | None = None
     posterior_threshold: float | None = None
@@ -104,8 +92,8 @@ class Policy:
             return DecideError(f"{where}: {key}{message}", (key,))
 
         for key, word, rules in (
-            ("alpha.rule", self.alpha_rule, ALPHA_RULES),
-            ("size.rule", self.size_rule, SIZE_RULES),
+            ("alpha.rule", self.alpha_rule, alpha_rule_names()),
+            ("size.rule", self.size_rule, size_rule_names()),
         ):
             if word not in rules:
                 raise fail(key, f" must be one of {', '.join(rules)}, but got {show(word)}")
@@ -126,19 +114,17 @@ class Policy:
             raise fail("power.beta_at_most_alpha", f" must be true or false, but got {show(self.beta_at_most_alpha)}")
 
     def _check_keys(self, fail: Callable[[str, str], DecideError]) -> None:
-        """Each rule's keys given with it, and only with it."""
-        rule = self.alpha_rule
-        for key, value, wanted in (
-            ("alpha.value", self.alpha, "fixed"),
-            ("alpha.posterior_threshold", self.posterior_threshold, "posterior"),
-        ):
-            if rule == wanted and value is None:
-                raise fail(key, f': is required with rule = "{wanted}"')
-            if rule != wanted and value is not None:
-                raise fail(key, f': applies to rule = "{wanted}" only, not {rule!r}, but got {show(value)}')
+        """The keys each rule needs given with it; an ``alpha.*`` key only with a rule that takes it."""
+        alpha_rule, size_rule = RULES[self.alpha_rule], SIZE_RULES[self.size_rule]
+        for key, value in (("alpha.value", self.alpha), ("alpha.posterior_threshold", self.posterior_threshold)):
+            if key in alpha_rule.needs and value is None:
+                raise fail(key, f': is required with rule = "{self.alpha_rule}"')
+            if key not in alpha_rule.needs and value is not None:
+                takers = " or ".join(f'rule = "{n}"' for n, r in RULES.items() if key in r.needs)
+                raise fail(key, f": applies to {takers} only, not {self.alpha_rule!r}, but got {show(value)}")
         if self.power is None:
-            rules = (("size", self.size_rule), ("alpha", self.alpha_rule))
-            needs = [f"{t}.rule = {r!r}" for t, r in rules if r in ("smallest-for-power", "for-power")]
+            rules = (("size", self.size_rule, size_rule.needs), ("alpha", self.alpha_rule, alpha_rule.needs))
+            needs = [f"{table}.rule = {name!r}" for table, name, keys in rules if "power.target" in keys]
             if needs:
                 raise fail("power.target", f": is required with {needs[0]}")
 

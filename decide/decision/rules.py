@@ -4,8 +4,9 @@ Each rule is one class that knows how to pick a critical value for the
 normal test (:meth:`AlphaRule.choose_normal`) and an attainable critical
 region for an exact test (:meth:`AlphaRule.choose_exact`); :data:`RULES`
 maps the name a policy file gives (``alpha.rule``) to the rule.  A new rule
-is one new class registered here, its name in
-:data:`decide.decision.policies.ALPHA_RULES`, and a policy file.
+is one new class registered here (its ``summary`` and ``needs`` tell the
+policy checks and the policy file's schema what it is and which keys it
+takes) and a policy file.
 
 Both methods work on whole batches of sizes at once: the normal chooser on
 an array of sizes through :class:`NormalSearch`, the exact chooser on the
@@ -26,7 +27,7 @@ from __future__ import annotations
 from abc import ABC, abstractmethod
 from dataclasses import dataclass
 from functools import cached_property
-from typing import ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 from numpy.typing import NDArray
@@ -35,7 +36,9 @@ from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
 from .loss import Z_RANGE, Characteristics, ExactOptions, LossModel, bisect_decreasing, minimise_on, normal_at
-from .policies import Policy
+
+if TYPE_CHECKING:  # policies read this registry to check a policy's rule
+    from .policies import Policy
 
 #: Relative slack on the alpha cap.
 CAP_TOL = 1e-9
@@ -129,6 +132,12 @@ class AlphaRule(ABC):
     """How a policy picks its test at each candidate size."""
 
     name: ClassVar[str]
+    #: What the rule does, in one sentence (the policy file's schema shows it).
+    summary: ClassVar[str]
+    #: The policy keys the rule needs.  An ``alpha.*`` key is taken only by
+    #: the rules that need it; ``power.target`` is a requirement any policy
+    #: may state.
+    needs: ClassVar[tuple[str, ...]] = ()
 
     @abstractmethod
     def choose_normal(self, search: NormalSearch) -> FloatArray:
@@ -153,6 +162,8 @@ class Fixed(AlphaRule):
     """alpha is the policy's ``alpha``; an exact test takes the largest region of level alpha."""
 
     name = "fixed"
+    summary = "alpha is value."
+    needs = ("alpha.value",)
 
     def choose_normal(self, search: NormalSearch) -> FloatArray:
         alpha = self.stated_alpha(search.policy)
@@ -175,6 +186,7 @@ class LossOptimal(AlphaRule):
     """alpha minimises the expected loss of the two errors within the constraints."""
 
     name = "loss-optimal"
+    summary = "alpha minimises expected loss."
 
     def choose_normal(self, search: NormalSearch) -> FloatArray:
         lo, hi = search.allowed()
@@ -194,6 +206,8 @@ class Posterior(AlphaRule):
     """Flag when the posterior probability of harm exceeds the policy's threshold (the Bayes test)."""
 
     name = "posterior"
+    summary = "flag when the posterior probability of harm exceeds posterior_threshold."
+    needs = ("alpha.posterior_threshold",)
 
     def choose_normal(self, search: NormalSearch) -> FloatArray:
         t = self._threshold(search.policy)
@@ -216,6 +230,7 @@ class EqualToBeta(AlphaRule):
     """Attained alpha equals beta; for exact tests the larger of the two is made least."""
 
     name = "equal-to-beta"
+    summary = "alpha equals beta."
 
     def choose_normal(self, search: NormalSearch) -> FloatArray:
         return search.equal_root
@@ -232,6 +247,8 @@ class ForPower(AlphaRule):
     """The smallest alpha reaching the policy's power at the design effect (and beta <= alpha if asked)."""
 
     name = "for-power"
+    summary = "the smallest alpha that reaches power.target."
+    needs = ("power.target",)
 
     def choose_normal(self, search: NormalSearch) -> FloatArray:
         z = search.power_root(self._power(search.policy))
@@ -254,7 +271,7 @@ class ForPower(AlphaRule):
 
 #: Every alpha rule, by the name a policy file gives it.
 RULES: dict[str, AlphaRule] = {
-    rule.name: rule for rule in (Fixed(), LossOptimal(), Posterior(), EqualToBeta(), ForPower())
+    rule.name: rule for rule in (Fixed(), LossOptimal(), EqualToBeta(), Posterior(), ForPower())
 }
 
 

@@ -628,53 +628,73 @@ def two_way(
     cell is an optimisation.
     """
     xs, ys = _spaced(x, points), _spaced(y, points)
-    shape = (ys.size, xs.size)
     cost_axes = x.name in _COST_LIKE and y.name in _COST_LIKE
     if cost_axes and fast_available(problem) and x.name != y.name:
-        model = build_model(problem)
-        px, sx, fx, cx = _batch_settings(problem, x.name, xs)
-        py, sy, fy, cy = _batch_settings(problem, y.name, ys)
-        grid = np.meshgrid(np.arange(xs.size), np.arange(ys.size))
-        jx, iy = grid[0].ravel(), grid[1].ravel()
-        settings = []
-        for vx, vy, base in (
-            (px, py, problem.p_harm),
-            (sx, sy, 1.0),
-            (fx, fy, problem.consequences.false_alarm),
-            (cx, cy, problem.consequences.per_subject),
-        ):
-            settings.append(vx[jx] * vy[iy] / base if base != 0 else vx[jx])
-        b = batch_optimum(model, settings[0], settings[1], settings[2], settings[3])
-        acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
-        return TwoWay(
-            problem.title,
-            x.name,
-            y.name,
-            tuple(map(float, xs)),
-            tuple(map(float, ys)),
-            _table(b.nominal, shape),
-            _table(b.attained, shape),
-            _table(b.n, shape),
-            _table(b.loss, shape),
-            tuple(tuple(str(a) for a in row) for row in acts.reshape(shape)),
-            "batch normal test",
-        )
+        return _two_way_batch(problem, x.name, y.name, xs, ys)
+    return _two_way_by_rows(problem, x.name, y.name, xs, ys, progress)
+
+
+def _grid_settings(problem: Problem, x: str, y: str, xs: FloatArray, ys: FloatArray) -> Settings:
+    """``p_harm``, missed-cost scale, false-alarm and per-subject cost of each grid cell (``y`` slowest).
+
+    Each is the ``x`` axis's setting times the ``y`` axis's over the central
+    setting, so an axis that does not move it leaves it central (the ``x``
+    axis's setting where the central one is 0).
+    """
+    px, sx, fx, cx = _batch_settings(problem, x, xs)
+    py, sy, fy, cy = _batch_settings(problem, y, ys)
+    grid = np.meshgrid(np.arange(xs.size), np.arange(ys.size))
+    jx, iy = grid[0].ravel(), grid[1].ravel()
+    settings = []
+    for vx, vy, base in (
+        (px, py, problem.p_harm),
+        (sx, sy, 1.0),
+        (fx, fy, problem.consequences.false_alarm),
+        (cx, cy, problem.consequences.per_subject),
+    ):
+        settings.append(vx[jx] * vy[iy] / base if base != 0 else vx[jx])
+    return settings[0], settings[1], settings[2], settings[3]
+
+
+def _two_way_batch(problem: Problem, x: str, y: str, xs: FloatArray, ys: FloatArray) -> TwoWay:
+    """The whole grid of two prior or cost inputs as one batch of normal tests."""
+    shape = (ys.size, xs.size)
+    b = batch_optimum(build_model(problem), *_grid_settings(problem, x, y, xs, ys))
+    acts = actions_of(b.loss, b.flag_now, b.clear_now, b.feasible)
+    return TwoWay(
+        problem.title,
+        x,
+        y,
+        tuple(map(float, xs)),
+        tuple(map(float, ys)),
+        _table(b.nominal, shape),
+        _table(b.attained, shape),
+        _table(b.n, shape),
+        _table(b.loss, shape),
+        tuple(tuple(str(a) for a in row) for row in acts.reshape(shape)),
+        "batch normal test",
+    )
+
+
+def _two_way_by_rows(
+    problem: Problem, x: str, y: str, xs: FloatArray, ys: FloatArray, progress: Progress | None
+) -> TwoWay:
+    """The grid one row (a value of ``y``) at a time: each row a batch, or an optimisation per cell."""
+    shape = (ys.size, xs.size)
     rows = []
     for i, vy in enumerate(ys):
-        rows.append(optima(with_value(problem, y.name, float(vy)), x.name, xs))
+        rows.append(optima(with_value(problem, y, float(vy)), x, xs))
         if progress is not None:
             progress(i + 1, ys.size)
 
     def stack(field: str) -> tuple[tuple[float, ...], ...]:
         return _table(np.array([getattr(o, field) for o in rows]), shape)
 
-    method = (
-        "batch normal test by row" if fast_available(problem) and x.name in _COST_LIKE else ("optimiser at each cell")
-    )
+    method = "batch normal test by row" if fast_available(problem) and x in _COST_LIKE else "optimiser at each cell"
     return TwoWay(
         problem.title,
-        x.name,
-        y.name,
+        x,
+        y,
         tuple(map(float, xs)),
         tuple(map(float, ys)),
         stack("alpha"),

@@ -209,6 +209,52 @@ def _rate_check(name: str, hits: int, studies: int, analytic: float) -> Check:
     return Check(name, share, Interval(float(ci.low), float(ci.high), 0.95), analytic, se, bool(flagged))
 
 
+@dataclass(frozen=True)
+class _Tally:
+    """What the simulated studies gave: significant results under no harm and under harm, and the missed costs."""
+
+    null_hits: int
+    harm_hits: int
+    missed_sum: float
+    missed_sq: float
+
+
+def _check_simulable(problem: Problem, decision: Decision, studies: int) -> None:
+    """Refuse a study count below 1, a design the simulation cannot draw, or a decision with no design."""
+    if studies < 1:
+        raise DecideError(f"studies must be at least 1, but got {studies}", ("studies",))
+    if design_name(problem) not in SIMULATED:
+        raise DecideError(
+            f"simulate: the {design_name(problem)} design cannot be simulated yet; it can for {', '.join(SIMULATED)}",
+            ("design",),
+        )
+    if not decision.feasible or decision.n_per_group is None or decision.alpha is None:
+        raise InfeasibleError(f"the policy {decision.policy} has no feasible design to simulate")
+
+
+def _run_studies(
+    problem: Problem, n: int, m: int, alpha: float, exact: bool, sides: int, studies: int, seed: int
+) -> _Tally:
+    """Draw and test ``studies`` studies under no harm and as many under harm, in chunks of :data:`CHUNK`."""
+    test_p = _exact_p if exact else _normal_p
+    rng = np.random.default_rng(np.random.SeedSequence(seed))
+    null_hits, harm_hits = 0, 0
+    missed_sum, missed_sq = 0.0, 0.0
+    cost = problem.consequences
+    for start in range(0, studies, CHUNK):
+        size = min(CHUNK, studies - start)
+        x, y = _draw(problem, n, m, np.ones(size), rng)
+        null_hits += int(np.count_nonzero(test_p(problem, x, y, n, m, sides) <= alpha * (1 + _REL)))
+        theta = _effects(problem, rng, size)
+        x, y = _draw(problem, n, m, theta, rng)
+        caught = test_p(problem, x, y, n, m, sides) <= alpha * (1 + _REL)
+        harm_hits += int(np.count_nonzero(caught))
+        realised = np.where(caught, 0.0, cost.missed_cost(theta))
+        missed_sum += float(realised.sum())
+        missed_sq += float((realised**2).sum())
+    return _Tally(null_hits, harm_hits, missed_sum, missed_sq)
+
+
 def simulate(
     problem: Problem, decision: Decision, studies: int = 100_000, seed: int = 0, sides: int | None = None
 ) -> Simulation:
@@ -231,40 +277,18 @@ def simulate(
     -------
     Simulation
     """
-    if studies < 1:
-        raise DecideError(f"studies must be at least 1, but got {studies}", ("studies",))
-    if design_name(problem) not in SIMULATED:
-        raise DecideError(
-            f"simulate: the {design_name(problem)} design cannot be simulated yet; it can for {', '.join(SIMULATED)}",
-            ("design",),
-        )
-    if not decision.feasible or decision.n_per_group is None or decision.alpha is None:
-        raise InfeasibleError(f"the policy {decision.policy} has no feasible design to simulate")
+    _check_simulable(problem, decision, studies)
+    assert decision.n_per_group is not None and decision.alpha is not None
     assert decision.attained_alpha is not None and decision.power is not None
     assert decision.expected_loss is not None and decision.loss_parts is not None
     rule_sides = problem.study.sides if sides is None else sides
     n, alpha = decision.n_per_group, decision.alpha
     m = _comparison(problem, n)
     exact = decision.test == "exact"
-    test_p = _exact_p if exact else _normal_p
-    rng = np.random.default_rng(np.random.SeedSequence(seed))
-    null_hits, harm_hits = 0, 0
-    missed_sum, missed_sq = 0.0, 0.0
-    cost = problem.consequences
-    for start in range(0, studies, CHUNK):
-        size = min(CHUNK, studies - start)
-        x, y = _draw(problem, n, m, np.ones(size), rng)
-        null_hits += int(np.count_nonzero(test_p(problem, x, y, n, m, rule_sides) <= alpha * (1 + _REL)))
-        theta = _effects(problem, rng, size)
-        x, y = _draw(problem, n, m, theta, rng)
-        caught = test_p(problem, x, y, n, m, rule_sides) <= alpha * (1 + _REL)
-        harm_hits += int(np.count_nonzero(caught))
-        realised = np.where(caught, 0.0, cost.missed_cost(theta))
-        missed_sum += float(realised.sum())
-        missed_sq += float((realised**2).sum())
-    false_alarm = _rate_check("false-alarm probability", null_hits, studies, decision.attained_alpha)
-    power = _rate_check("power (averaged over the effect prior)", harm_hits, studies, decision.power)
-    loss = _loss_check(problem, decision, studies, null_hits, missed_sum, missed_sq)
+    tally = _run_studies(problem, n, m, alpha, exact, rule_sides, studies, seed)
+    false_alarm = _rate_check("false-alarm probability", tally.null_hits, studies, decision.attained_alpha)
+    power = _rate_check("power (averaged over the effect prior)", tally.harm_hits, studies, decision.power)
+    loss = _loss_check(problem, decision, studies, tally)
     method = (
         "exact test (scipy.stats fisher_exact / binomtest / poisson tail)"
         if exact
@@ -288,17 +312,15 @@ def simulate(
     )
 
 
-def _loss_check(
-    problem: Problem, decision: Decision, studies: int, null_hits: int, missed_sum: float, missed_sq: float
-) -> Check:
+def _loss_check(problem: Problem, decision: Decision, studies: int, tally: _Tally) -> Check:
     """Mean realised loss (harm with probability p_harm, stratified) beside the expected loss."""
     p = problem.p_harm
     f = problem.consequences.false_alarm
     assert decision.loss_parts is not None and decision.expected_loss is not None
     study = decision.loss_parts["study"]
-    share = null_hits / studies
-    mean_missed = missed_sum / studies
-    var_missed = max(missed_sq / studies - mean_missed**2, 0.0)
+    share = tally.null_hits / studies
+    mean_missed = tally.missed_sum / studies
+    var_missed = max(tally.missed_sq / studies - mean_missed**2, 0.0)
     simulated = study + p * mean_missed + (1 - p) * f * share
     se = math.sqrt((p**2 * var_missed + (1 - p) ** 2 * f**2 * share * (1 - share)) / studies)
     diff = abs(simulated - decision.expected_loss)

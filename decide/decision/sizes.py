@@ -24,6 +24,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -32,8 +33,10 @@ from ..engine.solve import solve
 from ..errors import DecideError
 from .choice import Choice, choose_tests
 from .loss import LossModel
-from .policies import Policy
 from .rules import ALPHA_CAP, BETA_ABOVE_ALPHA, NO_TEST, OK, POWER_FLOOR
+
+if TYPE_CHECKING:  # policies read this registry to check a policy's size rule
+    from .policies import Policy
 
 #: Up to this many sizes below a smallest-for-power answer are all checked.
 EVERY_SIZE = {"one-group": 2_000, "two-group": 500}
@@ -267,11 +270,22 @@ def _loss_optimal(model: LossModel, policy: Policy, lo: float, top: int | None) 
     return SizePick(n=_refine_min(model, policy, grid, loss), reason=None)
 
 
+@dataclass(frozen=True)
+class SizeRule:
+    """A size rule: how it picks, what it does in one sentence, and the policy keys it needs."""
+
+    pick: Callable[[LossModel, Policy, float, int | None], SizePick]
+    summary: str
+    needs: tuple[str, ...] = ()
+
+
 #: Every size rule, by the name a policy file gives it: (model, policy, smallest, largest allowed) -> pick.
-SIZE_RULES: dict[str, Callable[[LossModel, Policy, float, int | None], SizePick]] = {
-    "largest-allowed": _largest_allowed,
-    "smallest-for-power": _smallest_for_power,
-    "loss-optimal": _loss_optimal,
+SIZE_RULES: dict[str, SizeRule] = {
+    "smallest-for-power": SizeRule(
+        _smallest_for_power, "the smallest size reaching power.target.", needs=("power.target",)
+    ),
+    "largest-allowed": SizeRule(_largest_allowed, "the largest size the constraints allow."),
+    "loss-optimal": SizeRule(_loss_optimal, "the size minimising expected loss."),
 }
 
 
@@ -281,4 +295,4 @@ def pick_size(model: LossModel, policy: Policy) -> SizePick:
     top = _largest_affordable(model)
     if top is not None and top < lo:
         return SizePick(n=None, reason="the budget does not cover the smallest allowed study")
-    return SIZE_RULES[policy.size_rule](model, policy, lo, top)
+    return SIZE_RULES[policy.size_rule].pick(model, policy, lo, top)

@@ -305,6 +305,26 @@ def _summary(label: str, d: Decision, average: float) -> DesignSummary:
     return DesignSummary(label, d.alpha, d.attained_alpha, d.n_per_group, average)
 
 
+@dataclass(frozen=True)
+class _DrawOptima:
+    """The drawn inputs and the loss-optimal design of each draw.
+
+    ``own`` holds the optimum's numbers by field (NaN where none), ``actions``
+    the recommended action of each draw, ``method`` how the optima were found,
+    and ``candidates`` the first :data:`CANDIDATES` draws' own decisions
+    (labelled ``draw i``; only when each draw was optimised on its own).
+    """
+
+    seed: int
+    size: int
+    inputs: dict[str, Distribution]
+    values: dict[str, FloatArray]
+    own: dict[str, FloatArray]
+    actions: tuple[str, ...]
+    method: str
+    candidates: list[Decision]
+
+
 def probabilistic(
     problem: Problem,
     inputs: dict[str, Distribution],
@@ -347,38 +367,39 @@ def probabilistic(
     check_uncertainty(problem, inputs)
     values = draw_inputs(inputs, draws, seed)
     own, acts, method, seen = _optima_per_draw(problem, values, draws, progress)
+    drawn = _DrawOptima(seed, draws, inputs, values, own, acts, method, seen)
     pols = list(policies) if any(p == LOSS_OPTIMAL for p in policies) else [LOSS_OPTIMAL, *policies]
     decisions = list(compare(problem, pols))
     central = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
     if "study.baseline" in values:
-        return _with_baseline(problem, values, draws, seed, inputs, own, acts, decisions + seen, central, method)
-    settings = _settings(problem, values, draws)
+        return _with_baseline(problem, drawn, decisions, central)
+    return _with_fixed_baseline(problem, drawn, decisions, central)
+
+
+def _no_study_losses(
+    problem: Problem, settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray]
+) -> tuple[FloatArray, FloatArray]:
+    """The loss in each draw of flagging the hazard now and of clearing it now, without a study."""
+    p, scale, fa, _ = settings
+    return (1 - p) * fa, p * scale * build_model(problem).expected_missed
+
+
+def _with_fixed_baseline(
+    problem: Problem, drawn: _DrawOptima, decisions: list[Decision], central: Decision
+) -> Probabilistic:
+    """What the draws say when only the prior and the costs are drawn (each design's loss is linear in them)."""
+    settings = _settings(problem, drawn.values, drawn.size)
     design_losses = {d.policy: _design_losses(d, problem, settings) for d in decisions}
-    central_losses = design_losses[central.policy]
     # every design's loss is linear in the drawn inputs, so the certainty-equivalent
     # problem's loss is the averaged loss, and its optimum minimises it
     avg = optimize(_certainty_equivalent(problem, settings))
     avg_loss = avg.expected_loss if avg.feasible and avg.expected_loss is not None else math.inf
-    flag = (1 - settings[0]) * settings[2]
-    clear = settings[0] * settings[1] * build_model(problem).expected_missed
-    own_loss = np.fmin(own["expected_loss"], np.minimum(flag, clear))
+    flag, clear = _no_study_losses(problem, settings)
+    own_loss = np.fmin(drawn.own["expected_loss"], np.minimum(flag, clear))
     best_avg = min(avg_loss, float(np.mean(flag)), float(np.mean(clear)))
-    committed = _committed(central, central_losses, flag, clear)
-    return _result(
-        problem,
-        seed,
-        draws,
-        inputs,
-        own,
-        acts,
-        own_loss,
-        design_losses,
-        central,
-        committed,
-        _summary("least average loss", avg, avg_loss),
-        best_avg,
-        method,
-    )
+    committed = _committed(central, design_losses[central.policy], flag, clear)
+    average = _summary("least average loss", avg, avg_loss)
+    return _result(problem, drawn, own_loss, design_losses, central, committed, average, best_avg, drawn.method)
 
 
 def _committed(central: Decision, study: FloatArray, flag: FloatArray, clear: FloatArray) -> FloatArray:
@@ -391,13 +412,28 @@ def _committed(central: Decision, study: FloatArray, flag: FloatArray, clear: Fl
     return study
 
 
+def _spreads(own: dict[str, FloatArray]) -> tuple[Spread, ...]:
+    """Mean and quantiles over the draws of each number of the draws' own optima (none if no draw has one)."""
+    if not np.isfinite(own["expected_loss"]).any():
+        return ()
+    return tuple(
+        Spread(k, float(np.nanmean(own[k])), tuple(float(v) for v in np.nanquantile(own[k], QUANTILES)))
+        for k in ("alpha", "attained_alpha", "power", "n_per_group", "expected_loss")
+    )
+
+
+def _least_loss_shares(design_losses: dict[str, FloatArray]) -> dict[str, float]:
+    """The share of draws in which each design has the least loss (ties, up to rounding, count for each)."""
+    names = list(design_losses)
+    table = np.vstack([design_losses[k] for k in names])
+    best = np.min(table, axis=0)
+    tied = np.isfinite(table) & (table <= best + 1e-9 * np.abs(best))
+    return {k: float(np.mean(tied[i])) for i, k in enumerate(names)}
+
+
 def _result(
     problem: Problem,
-    seed: int,
-    draws: int,
-    inputs: dict[str, Distribution],
-    own: dict[str, FloatArray],
-    acts: tuple[str, ...],
+    drawn: _DrawOptima,
     own_loss: FloatArray,
     design_losses: dict[str, FloatArray],
     central: Decision,
@@ -406,20 +442,9 @@ def _result(
     best_avg: float,
     method: str,
 ) -> Probabilistic:
-    spreads = (
-        tuple(
-            Spread(k, float(np.nanmean(own[k])), tuple(float(v) for v in np.nanquantile(own[k], QUANTILES)))
-            for k in ("alpha", "attained_alpha", "power", "n_per_group", "expected_loss")
-        )
-        if np.isfinite(own["expected_loss"]).any()
-        else ()
-    )
-    names = list(design_losses)
-    table = np.vstack([design_losses[k] for k in names])
-    best = np.min(table, axis=0)
-    tied = np.isfinite(table) & (table <= best + 1e-9 * np.abs(best))
-    share = {k: float(np.mean(tied[i])) for i, k in enumerate(names)}
-    action_share = {a: float(np.mean(np.asarray(acts) == a)) for a in ACTIONS}
+    spreads = _spreads(drawn.own)
+    share = _least_loss_shares(design_losses)
+    action_share = {a: float(np.mean(np.asarray(drawn.actions) == a)) for a in ACTIONS}
     # regret and EVPI are measured against each draw's best choice, a study or none
     regret = float(np.mean(np.fmin(central_losses, np.inf) - own_loss))
     mean_own = float(np.mean(own_loss))
@@ -428,9 +453,9 @@ def _result(
         evpi = 0.0
     return Probabilistic(
         problem.title,
-        int(seed),
-        draws,
-        {k: _describe(v) for k, v in sorted(inputs.items())},
+        int(drawn.seed),
+        drawn.size,
+        {k: _describe(v) for k, v in sorted(drawn.inputs.items())},
         QUANTILES,
         spreads,
         action_share,
@@ -444,41 +469,29 @@ def _result(
     )
 
 
-def _with_baseline(
+def _losses_at_drawn_baselines(
     problem: Problem,
-    values: dict[str, FloatArray],
-    draws: int,
-    seed: int,
-    inputs: dict[str, Distribution],
-    own: dict[str, FloatArray],
-    acts: tuple[str, ...],
-    decisions: list[Decision],
-    central: Decision,
-    method: str,
-) -> Probabilistic:
-    """Design losses under draws that move the baseline: each design re-evaluated per draw.
+    designs: list[Decision],
+    settings: tuple[FloatArray, FloatArray, FloatArray, FloatArray],
+    baselines: FloatArray,
+) -> dict[str, FloatArray]:
+    """The loss of each fixed design in each draw, its power and attained alpha recomputed at the draw's baseline.
 
-    ``decisions`` holds the policies' designs and the first draws' own optima
-    (labelled ``draw i``), the candidates for the least averaged loss.
+    The effects of the prior's quadrature are held just below the design's
+    largest possible effect at each baseline.
     """
     from ..engine.power import power as _power
 
-    settings = _settings(problem, values, draws)
     p, scale, fa, per = settings
-    baselines = values["study.baseline"]
-    cand = [d for d in decisions if d.feasible]
-    cand_all = cand
     s = problem.study
-    nodes, weights = problem.effect.nodes()
-    limit = model_limit = build_model(problem).setting.design.effect_limit(baselines)
-    del model_limit
-    effects = np.minimum(nodes[None, :], np.asarray(limit)[:, None] * (1 - 1e-9))
     model = build_model(problem)
+    design = model.setting.design
+    nodes, weights = problem.effect.nodes()
+    effects = np.minimum(nodes[None, :], np.asarray(design.effect_limit(baselines))[:, None] * (1 - 1e-9))
     m_cost = problem.consequences.missed_cost(nodes)
     losses: dict[str, FloatArray] = {}
-    for d in cand_all:
+    for d in designs:
         assert d.alpha is not None and d.n_per_group is not None and d.n_total is not None
-        test = "exact" if d.test == "exact" else "normal"
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ApproximationWarning)
             res = _power(
@@ -487,10 +500,10 @@ def _with_baseline(
                 d.n_per_group,
                 effects,
                 baselines[:, None],
-                allocation=s.allocation if model.setting.design.allocation_name else None,
-                years=s.years if model.setting.design.uses_years else None,
+                allocation=s.allocation if design.allocation_name else None,
+                years=s.years if design.uses_years else None,
                 sides=s.sides,
-                test=test,
+                test="exact" if d.test == "exact" else "normal",
                 continuity=s.continuity,
             )
         miss = (1 - res.power) @ (weights * m_cost)
@@ -498,31 +511,28 @@ def _with_baseline(
         losses[d.policy] = np.asarray(
             p * scale * miss + (1 - p) * fa * att + problem.consequences.fixed + per * d.n_total
         )
-    flag = (1 - p) * fa
-    clear = p * scale * model.expected_missed
-    own_loss = np.fmin(own["expected_loss"], np.minimum(flag, clear))
-    draw_keys = [k for k in losses if k.startswith("draw ")]
+    return losses
+
+
+def _with_baseline(problem: Problem, drawn: _DrawOptima, decisions: list[Decision], central: Decision) -> Probabilistic:
+    """What the draws say when they move the baseline: each design re-evaluated per draw.
+
+    The policies' designs in ``decisions`` and the first draws' own optima
+    (labelled ``draw i``) are the candidates for the least averaged loss.
+    """
+    settings = _settings(problem, drawn.values, drawn.size)
+    candidates = [d for d in decisions + drawn.candidates if d.feasible]
+    losses = _losses_at_drawn_baselines(problem, candidates, settings, drawn.values["study.baseline"])
+    flag, clear = _no_study_losses(problem, settings)
+    own_loss = np.fmin(drawn.own["expected_loss"], np.minimum(flag, clear))
     avg_key = min(losses, key=lambda k: float(np.mean(losses[k])))
-    avg_d = next(d for d in cand_all if d.policy == avg_key)
+    avg_d = next(d for d in candidates if d.policy == avg_key)
     best_avg = min(float(np.mean(losses[avg_key])), float(np.mean(flag)), float(np.mean(clear)))
-    design_losses = {k: v for k, v in losses.items() if k not in draw_keys}
-    central_losses = _committed(central, losses.get(central.policy, np.full(draws, np.inf)), flag, clear)
+    design_losses = {k: v for k, v in losses.items() if not k.startswith("draw ")}
+    central_losses = _committed(central, losses.get(central.policy, np.full(drawn.size, np.inf)), flag, clear)
     average = _summary("least average loss among candidates", avg_d, float(np.mean(losses[avg_key])))
-    return _result(
-        problem,
-        seed,
-        draws,
-        inputs,
-        own,
-        acts,
-        own_loss,
-        design_losses,
-        central,
-        central_losses,
-        average,
-        best_avg,
-        method + "; averaged-loss design among candidates (baseline uncertain)",
-    )
+    method = drawn.method + "; averaged-loss design among candidates (baseline uncertain)"
+    return _result(problem, drawn, own_loss, design_losses, central, central_losses, average, best_avg, method)
 
 
 def lognormal_check_quantiles(dist: LognormalInput, qs: Sequence[float]) -> FloatArray:

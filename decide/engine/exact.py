@@ -177,7 +177,26 @@ def _alt_window(m: Marginal) -> tuple[FloatArray, FloatArray]:
 def _pmf(family: str, trials: FloatArray, parameter: FloatArray, x: FloatArray) -> FloatArray:
     if family == "binomial":
         return np.asarray(stats.binom.pmf(x, trials, parameter), dtype=np.float64)
-    return np.asarray(stats.poisson.pmf(x, parameter), dtype=np.float64)
+    return _poisson_pmf(x, parameter)
+
+
+def _poisson_pmf(x: FloatArray, mean: FloatArray) -> FloatArray:
+    """Poisson probabilities of the counts ``x`` (non-negative whole numbers).
+
+    The formula of ``scipy.stats.poisson.pmf``, ``exp(x log(mean) - mean -
+    log x!)``, with the logarithms taken before broadcasting: ``log x!`` over
+    the counts and ``log(mean)`` over the means.  On a grid of counts by
+    effects scipy would evaluate both once per cell.
+    """
+    mean = np.asarray(mean, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_mean = np.log(mean)  # over the means only, not over every cell as xlogy would
+        log_pmf = x * log_mean
+    if np.any(mean == 0):  # a zero mean puts all its mass on no cases
+        log_pmf = np.where(mean == 0, np.where(x == 0, 0.0, -np.inf), log_pmf)
+    log_pmf -= mean
+    log_pmf -= special.gammaln(x + 1)
+    return np.exp(log_pmf, out=log_pmf)
 
 
 def _axis(lo: FloatArray, hi: FloatArray) -> tuple[FloatArray, NDArray[np.bool_]]:
@@ -214,12 +233,15 @@ def _row_span(
     hi = np.where(tvalid, hi, lo)
     width = int(np.max(hi - lo)) + 1
     x = lo[:, :, None] + np.arange(width, dtype=np.float64)  # (B, T, W)
+    inside = x <= hi[:, :, None]
     with np.errstate(divide="ignore", invalid="ignore"):
-        step = rows.log_step(x)
-    step = np.where(x + 1 <= hi[:, :, None], step, 0.0)
-    logf = np.concatenate([np.zeros_like(step[:, :, :1]), np.cumsum(step[:, :, :-1], axis=2)], axis=2)
-    logf = np.where(x <= hi[:, :, None], logf, -np.inf)
-    f = np.exp(logf - logf.max(axis=2, keepdims=True))
+        step = rows.log_step(x[:, :, :-1])
+    step[~inside[:, :, 1:]] = 0.0  # a step out of the span (only the last count of a row steps to it)
+    logf = np.zeros_like(x)
+    np.cumsum(step, axis=2, out=logf[:, :, 1:])
+    logf[~inside] = -np.inf
+    logf -= logf.max(axis=2, keepdims=True)
+    f = np.exp(logf, out=logf)
     f /= f.sum(axis=2, keepdims=True)
     return lo, hi, x, f
 
@@ -283,7 +305,7 @@ def _hypergeometric(n1: FloatArray, n0: FloatArray) -> Callable[[FloatArray], _R
             np.minimum(t, a),
             t * share,
             np.sqrt(var),
-            lambda x: np.log(tt - x) + np.log(a3 - x) - np.log(x + 1) - np.log(c3 - tt + x + 1),
+            lambda x: np.log((tt - x) * (a3 - x) / ((x + 1) * (c3 - tt + x + 1))),
         )
 
     return law

@@ -14,7 +14,8 @@ A policy file states how alpha and the study size are chosen::
     [size]
     rule = "smallest-for-power"   # smallest-for-power | largest-allowed | loss-optimal
 
-The rules are described in :mod:`decide.decision.policies`.  The policy's name is the
+The rules are described where they are registered: the alpha rules in
+:mod:`decide.decision.rules`, the size rules in :mod:`decide.decision.sizes`.  The policy's name is the
 file's stem (``conventional-science.toml`` is ``conventional-science``).
 
 The bundled policies live in the top-level ``policies/`` folder of a source
@@ -28,14 +29,16 @@ from __future__ import annotations
 
 import os
 import re
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from importlib.resources.abc import Traversable
 from pathlib import Path
 from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from decide.decision.policies import AlphaRule, Policy, SizeRule
+from decide.decision.policies import Policy, alpha_rule_names, size_rule_names
+from decide.decision.rules import RULES
+from decide.decision.sizes import SIZE_RULES
 from decide.errors import DecideError
 
 from ._messages import PolicyFileError, from_core_error
@@ -59,6 +62,24 @@ BUILTIN_ORDER: tuple[str, ...] = (
 _NAME = re.compile(r"[a-z0-9]+(-[a-z0-9]+)*")
 
 
+def _names_from(names: Callable[[], tuple[str, ...]], help_of: Callable[[], str]) -> Callable[[dict[str, Any]], None]:
+    """The schema's list of a rule's names and their help, read from the registry when the schema is made."""
+
+    def add(schema: dict[str, Any]) -> None:
+        schema["enum"] = list(names())
+        schema["description"] = help_of()
+
+    return add
+
+
+def _alpha_rule_help() -> str:
+    return " ".join(f"{name}: {rule.summary}" for name, rule in RULES.items())
+
+
+def _size_rule_help() -> str:
+    return " ".join(f"{name}: {rule.summary}" for name, rule in SIZE_RULES.items())
+
+
 def _config(title: str) -> ConfigDict:
     return ConfigDict(extra="forbid", frozen=True, strict=True, allow_inf_nan=True, title=title)
 
@@ -68,13 +89,8 @@ class AlphaTable(BaseModel):
 
     model_config = _config("[alpha]")
 
-    rule: AlphaRule = Field(
-        description=(
-            "fixed: alpha is value. loss-optimal: alpha minimises expected loss. equal-to-beta: "
-            "alpha equals beta. posterior: flag when the posterior probability of harm exceeds "
-            "posterior_threshold. for-power: the smallest alpha that reaches power.target."
-        )
-    )
+    # the name is checked by the core against the registry (any rule registered there is taken)
+    rule: str = Field(json_schema_extra=_names_from(alpha_rule_names, _alpha_rule_help))
     value: Annotated[float | None, Field(description='The alpha, with rule = "fixed" only.')] = None
     posterior_threshold: Annotated[
         float | None,
@@ -107,12 +123,7 @@ class SizeTable(BaseModel):
 
     model_config = _config("[size]")
 
-    rule: SizeRule = Field(
-        description=(
-            "smallest-for-power: the smallest size reaching power.target. largest-allowed: the "
-            "largest size the constraints allow. loss-optimal: the size minimising expected loss."
-        )
-    )
+    rule: str = Field(json_schema_extra=_names_from(size_rule_names, _size_rule_help))
 
 
 class PolicyFileModel(BaseModel):
