@@ -60,18 +60,34 @@ def test_the_counting_sees_nested_functions_and_methods() -> None:
     assert named == {"f": 3, "f.<locals>.g": 2, "C.m": 2}
 
 
+def _over_limit(lengths: dict[str, tuple[str, int]], pending: set[str]) -> list[str]:
+    """``path:line name length`` of each function over the limit and not pending."""
+    return [
+        f"{where} {name} {length}"
+        for name, (where, length) in lengths.items()
+        if length > LONGEST and name not in pending
+    ]
+
+
+def _stale(lengths: dict[str, tuple[str, int]], pending: set[str]) -> list[str]:
+    """Pending names that are no longer over the limit, or no longer exist."""
+    return sorted(name for name in pending if name not in lengths or lengths[name][1] <= LONGEST)
+
+
+def test_the_checks_flag_long_functions_and_stale_pending_names() -> None:
+    lengths = {"a.f": ("decide/a.py:1", LONGEST + 1), "a.g": ("decide/a.py:9", LONGEST)}
+    assert _over_limit(lengths, set()) == [f"decide/a.py:1 a.f {LONGEST + 1}"]
+    assert _over_limit(lengths, {"a.f"}) == []
+    assert _stale(lengths, {"a.f", "a.g", "a.h"}) == ["a.g", "a.h"]
+
+
 def test_no_function_over_the_limit() -> None:
     lengths = _lengths()
     assert len(lengths) > 100  # the walk found the package
-    too_long = [
-        f"{where} {name} {length}"
-        for name, (where, length) in lengths.items()
-        if length > LONGEST and name not in PENDING
-    ]
+    too_long = _over_limit(lengths, PENDING)
     assert not too_long, f"functions over {LONGEST} lines:\n" + "\n".join(too_long)
 
 
 def test_pending_names_are_still_long() -> None:
-    lengths = _lengths()
-    stale = sorted(name for name in PENDING if name not in lengths or lengths[name][1] <= LONGEST)
+    stale = _stale(_lengths(), PENDING)
     assert not stale, "no longer over the limit (or gone): take them out of PENDING: " + ", ".join(stale)
