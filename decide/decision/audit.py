@@ -40,11 +40,11 @@ from .._results import PlainData
 from ..designs import StudyDesign, get_design
 from ..engine.power import evaluate
 from ..engine.rule import DecisionRule, decision_rule
-from ..engine.solve import solve
+from ..engine.solve import Solution, solve
 from ..errors import DecideError
 from .choice import choose_tests
 from .implied import implied_ratio_exact, implied_ratio_normal
-from .loss import build_model, normal_at
+from .loss import LossModel, build_model, normal_at
 from .optimize import decide_policy as _decide_policy
 from .optimize import optimize as _optimize
 from .policies import Policy
@@ -165,6 +165,43 @@ def audit(
     >>> a.n_per_group, round(a.implied_cost_ratio, 2)
     (3574, 3.52)
     """
+    p_harm, per_subject = _checked_judgments(power, n_per_group, p_harm, per_subject, missed_hazard, false_alarm)
+    sol, study = _solved_protocol(
+        design, baseline, alpha, effect, power, n_per_group, allocation, years, sides, test, continuity
+    )
+    model = _unit_cost_model(study, effect, p_harm, per_subject)
+    implied = _implied_costs(model, sol, alpha, p_harm, per_subject)
+    detect = {f"{lv:g}": _detect(get_design(design), sol, lv) for lv in DETECTION_LEVELS}
+    rule = decision_rule(model.setting, float(sol.n_per_group), alpha, exact=sol.test == "exact", effect=effect)
+    losses = None
+    if missed_hazard is not None and false_alarm is not None:
+        costs = Consequences(false_alarm=false_alarm, per_subject=per_subject, fixed=fixed, missed_hazard=missed_hazard)
+        stated = Problem(study, prior or EffectPrior.point(effect), p_harm, costs)
+        losses = _protocol_losses(stated, alpha, sol.n_per_group, test)
+    return _audit_of(design, sol, sides, alpha, effect, p_harm, per_subject, implied, detect, rule, prior, losses)
+
+
+@dataclass(frozen=True)
+class _Implied:
+    """The costs at which a protocol's alpha and size would be loss-optimal (in the unit of ``per_subject``)."""
+
+    cost_ratio: float | None
+    cost_ratio_range: tuple[float, float] | None
+    marginal_power_per_subject: float
+    missed_hazard: float | None
+    false_alarm: float | None
+    warnings: tuple[str, ...]
+
+
+def _checked_judgments(
+    power: float | None,
+    n_per_group: int | None,
+    p_harm: float,
+    per_subject: float,
+    missed_hazard: float | None,
+    false_alarm: float | None,
+) -> tuple[float, float]:
+    """Check that the audit is asked one question, and return ``p_harm`` and ``per_subject`` as floats."""
     if (power is None) == (n_per_group is None):
         raise DecideError(
             "give exactly one of power and n_per_group (the size, or the power it was chosen for)",
@@ -177,6 +214,23 @@ def audit(
             "give both missed_hazard and false_alarm (the protocol's costs), or neither",
             ("missed_hazard", "false_alarm"),
         )
+    return p_harm, per_subject
+
+
+def _solved_protocol(
+    design: str | StudyDesign,
+    baseline: float,
+    alpha: float,
+    effect: float,
+    power: float | None,
+    n_per_group: int | None,
+    allocation: float | None,
+    years: float | None,
+    sides: int,
+    test: str,
+    continuity: bool,
+) -> tuple[Solution, Study]:
+    """The protocol solved for its power (or size), and its study with the test that ran."""
     sol = solve(
         design,
         baseline=baseline,
@@ -192,19 +246,33 @@ def audit(
     )
     exact = sol.test == "exact"
     study = Study(design, baseline, sol.allocation, sol.years, sides, "exact" if exact else "normal", continuity)
+    return sol, study
+
+
+def _unit_cost_model(study: Study, effect: float, p_harm: float, per_subject: float) -> LossModel:
+    """The loss model of the protocol's study at its effect, with unit missed-hazard and false-alarm costs."""
     problem = Problem(
         study,
         EffectPrior.point(effect),
         p_harm,
         Consequences(false_alarm=1.0, per_subject=per_subject, missed_hazard=1.0),
     )
-    model = build_model(problem)
+    return build_model(problem)
+
+
+def _implied_costs(model: LossModel, sol: Solution, alpha: float, p_harm: float, per_subject: float) -> _Implied:
+    """The cost ratio at which the protocol's alpha is loss-optimal, and the missed-hazard cost its size reflects.
+
+    At a loss-optimal size one more subject costs what it saves:
+    ``M = per_subject * (1 + allocation) / (p_harm * dPower/dn)``; with the
+    implied ratio this also implies a false-alarm cost.
+    """
     as_is = Policy("protocol", "Protocol", "", "fixed", "largest-allowed", alpha=alpha)
     n = float(sol.n_per_group)
     ch = choose_tests(model, as_is, np.array([n]))
     warnings: list[str] = list(sol.warnings)
     rng: tuple[float, float] | None
-    if exact:
+    if sol.test == "exact":
         found = implied_ratio_exact(model, n, ch.chars.at(0))
         rng = None if found is None else (found.low, found.high)
         ratio = None if found is None else found.point
@@ -216,25 +284,30 @@ def audit(
     else:
         rng = None
         ratio = implied_ratio_normal(model, n, float(ch.z[0]))
-        h = max(1e-3 * n, 1e-3)
-        c = normal_at(model, np.array([n - h, n + h]), np.full(2, float(ch.z[0])))
-        slope = float((c.design_power[1] - c.design_power[0]) / (2 * h))
+        slope = _normal_slope(model, n, float(ch.z[0]))
     per_n = 1.0 + (sol.n_total - sol.n_per_group) / sol.n_per_group
     implied_missed = per_subject * per_n / (p_harm * slope) if slope > 0 and per_subject > 0 else None
     implied_false_alarm = implied_missed / ratio if implied_missed is not None and ratio else None
-    detect = {f"{lv:g}": _detect(get_design(design), sol, lv) for lv in DETECTION_LEVELS}
+    return _Implied(ratio, rng, slope, implied_missed, implied_false_alarm, tuple(warnings))
+
+
+def _audit_of(
+    design: str | StudyDesign,
+    sol: Solution,
+    sides: int,
+    alpha: float,
+    effect: float,
+    p_harm: float,
+    per_subject: float,
+    implied: _Implied,
+    detect: dict[str, float | None],
+    rule: DecisionRule,
+    prior: EffectPrior | None,
+    losses: ProtocolLosses | None,
+) -> Audit:
+    """The audit from its parts, with the probability of harm after each result by Bayes' rule."""
     neg = p_harm * sol.beta + (1 - p_harm) * (1 - sol.attained_alpha)
     pos = p_harm * sol.power + (1 - p_harm) * sol.attained_alpha
-    rule = decision_rule(model.setting, n, alpha, exact=exact, effect=effect)
-    losses = None
-    if missed_hazard is not None and false_alarm is not None:
-        stated = Problem(
-            study,
-            prior or EffectPrior.point(effect),
-            p_harm,
-            Consequences(false_alarm=false_alarm, per_subject=per_subject, fixed=fixed, missed_hazard=missed_hazard),
-        )
-        losses = _protocol_losses(stated, alpha, int(n), test)
     return Audit(
         design=sol.design,
         test=sol.test,
@@ -249,17 +322,17 @@ def audit(
         n_total=sol.n_total,
         p_harm=p_harm,
         per_subject=per_subject,
-        implied_cost_ratio=ratio,
-        implied_cost_ratio_range=rng,
-        marginal_power_per_subject=slope,
-        implied_missed_hazard=implied_missed,
-        implied_false_alarm=implied_false_alarm,
+        implied_cost_ratio=implied.cost_ratio,
+        implied_cost_ratio_range=implied.cost_ratio_range,
+        marginal_power_per_subject=implied.marginal_power_per_subject,
+        implied_missed_hazard=implied.missed_hazard,
+        implied_false_alarm=implied.false_alarm,
         # None where that result cannot happen (a study too small ever to be significant)
         p_harm_given_negative=p_harm * sol.beta / neg if neg > 0 else None,
         p_harm_given_positive=p_harm * sol.power / pos if pos > 0 else None,
         detectable_effects=detect,
         rules_out=_rules_out(detect, effect, get_design(design).effect_name),
-        warnings=tuple(warnings),
+        warnings=implied.warnings,
         rule=rule,
         prior=None if prior is None else prior.describe(),
         losses=losses,
@@ -312,7 +385,15 @@ def _protocol_losses(problem: Problem, alpha: float, n: int, test: str) -> Proto
     )
 
 
+def _normal_slope(model: LossModel, n: float, z: float) -> float:
+    """Marginal power per subject of the normal test: a central difference over 0.1 % of the size."""
+    h = max(1e-3 * n, 1e-3)
+    c = normal_at(model, np.array([n - h, n + h]), np.full(2, z))
+    return float((c.design_power[1] - c.design_power[0]) / (2 * h))
+
+
 def _exact_slope(model: Any, alpha: float, n: float) -> float:
+    """Marginal power per subject of the exact test: the slope of a line fitted over sizes within 10 %."""
     s = model.setting
     sizes = np.unique(np.round(np.linspace(0.9 * n, 1.1 * n, 21)))
     sizes = sizes[sizes >= 1]

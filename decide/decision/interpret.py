@@ -474,6 +474,17 @@ def interpret(
     >>> r.ci_low, round(r.excludes_above, 3), r.p_value, round(r.posterior_harm, 4), r.recommendation
     (0.0, 2.459, 1.0, 0.0873, 'flag')
     """
+    c = _checked_counts(problem, observed, confidence)
+    ev = evidence(c)
+    asked = list(policies)
+    decisions = list(compare(problem, asked + ([] if LOSS_OPTIMAL in asked else [LOSS_OPTIMAL])))
+    verdicts = _policy_verdicts(decisions[: len(asked)], ev)
+    best = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
+    return _reading(problem, c, confidence, ev, verdicts, best)
+
+
+def _checked_counts(problem: Problem, observed: Mapping[str, float] | Counts, confidence: float) -> Counts:
+    """The observed counts, read and checked against the problem's design, once ``confidence`` is checked."""
     if not 0 < confidence < 1:
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))
     c = observed if isinstance(observed, Counts) else read_counts(problem, observed)
@@ -483,20 +494,23 @@ def interpret(
             f"{get_design(problem.study.design).name}",
             ("observed",),
         )
-    reader = reader_of(c.design)
-    baseline = float(problem.study.baseline)
-    ev = evidence(c)
-    asked = list(policies)
-    decisions = list(compare(problem, asked + ([] if LOSS_OPTIMAL in asked else [LOSS_OPTIMAL])))
-    verdicts = _policy_verdicts(decisions[: len(asked)], ev)
+    return c
+
+
+def _reading(
+    problem: Problem,
+    c: Counts,
+    confidence: float,
+    ev: Evidence,
+    verdicts: tuple[PolicyVerdict, ...],
+    best: Decision,
+) -> Interpretation:
+    """The reading of the counts: estimate and interval, the posterior and the loss of each action, the verdicts."""
     post = posterior(problem, c)
     loss_flag = (1 - post.p_harm) * problem.consequences.false_alarm
     loss_clear = post.p_harm * post.missed_given_harm
-    best = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
     alpha = best.alpha if best.alpha is not None else 0.05
-    lo_law, hi_law = _law_interval(c, confidence)
-    low = float(reader.from_law(np.asarray(lo_law), baseline))
-    high = float(reader.from_law(np.asarray(hi_law), baseline)) if np.isfinite(hi_law) else np.inf
+    low, high = _effect_interval(c, confidence, float(problem.study.baseline))
     return Interpretation(
         design=c.design,
         effect_name=problem.study.setting().design.effect_name,
@@ -524,6 +538,15 @@ def interpret(
         sides=problem.study.sides,
         warnings=_notes(c),
     )
+
+
+def _effect_interval(c: Counts, confidence: float, baseline: float) -> tuple[float, float]:
+    """The confidence interval of the design's effect, from the interval of the counts' law."""
+    reader = reader_of(c.design)
+    lo_law, hi_law = _law_interval(c, confidence)
+    low = float(reader.from_law(np.asarray(lo_law), baseline))
+    high = float(reader.from_law(np.asarray(hi_law), baseline)) if np.isfinite(hi_law) else np.inf
+    return low, high
 
 
 def _notes(c: Counts) -> tuple[str, ...]:

@@ -239,8 +239,7 @@ def power(
     Parameters
     ----------
     design : str or StudyDesign
-        A design name (the keys of :data:`decide.designs.DESIGNS`) or a
-        configured design (:meth:`~decide.designs.StudyDesign.configure`).
+        A design name (a key of :data:`decide.designs.DESIGNS`) or a configured one (:meth:`~.StudyDesign.configure`).
     alpha : array_like
         Nominal significance level, in (0, 1).
     n_per_group : array_like
@@ -248,18 +247,16 @@ def power(
     effect : array_like
         Risk ratio, rate ratio, SIR or odds ratio, by design.
     baseline : array_like
-        The design's ``baseline_name``: risk over follow-up, rate per
-        person-year, reference rate per person-year, or exposure prevalence
-        among controls.
-    allocation : array_like, optional
-        The design's ``allocation_name``: unexposed subjects per exposed
-        subject, or controls per case (default 1; not for one-group designs).
-    years : array_like, optional
-        Follow-up per subject for the person-time designs (default 1).
+        The design's ``baseline_name``: risk over follow-up, rate per person-year, reference rate per person-year,
+        or exposure prevalence among controls.
+    allocation, years : array_like, optional
+        The design's ``allocation_name``: unexposed subjects per exposed subject, or controls per case (default 1;
+        not for one-group designs); follow-up per subject for the person-time designs (default 1).
     sides : {1, 2}
         One-sided test of harm (default) or two-sided.
     test : {"auto", "normal", "exact"}
-        ``auto`` runs the exact test wherever a cell expects fewer than 10.
+        ``auto`` runs the exact test wherever a cell expects fewer than 10; a normal test used there emits an
+        :class:`~decide.errors.ApproximationWarning`.  The exact power neglects tails of total mass below about 1e-12.
     continuity : bool
         Continuity-correct the normal test of two proportions.
 
@@ -267,30 +264,29 @@ def power(
     -------
     PowerResult
 
-    Notes
-    -----
-    The exact power neglects count tails of total mass below about 1e-12.
-    A normal test used where a cell expects fewer than 10 emits an
-    :class:`~decide.errors.ApproximationWarning`.
-
     References
     ----------
-    .. [1] Fleiss, J. L., Levin, B. and Paik, M. C. (2003). *Statistical
-       Methods for Rates and Proportions*, 3rd ed., Wiley, ch. 4.
-    .. [2] Breslow, N. E. and Day, N. E. (1987). *Statistical Methods in
-       Cancer Research, vol. II*. IARC Scientific Publications 82, ch. 7.
+    .. [1] Fleiss, J. L., Levin, B. and Paik, M. C. (2003). *Statistical Methods for Rates and Proportions*, 3rd
+       ed., Wiley, ch. 4.
+    .. [2] Breslow, N. E. and Day, N. E. (1987). *Statistical Methods in Cancer Research, vol. II*. IARC Scientific
+       Publications 82, ch. 7.
 
     Examples
     --------
-    A usage example, not a check (the tests check exact power against scipy
-    enumerations and a seeded simulation):
+    A usage example, not a check (the tests check exact power against scipy enumerations and a seeded simulation):
 
-    >>> from decide import power
     >>> r = power("cohort-risk", 0.05, 2000, 3.0, 8e-4)
     >>> r.test_used(), round(float(r.power), 3)
     ('exact', 0.191)
     """
     setting = check_setting(design, baseline, allocation, years, sides, test, continuity)
+    return evaluate(setting, *_checked_quantities(setting, alpha, n_per_group, effect))
+
+
+def _checked_quantities(
+    setting: Setting, alpha: ArrayLike, n_per_group: ArrayLike, effect: ArrayLike
+) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Alpha, size and effect checked for range and for broadcasting with the study's arrays."""
     a = _checks.open_unit("alpha", alpha)
     n = _checks.whole_at_least_one("n_per_group", n_per_group)
     _checks.broadcast(
@@ -302,5 +298,4 @@ def power(
         setting.allocation,
         setting.years,
     )
-    e = check_effect(setting, effect)
-    return evaluate(setting, a, n, e)
+    return a, n, check_effect(setting, effect)

@@ -205,6 +205,23 @@ class _Study:
     alpha: float
     exact: bool
 
+    @classmethod
+    def of(cls, setting: Setting, n: float, alpha: float, exact: bool) -> _Study:
+        """The study of ``setting`` at size ``n``, its settings cut to their first element."""
+
+        def one(x: FloatArray) -> FloatArray:
+            return np.asarray(np.ravel(x)[:1], dtype=np.float64)
+
+        return cls(
+            setting,
+            np.array([float(n)]),
+            one(setting.baseline),
+            one(setting.allocation),
+            one(setting.years),
+            float(alpha),
+            exact,
+        )
+
     @property
     def design(self) -> StudyDesign:
         return self.setting.design
@@ -247,45 +264,52 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
     >>> r.flag_at_least, r.cutoff_shown
     (5, '0.06825')
     """
-
-    def one(x: FloatArray) -> FloatArray:
-        return np.asarray(np.ravel(x)[:1], dtype=np.float64)
-
-    st = _Study(
-        setting,
-        np.array([float(n)]),
-        one(setting.baseline),
-        one(setting.allocation),
-        one(setting.years),
-        float(alpha),
-        exact,
-    )
+    st = _Study.of(setting, n, alpha, exact)
+    base = _rule_without_counts(st, n, alpha)
     d = setting.design
-    test = "exact" if exact else ("normal-cc" if setting.continuity else "normal")
-    count_name, total_name = _names(d)
-    base = DecisionRule(
-        d.name,
-        test,
-        setting.sides,
-        int(n),
-        float(alpha),
-        None,
-        _shown(alpha, None),
-        None,
-        count_name,
-        total_name,
-        None,
-        None,
-        None,
-    )
     smallest = float(d.smallest_expected_count(st.n, st.baseline, np.array([effect]), st.allocation, st.years)[0])
     if not exact and (smallest > EXACT_UP_TO or not d.exact_offered(st.allocation).all()):
         return _with_statement(base)
     model = d.count_model(st.n, st.baseline, np.array([[effect]]), st.allocation, st.years)
     grid = _exact.build_grid(model, setting.sides)
+    never, cutoff, false_alarm = _critical_region(st, grid, alpha)
+    rule = _replace(base, cutoff=cutoff, cutoff_shown=_shown(alpha, cutoff), false_alarm=false_alarm)
+    if never:
+        return _with_statement(rule)
+    return _with_statement(_with_counts(rule, st, model, grid, n))
+
+
+def _rule_without_counts(st: _Study, n: float, alpha: float) -> DecisionRule:
+    """The rule before its counts are laid out: the study, the test and the nominal alpha."""
+    s = st.setting
+    count_name, total_name = _names(s.design)
+    return DecisionRule(
+        design=s.design.name,
+        test="exact" if st.exact else ("normal-cc" if s.continuity else "normal"),
+        sides=s.sides,
+        n_per_group=int(n),
+        nominal_alpha=float(alpha),
+        cutoff=None,
+        cutoff_shown=_shown(alpha, None),
+        false_alarm=None,
+        count_name=count_name,
+        total_name=total_name,
+        expected_null=None,
+        flag_at_least=None,
+        flag_at_most=None,
+    )
+
+
+def _critical_region(st: _Study, grid: _exact.CountGrid, alpha: float) -> tuple[bool, tuple[float, float], float]:
+    """Whether the test never flags, the cut-off interval of its critical region, and its false-alarm probability.
+
+    The critical region is the set of count outcomes on the grid whose
+    p-value (exact, or normal from the counts) is at most ``alpha``; the
+    cut-off interval ``[low, high)`` holds every level giving the same set.
+    """
     p = (
         grid.p_value[0]
-        if exact
+        if st.exact
         else np.where(
             np.isfinite(grid.p_value[0]),
             st.normal_p(grid.exposed_counts[0][:, None], grid.other_counts[0][None, :]),
@@ -293,40 +317,26 @@ def decision_rule(setting: Setting, n: float, alpha: float, *, exact: bool, effe
         )
     )
     # an exact level below the floor is the test that never flags (p-values under 1e-20 read as 0)
-    never = alpha <= 0 or (exact and alpha < _exact.ALPHA_FLOOR)
+    never = alpha <= 0 or (st.exact and alpha < _exact.ALPHA_FLOOR)
     flag = np.zeros(p.shape, dtype=bool) if never else p <= _limit(alpha)
     false_alarm = float(min(1.0, np.sum(_exact.null_mass(grid)[0] * flag)))
     low = float(p[flag].max()) if flag.any() else 0.0
     rest = p[~flag & np.isfinite(p) & (p > 0)]
     high = float(rest.min()) if rest.size else math.inf
-    if never and exact:
+    if never and st.exact:
         high = _exact.ALPHA_FLOOR
-    rule = DecisionRule(
-        d.name,
-        test,
-        setting.sides,
-        int(n),
-        float(alpha),
-        (low, high),
-        _shown(alpha, (low, high)),
-        false_alarm,
-        count_name,
-        total_name,
-        None,
-        None,
-        None,
-    )
-    if never:
-        return _with_statement(rule)
+    return never, (low, high), false_alarm
+
+
+def _with_counts(rule: DecisionRule, st: _Study, model: CountModel, grid: _exact.CountGrid, n: float) -> DecisionRule:
+    """The rule with its flagging counts: one threshold (one group), or one row per total (two groups)."""
     if model.conditional == "poisson":
         expected = float(st.baseline[0] * n * st.years[0])
         at_least, at_most = _one_group(st, expected)
-        rule = _replace(rule, expected_null=expected, flag_at_least=at_least, flag_at_most=at_most)
-    else:
-        totals = _totals(grid)
-        rows = _exact_rows(st, model, totals) if exact else _normal_rows(st, totals)
-        rule = _replace(rule, thresholds=rows)
-    return _with_statement(rule)
+        return _replace(rule, expected_null=expected, flag_at_least=at_least, flag_at_most=at_most)
+    totals = _totals(grid)
+    rows = _exact_rows(st, model, totals) if st.exact else _normal_rows(st, totals)
+    return _replace(rule, thresholds=rows)
 
 
 def _replace(rule: DecisionRule, **changes: object) -> DecisionRule:

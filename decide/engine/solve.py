@@ -22,8 +22,8 @@ References
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, field
-from typing import Any
+from dataclasses import dataclass, field, replace
+from typing import Any, NamedTuple
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -396,53 +396,36 @@ def solve(
 
     Parameters
     ----------
-    design : str or StudyDesign
-        A design name (the keys of :data:`decide.designs.DESIGNS`) or a
-        configured design (:meth:`~decide.designs.StudyDesign.configure`).
-    baseline : float or array_like
-        Risk over follow-up, rate per person-year, reference rate per
-        person-year, or exposure prevalence among controls, by design.
-    alpha, power, n_per_group, effect : float, array_like or None
-        Exactly one is ``None``: the unknown.  A solved effect is the
-        smallest effect above 1 detectable with the given power.  Arrays
-        (here, in ``baseline``, ``allocation`` or ``years``) broadcast
-        together, and the unknown is solved for each element.
-    allocation, years, sides, test, continuity
+    design, baseline, allocation, years, sides, test, continuity
         As in :func:`decide.power`.
+    alpha, power, n_per_group, effect : float, array_like or None
+        Exactly one is ``None``: the unknown (a solved effect is the smallest above 1 detectable with the given
+        power).  Arrays, here or in ``baseline``, ``allocation``, ``years``, broadcast together; each is solved.
     max_n_per_group : int
         Cap on a solved size; beyond it the solve reports infeasibility.
 
     Returns
     -------
     Solution
-        Python scalars for scalar inputs; arrays of the broadcast shape for
-        array inputs (see :class:`Solution`).
+        Python scalars for scalar inputs; arrays of the broadcast shape for array inputs (see :class:`Solution`),
+        each element equal to the scalar solve of its inputs: the normal-test elements are answered at once from
+        the closed forms, the exact-test ones searched once per distinct design point (:mod:`~.solve_many`).
 
     Raises
     ------
     DecideError
         Impossible input (the message names the parameter).
     InfeasibleError
-        No answer within the caps (size or effect), for scalar inputs; an
-        array solve puts ``nan`` in that element instead.
-
-    Notes
-    -----
-    An array solve (:mod:`decide.engine.solve_many`) answers every element
-    that runs the normal test at once, from the closed forms; elements that
-    run the exact test, whose power saw-tooths in the size, are searched by
-    the scalar solver once per distinct design point.  Each element equals
-    the scalar solve of its inputs.
+        No answer within the caps (size or effect), for scalar inputs; an array solve puts ``nan`` there instead.
 
     References
     ----------
-    .. [1] Fleiss, J. L., Levin, B. and Paik, M. C. (2003). *Statistical
-       Methods for Rates and Proportions*, 3rd ed., Wiley, ch. 4.
+    .. [1] Fleiss, J. L., Levin, B. and Paik, M. C. (2003). *Statistical Methods for Rates and Proportions*, 3rd
+       ed., Wiley, ch. 4.
     .. [2] Schlesselman, J. J. (1974). *Am. J. Epidemiol.* 99, 381-384.
 
     Examples
     --------
-    >>> from decide import solve
     >>> s = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
     >>> s.n_per_group, s.n_total
     (188, 376)
@@ -450,6 +433,53 @@ def solve(
     >>> many.n_per_group.tolist()
     [569.0, 188.0]
     """
+    q = _checked_question(
+        design, baseline, alpha, power, n_per_group, effect, allocation, years, sides, test, continuity, max_n_per_group
+    )
+    return _answer(q)
+
+
+class _Question(NamedTuple):
+    """A checked solve: the study, the unknown, whether arrays were given, the four quantities and the size cap."""
+
+    setting: Setting
+    unknown: str
+    arrays: bool
+    alpha: Any
+    power: Any
+    n_per_group: Any
+    effect: Any
+    cap: int
+
+    def given(self) -> dict[str, Any]:
+        """The quantities given (all but the unknown), in the order of :data:`UNKNOWNS`."""
+        values = (self.alpha, self.power, self.n_per_group, self.effect)
+        return {k: v for k, v in zip(UNKNOWNS, values, strict=True) if v is not None}
+
+
+def _answer(q: _Question) -> Solution:
+    """Solve a checked question: elementwise for arrays (:mod:`~.solve_many`), else by the unknown's solver."""
+    if q.arrays:
+        fields = solve_many(solve, q.setting, q.unknown, q.given(), q.cap)
+        return Solution(design=q.setting.design.name, solved_for=q.unknown, sides=q.setting.sides, **fields)
+    return _SOLVERS[q.unknown](q.setting, q.alpha, q.power, q.n_per_group, q.effect, q.cap)
+
+
+def _checked_question(
+    design: str | StudyDesign,
+    baseline: ArrayLike,
+    alpha: ArrayLike | None,
+    power: ArrayLike | None,
+    n_per_group: ArrayLike | None,
+    effect: ArrayLike | None,
+    allocation: ArrayLike | None,
+    years: ArrayLike | None,
+    sides: int,
+    test: str,
+    continuity: bool,
+    max_n_per_group: int,
+) -> _Question:
+    """Check a solve's inputs (the unknown, their shapes, the study, then each quantity) in that order."""
     unknown = _only_unknown({"alpha": alpha, "power": power, "n_per_group": n_per_group, "effect": effect})
     named = {
         "alpha": alpha,
@@ -478,12 +508,7 @@ def solve(
     if effect is not None:
         check_effect(setting, effect)
         _check_detectable(unknown, setting.sides, np.asarray(effect, dtype=np.float64))
-    if arrays:
-        quantities = {k: v for k, v in zip(UNKNOWNS, (alpha, power, n_per_group, effect), strict=True) if v is not None}
-        fields = solve_many(solve, setting, unknown, quantities, cap)
-        return Solution(design=setting.design.name, solved_for=unknown, sides=setting.sides, **fields)
-    solver = {"power": _solve_power, "n_per_group": _solve_size, "alpha": _solve_alpha, "effect": _solve_effect}
-    return solver[unknown](setting, alpha, power, n_per_group, effect, cap)
+    return _Question(setting, unknown, arrays, alpha, power, n_per_group, effect, cap)
 
 
 def _check_detectable(unknown: str, sides: int, effect: FloatArray) -> None:
@@ -513,28 +538,14 @@ def _finish(
     extra: tuple[str, ...] = (),
 ) -> Solution:
     d = setting.design
-    forced = Setting(
-        d,
-        setting.baseline,
-        setting.allocation,
-        setting.years,
-        setting.sides,
-        "exact" if use_exact else "normal",
-        setting.continuity,
-    )
+    forced = replace(setting, test="exact" if use_exact else "normal")
     res = evaluate(forced, np.asarray(alpha), np.asarray(float(n)), np.asarray(effect))
     b, r, y = setting.baseline, setting.allocation, setting.years
     nn = np.asarray(float(n))
     cells = d.cell_counts(nn, b, np.asarray(effect), r, y)
     smallest = float(res.smallest_expected_count)
     no_exact = "" if d.exact_offered(r).all() else d.no_exact_reason
-    if use_exact:
-        test = "exact"
-        method = d.exact_method + d.describe_settings()
-    else:
-        test = "normal-cc" if setting.continuity else "normal"
-        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if setting.continuity else "")
-    sided = "one-sided (harm)" if setting.sides == 1 else "two-sided (equal tails)"
+    test, method = _test_and_method(setting, use_exact)
     return Solution(
         design=d.name,
         solved_for=solved_for,
@@ -542,7 +553,7 @@ def _finish(
         test_reason=TestChoice(
             requested=setting.test, exact=use_exact, smallest_count=smallest, no_exact=no_exact
         ).reason,
-        method=f"{sided} {method}",
+        method=method,
         sides=setting.sides,
         baseline=float(b),
         allocation=float(r),
@@ -562,6 +573,19 @@ def _finish(
         warnings=tuple(extra) + res.warnings,
         false_alarm=_computed(res.false_alarm()),
     )
+
+
+def _test_and_method(setting: Setting, use_exact: bool) -> tuple[str, str]:
+    """The test's name and the method that ran, sides first."""
+    d = setting.design
+    if use_exact:
+        test = "exact"
+        method = d.exact_method + d.describe_settings()
+    else:
+        test = "normal-cc" if setting.continuity else "normal"
+        method = d.normal_method + d.describe_settings() + (", continuity-corrected" if setting.continuity else "")
+    sided = "one-sided (harm)" if setting.sides == 1 else "two-sided (equal tails)"
+    return test, f"{sided} {method}"
 
 
 def _computed(x: FloatArray) -> float | None:
@@ -661,6 +685,15 @@ def _solve_effect(setting: Setting, alpha: Any, target: Any, n: Any, effect: Any
             f"effect: no {setting.design.effect_name} up to {top:g} reaches power {target:g} with {n:,} per group"
         )
     return _finish(setting, "effect", alpha, n, found, use_exact, target)
+
+
+#: The scalar solver of each unknown.
+_SOLVERS: dict[str, Callable[[Setting, Any, Any, Any, Any, int], Solution]] = {
+    "power": _solve_power,
+    "n_per_group": _solve_size,
+    "alpha": _solve_alpha,
+    "effect": _solve_effect,
+}
 
 
 def _exact_effect_curve(setting: Setting, alpha: float, n: int) -> Callable[[FloatArray], FloatArray]:
