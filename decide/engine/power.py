@@ -275,6 +275,7 @@ def power(
     --------
     A usage example, not a check (the tests check exact power against scipy enumerations and a seeded simulation):
 
+    >>> from decide import power
     >>> r = power("cohort-risk", 0.05, 2000, 3.0, 8e-4)
     >>> r.test_used(), round(float(r.power), 3)
     ('exact', 0.191)

@@ -426,6 +426,7 @@ def solve(
 
     Examples
     --------
+    >>> from decide import solve
     >>> s = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
     >>> s.n_per_group, s.n_total
     (188, 376)
