@@ -34,7 +34,7 @@ from hypothesis import strategies as st
 from scipy import special, stats
 
 from decide.decision.loss import DESIGN, MISSED, build_model, exact_batches
-from decide.decision.optimize import compare, optimize
+from decide.decision.optimize import decide_policy, optimize
 from decide.decision.prior import EffectPrior
 from decide.decision.problem import Consequences, Constraints, Problem, Study
 from decide.designs import get_design
@@ -259,48 +259,48 @@ def prior_beta_and_design_power(problem: Problem, alpha: float, n: int, test: st
     return float(np.sum(weights * (1 - r.power[:-1]))), float(r.power[-1]), float(r.attained_alpha[0])
 
 
+@pytest.mark.parametrize("name", list(POLICIES))  # one test per policy, so they spread over the workers
 @settings(max_examples=20)
 @given(problems(budget=True))
-def test_every_feasible_policy_keeps_its_rules_and_the_constraints(problem: Problem) -> None:
-    policies = list(POLICIES.values())
+def test_every_feasible_policy_keeps_its_rules_and_the_constraints(name: str, problem: Problem) -> None:
     cons = problem.constraints
     model = build_model(problem)
-    for dec in compare(problem, policies):
-        if not dec.feasible:
-            assert dec.reason
-            continue
-        pol = POLICIES[dec.policy]
-        n = dec.n_per_group
-        # a feasible decision reports every number
-        assert n is not None and dec.loss_parts is not None and dec.alpha is not None and dec.beta is not None
-        assert dec.attained_alpha is not None and dec.power_at_design_effect is not None
-        assert cons.min_n_per_group <= n
-        assert cons.max_n_per_group is None or n <= cons.max_n_per_group
+    dec = decide_policy(model, POLICIES[name])
+    if not dec.feasible:
+        assert dec.reason
+        return
+    pol = POLICIES[dec.policy]
+    n = dec.n_per_group
+    # a feasible decision reports every number
+    assert n is not None and dec.loss_parts is not None and dec.alpha is not None and dec.beta is not None
+    assert dec.attained_alpha is not None and dec.power_at_design_effect is not None
+    assert cons.min_n_per_group <= n
+    assert cons.max_n_per_group is None or n <= cons.max_n_per_group
+    if cons.budget is not None:
+        assert dec.loss_parts["study"] <= cons.budget * (1 + 1e-12)
+    assert dec.alpha <= cons.max_alpha * (1 + 1e-9)
+    assert dec.power_at_design_effect >= cons.min_power - 1e-9
+    assert 0 <= dec.attained_alpha <= dec.alpha * (1 + 1e-9)
+    if pol.alpha_rule == "fixed":
+        assert dec.alpha == pytest.approx(pol.alpha, rel=1e-12)
+    if pol.power is not None:
+        assert dec.power_at_design_effect >= pol.power - 1e-9
+    if pol.beta_at_most_alpha:
+        assert dec.beta <= dec.attained_alpha + 1e-9
+    if pol.alpha_rule == "equal-to-beta" and dec.test == "normal":
+        assert dec.attained_alpha == pytest.approx(dec.beta, abs=1e-6)
+    if pol.size_rule == "largest-allowed":
+        assert cons.max_n_per_group is not None
+        sizes = np.arange(cons.min_n_per_group, cons.max_n_per_group + 1, dtype=np.float64)
         if cons.budget is not None:
-            assert dec.loss_parts["study"] <= cons.budget * (1 + 1e-12)
-        assert dec.alpha <= cons.max_alpha * (1 + 1e-9)
-        assert dec.power_at_design_effect >= cons.min_power - 1e-9
-        assert 0 <= dec.attained_alpha <= dec.alpha * (1 + 1e-9)
-        if pol.alpha_rule == "fixed":
-            assert dec.alpha == pytest.approx(pol.alpha, rel=1e-12)
-        if pol.power is not None:
-            assert dec.power_at_design_effect >= pol.power - 1e-9
-        if pol.beta_at_most_alpha:
-            assert dec.beta <= dec.attained_alpha + 1e-9
-        if pol.alpha_rule == "equal-to-beta" and dec.test == "normal":
-            assert dec.attained_alpha == pytest.approx(dec.beta, abs=1e-6)
-        if pol.size_rule == "largest-allowed":
-            assert cons.max_n_per_group is not None
-            sizes = np.arange(cons.min_n_per_group, cons.max_n_per_group + 1, dtype=np.float64)
-            if cons.budget is not None:
-                sizes = sizes[model.study_cost(sizes) <= cons.budget * (1 + 1e-12)]
-            assert n == sizes.max()
-        if pol.alpha_rule == "for-power":
-            # the smallest alpha that meets the rule: a test just below it fails the power
-            # target or (where required) lets beta exceed alpha
-            test = "exact" if dec.test == "exact" else "normal"
-            lower = dec.alpha * (1 - (1e-9 if test == "exact" else 1e-6))
-            beta, design_power, attained = prior_beta_and_design_power(problem, lower, n, test)
-            assert pol.power is not None
-            fails = design_power < pol.power - 1e-12 or (pol.beta_at_most_alpha and beta > attained + 1e-12)
-            assert fails
+            sizes = sizes[model.study_cost(sizes) <= cons.budget * (1 + 1e-12)]
+        assert n == sizes.max()
+    if pol.alpha_rule == "for-power":
+        # the smallest alpha that meets the rule: a test just below it fails the power
+        # target or (where required) lets beta exceed alpha
+        test = "exact" if dec.test == "exact" else "normal"
+        lower = dec.alpha * (1 - (1e-9 if test == "exact" else 1e-6))
+        beta, design_power, attained = prior_beta_and_design_power(problem, lower, n, test)
+        assert pol.power is not None
+        fails = design_power < pol.power - 1e-12 or (pol.beta_at_most_alpha and beta > attained + 1e-12)
+        assert fails
