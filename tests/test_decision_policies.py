@@ -312,11 +312,11 @@ def test_smallest_for_power_with_exact_test_stays_near_the_answer(monkeypatch: p
     answer = solve_size(prob, 0.8)  # 133 cases
     real = CHOICE_MODULE.exact_batches
 
-    def guarded(model, n: int):  # type: ignore[no-untyped-def]
+    def guarded(model, n: int, level: float | None = None):  # type: ignore[no-untyped-def]
         # A search near the answer is fine; exact power at 10,000 times it is what exhausts memory.
         top = float(np.max(n))
         assert top <= 10_000 * answer, f"exact power requested at {top:.3g} per group"
-        return real(model, n)
+        return real(model, n, level)
 
     monkeypatch.setattr(CHOICE_MODULE, "exact_batches", guarded)
     dec = decide_policy(prob, POLICIES["conventional-science"])

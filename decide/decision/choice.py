@@ -67,7 +67,7 @@ def choose_tests(model: LossModel, policy: Policy, n: FloatArray) -> Choice:
             fields[k][~exact] = getattr(c, k)
     if exact.any():
         where = np.flatnonzero(exact)
-        for idx, opts in exact_batches(model, n[where]):
+        for idx, opts in exact_batches(model, n[where], level=rule.exact_level(policy)):
             col, f = rule.choose_exact(model, policy, opts)
             rows = np.arange(col.size)
             for name in _FIELDS:

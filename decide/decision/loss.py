@@ -296,8 +296,15 @@ class ExactOptions:
     valid: NDArray[np.bool_]
 
 
-def exact_batches(model: LossModel, n: FloatArray) -> Iterator[tuple[NDArray[np.int64], ExactOptions]]:
-    """Exact options for sizes ``n``, in batches that keep memory bounded."""
+def exact_batches(
+    model: LossModel, n: FloatArray, level: float | None = None
+) -> Iterator[tuple[NDArray[np.int64], ExactOptions]]:
+    """Exact options for sizes ``n``, in batches that keep memory bounded.
+
+    With a ``level``, each size gets two options only: the test that never
+    flags and the largest region of that level (all a rule with a fixed
+    alpha can pick), summed directly instead of ordering every count pair.
+    """
     s = model.setting
     d = s.design
     n = np.asarray(n, dtype=np.float64)
@@ -305,8 +312,34 @@ def exact_batches(model: LossModel, n: FloatArray) -> Iterator[tuple[NDArray[np.
     effects = np.broadcast_to(model.effects, (n.size, model.effects.size))
     full = d.count_model(n, s.baseline * ones, effects, s.allocation * ones, s.years * ones)
     for idx in _exact.batches(full):
-        path = _exact.rejection_path(_exact.build_grid(_exact.take_rows(full, idx), s.sides), model.weights)
-        yield idx, _options(path)
+        grid = _exact.build_grid(_exact.take_rows(full, idx), s.sides)
+        if level is None:
+            yield idx, _options(_exact.rejection_path(grid, model.weights))
+        else:
+            yield idx, _level_options(grid, model.weights, level)
+
+
+def _level_options(grid: _exact.CountGrid, weights: FloatArray, level: float) -> ExactOptions:
+    """The never-flagging test and the level-``level`` test, as columns 0 and 1."""
+    reject = grid.p_value <= level * (1 + _exact.REL_TOL)
+    caught, kept = _exact.split_mass(grid, reject)
+    flagged, missed = caught @ weights.T, kept @ weights.T  # (B, K): each weighting of the effects
+    attained = np.minimum(np.einsum("bij,bij->b", _exact.null_mass(grid), reject), 1.0)
+    nominal = np.max(np.where(reject, grid.p_value, 0.0), axis=(1, 2))
+    never = np.zeros_like(attained)
+
+    def columns(first: FloatArray, second: FloatArray) -> FloatArray:
+        return np.stack([first, second], axis=1)
+
+    chars = Characteristics(
+        nominal=columns(never, nominal),
+        attained=columns(never, attained),
+        power=columns(never, np.minimum(flagged[:, AVERAGE], 1.0)),
+        design_power=columns(never, np.minimum(flagged[:, DESIGN], 1.0)),
+        missed=columns(flagged[:, MISSED] + missed[:, MISSED], missed[:, MISSED]),
+    )
+    attainable = reject.any(axis=(1, 2)) & (nominal >= _exact.ALPHA_FLOOR) & (nominal < 1)
+    return ExactOptions(chars=chars, valid=columns(np.ones_like(attainable), attainable).astype(bool))
 
 
 def _options(path: _exact.RejectionPath) -> ExactOptions:

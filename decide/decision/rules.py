@@ -153,6 +153,14 @@ class AlphaRule(ABC):
         """The nominal alpha to report as stated, where the rule fixes it (else ``None``)."""
         return None
 
+    def exact_level(self, policy: Policy) -> float | None:
+        """The one level whose exact test the rule can pick, where it fixes one (else ``None``).
+
+        With a level, the exact options hold only the never-flagging test and
+        that level's test (:func:`~decide.decision.loss.exact_batches`).
+        """
+        return None
+
 
 def _everywhere(rows: int) -> NDArray[np.bool_]:
     return np.ones(rows, dtype=bool)
@@ -180,6 +188,9 @@ class Fixed(AlphaRule):
     def stated_alpha(self, policy: Policy) -> float:
         assert policy.alpha is not None
         return policy.alpha
+
+    def exact_level(self, policy: Policy) -> float:
+        return self.stated_alpha(policy)
 
 
 class LossOptimal(AlphaRule):
