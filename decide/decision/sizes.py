@@ -175,6 +175,7 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) 
     k = int(np.argmax(ok))
     if k == 0:
         return float(grid[0]), OK
+    failed = [grid[:k]]  # sizes seen to fail, not asked again below
     a, b = float(grid[k - 1]), float(grid[k])
     while b - a > 1:
         cand = np.unique(np.round(np.linspace(a, b, 42)))[1:-1]
@@ -182,14 +183,16 @@ def _first_meeting(model: LossModel, policy: Policy, lo: float, ceiling: float) 
         if cand.size == 0:
             break
         hit = choose_tests(model, policy, cand).meets_rules
-        if hit.any():
-            j = int(np.argmax(hit))
+        j = int(np.argmax(hit)) if hit.any() else cand.size
+        failed.append(cand[:j])
+        if j < cand.size:
             b = float(cand[j])
             a = float(cand[j - 1]) if j > 0 else a
         else:
             a = float(cand[-1])
     span = EVERY_SIZE["one-group" if model.setting.design.groups == 1 else "two-group"]
     early_sizes = np.arange(lo, b) if b - lo <= span else np.arange(max(lo, b - 64), b)
+    early_sizes = early_sizes[~np.isin(early_sizes, np.concatenate(failed))]
     if early_sizes.size:
         early = choose_tests(model, policy, early_sizes).meets_rules
         if early.any():
