@@ -114,6 +114,10 @@ CASES: dict[str, list[str]] = {
 for _stem, _path in SCENARIOS.items():
     CASES[f"optimize-{_stem}"] = ["optimize", str(_path.relative_to(REPO))]
     CASES[f"compare-{_stem}"] = ["compare", str(_path.relative_to(REPO))]
+    _data = REPO / "scenarios" / "observed" / _path.name
+    if _data.exists():  # the after-study reading of the invented counts bundled with it
+        CASES[f"interpret-{_stem}"] = ["interpret", str(_path.relative_to(REPO))]
+        CASES[f"interpret-{_stem}"] += ["--data", str(_data.relative_to(REPO))]
 
 #: Left and right border characters of rich's boxes (tables and panels).
 LEFT_EDGES = "┌┏├┡┣│┃└┗╭╰"
@@ -457,3 +461,19 @@ def test_policies_show_every_name_in_full(screens: Screens, width: int) -> None:
     first_cells = {re.split(r"[│┃]", line)[1].strip() for line in text.splitlines() if line.startswith(("│", "┃"))}
     for name in BUILTIN_ORDER:
         assert name in first_cells, f"{name} not shown whole in the name column at {width} columns"
+
+
+@pytest.mark.parametrize("stem", [s for s in SCENARIOS if f"interpret-{s}" in CASES])
+def test_the_reading_shows_the_plans_alpha(screens: Screens, stem: str) -> None:
+    """The loss-optimal verdict and the power sentence print the alpha the plan (optimize) prints."""
+    for width in WIDTHS:
+        plan = screens[f"optimize-{stem}", width]
+        planned = next(
+            cell.strip() for line in plan.splitlines() if "alpha, nominal" in line for cell in [line.split("│")[-2]]
+        )
+        reading = screens[f"interpret-{stem}", width]
+        row = next(line for line in reading.splitlines() if line.startswith("│ loss-optimal "))
+        assert row.split("│")[3].strip() == planned
+        words = " ".join(reading.replace("│", " ").split())
+        if "power only against" in words:  # the sentence of a result that is not significant
+            assert f"(alpha {planned})" in words

@@ -114,8 +114,11 @@ class PolicyVerdict(PlainData):
     ``verdict`` is ``None`` where the policy names no test (no size meets it
     and none beyond the limits would).  ``alpha`` is the policy's nominal
     cut-off and ``attained_alpha`` the false-alarm probability of its test
-    at the planned size; ``available`` is False where the policy's study
-    could not be met within the constraints.
+    at the planned size; ``alpha_shown`` is the cut-off as the policy's
+    decision rule shows it (rounded into the interval of alphas that flag
+    the same counts, :class:`~decide.engine.rule.DecisionRule`), so that the
+    verdicts and the plan print the same number.  ``available`` is False
+    where the policy's study could not be met within the constraints.
     """
 
     policy: str
@@ -125,6 +128,7 @@ class PolicyVerdict(PlainData):
     alpha: float | None
     attained_alpha: float | None
     verdict: Verdict | None
+    alpha_shown: str | None = None
 
 
 @dataclass(frozen=True)
@@ -147,7 +151,9 @@ class Interpretation(PlainData):
     the action of the smaller (``clear`` on a tie).  ``detectable`` is the
     ratio the study as done had ``detect_power`` power to detect at
     ``detect_alpha`` (the loss-optimal policy's alpha; 0.05 where it has
-    none), ``None`` if no ratio within the design's range.
+    none), ``None`` if no ratio within the design's range;
+    ``detect_alpha_shown`` is that alpha as the policy's decision rule shows
+    it (as in :class:`PolicyVerdict`).
     """
 
     design: str
@@ -175,6 +181,7 @@ class Interpretation(PlainData):
     prior_harm: float
     sides: int
     warnings: tuple[str, ...] = field(default=())
+    detect_alpha_shown: str | None = None
 
 
 # --------------------------------------------------------------------------
@@ -417,6 +424,7 @@ def _policy_verdicts(decisions: Sequence[Decision], ev: Evidence) -> tuple[Polic
             alpha=d.alpha,
             attained_alpha=d.attained_alpha,
             verdict=policy_verdict(d, ev),
+            alpha_shown=None if d.rule is None else d.rule.cutoff_shown,
         )
         for d in decisions
     )
@@ -533,6 +541,7 @@ def _reading(
         excludes_above=high,
         detectable=_detectable_ratio(problem, c, alpha),
         detect_alpha=alpha,
+        detect_alpha_shown=best.rule.cutoff_shown if best.alpha is not None and best.rule is not None else None,
         detect_power=DETECT_POWER,
         prior_harm=problem.p_harm,
         sides=problem.study.sides,

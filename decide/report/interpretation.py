@@ -56,7 +56,7 @@ def power_note(r: Interpretation) -> str:
     else:
         could = (
             f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
-            f"{number(r.detectable)} or more (alpha {probability(r.detect_alpha)})"
+            f"{number(r.detectable)} or more (alpha {r.detect_alpha_shown or probability(r.detect_alpha)})"
         )
     if r.p_value > r.detect_alpha:
         return f"A result that is not significant is not evidence of safety: {could}."
@@ -130,15 +130,15 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
     t.add_row("loss-minimising action", Text(r.recommendation, style="bold"))
     t.add_row(f"ratio detectable with {r.detect_power:.0%} power", number(r.detectable))
     v = Table(title="Verdict of each policy's test on these data")
-    for col in ("policy", "test", "alpha (nominal)", "attained alpha (planned size)", "verdict"):
+    v.add_column("policy", no_wrap=True)  # a name is never cut: it is what the reader looks up
+    for col in ("test", "alpha (nominal)", "attained alpha (planned size)", "verdict"):
         v.add_column(col)
     for pv in r.verdicts:
         verdict: str = pv.verdict or "no test"
         if not pv.available and pv.verdict is not None:
             verdict += " (policy unmet)"
-        v.add_row(
-            Text(literal(pv.policy)), pv.test or "-", probability(pv.alpha), probability(pv.attained_alpha), verdict
-        )
+        alpha = pv.alpha_shown or probability(pv.alpha)
+        v.add_row(Text(literal(pv.policy)), pv.test or "-", alpha, probability(pv.attained_alpha), verdict)
     notes = [Text(s) for s in (estimate_sentence(r), rules_out(r), power_note(r), bayes_sentence(r, unit))]
     notes.append(
         Text(
@@ -173,7 +173,7 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
     ]
     for pv in r.verdicts:
         lines.append(
-            f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {probability(pv.alpha)} | "
+            f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {pv.alpha_shown or probability(pv.alpha)} | "
             f"{probability(pv.attained_alpha)} | {pv.verdict or 'no test'} |"
         )
     lines += [

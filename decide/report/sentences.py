@@ -14,6 +14,7 @@ from typing import Any
 from ..decision.optimize import Comparison, Decision
 from ..designs import get_design
 from . import numbers as nb
+from . import rule_words
 
 #: The no-study actions in words ("to ... now").
 _VERB = {"flag-now": "flag", "clear-now": "clear"}
@@ -40,15 +41,10 @@ def recommendation(d: Decision, currency: str = "") -> str:
     sided = "one-sided" if d.sides == 1 else "two-sided"
     return (
         f"Study {d.n_per_group:,} {size_name} ({d.n_total:,} subjects in all); flag the exposure "
-        f"if the {sided} {d.test} test is significant at alpha = {_shown_alpha(d)}. "
+        f"if the {sided} {d.test} test is significant at alpha = {rule_words.nominal_text(d)}. "
         f"Expected net benefit over deciding now (to {_VERB[d.no_study_action]}): "
         f"{nb.money(d.net_benefit, currency)}."
     )
-
-
-def _shown_alpha(d: Decision) -> str:
-    """The nominal alpha rounded into its rule's cut-off interval (never below the rule's cut-off)."""
-    return d.rule.cutoff_shown if d.rule is not None else f"{d.alpha:.4g}"
 
 
 def best_action(c: Comparison, currency: str = "") -> str:
