@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 from typing import Any
 
@@ -130,7 +131,7 @@ REFERENCE = str(REPO / "scenarios" / "water-supply-reference.toml")
             SOLVENT,
             "cases_exposed = -1\nn_exposed = 10\ncases_unexposed = 0\nn_unexposed = 10",
             "observed.cases_exposed",
-            "must be >= 0",
+            "must not be negative (got -1)",
         ),
         (
             SOLVENT,
@@ -156,7 +157,7 @@ REFERENCE = str(REPO / "scenarios" / "water-supply-reference.toml")
             RATE,
             "cases_exposed = 1\nperson_years_exposed = 0.0\ncases_unexposed = 0\nperson_years_unexposed = 9.0",
             "observed.person_years_exposed",
-            "must be > 0",
+            "must be above 0 (got 0)",
         ),
         (REFERENCE, "cases = 2\nexpected = 2.0\nperson_years = 100.0", "observed.expected", "one of the two"),
         (REFERENCE, "cases = 2\ncolour = 3", "observed.colour", "is not a known key"),
@@ -279,3 +280,28 @@ def test_detectable_ratio_of_the_study_as_done_against_scipy() -> None:
     c = next(c for c in range(100) if stats.poisson.sf(c - 1, e) <= r.detect_alpha * (1 + 1e-10))
     sir = optimize.brentq(lambda t: stats.poisson.sf(c - 1, t * e) - 0.8, 1.0, 100.0, xtol=1e-12)
     assert r.detectable == pytest.approx(sir, rel=1e-6)
+
+
+@pytest.mark.parametrize(
+    ("scenario", "counts", "reason"),
+    [
+        (
+            SOLVENT,
+            {"cases_exposed": -1, "n_exposed": 10, "cases_unexposed": 0, "n_unexposed": 10},
+            "observed.cases_exposed must not be negative, but got -1",
+        ),
+        (
+            RATE,
+            {"cases_exposed": 1, "person_years_exposed": 0.0, "cases_unexposed": 0, "person_years_unexposed": 9.0},
+            "observed.person_years_exposed must be above 0, but got 0",
+        ),
+    ],
+)
+def test_the_api_refuses_bad_counts_with_the_files_reason(scenario: str, counts: dict[str, float], reason: str) -> None:
+    """The core owns the ranges of the counts: the API says what the data file's error says."""
+    from decide.decision.interpret import read_counts
+    from decide.errors import DecideError
+    from decide.scenario.files import load_scenario
+
+    with pytest.raises(DecideError, match=re.escape(reason)):
+        read_counts(load_scenario(scenario).problem, counts)

@@ -11,9 +11,10 @@ scenario's design::
     cases_unexposed = 1
     n_unexposed = 2150
 
-The model checks the shape, the types and the signs; the decision core
-(:func:`decide.decision.observed.reader_of`) checks that the keys fit the
-design and the counts fit their groups.  Every problem is one line,
+The model checks the shape and the types; the decision core
+(:func:`decide.decision.observed.reader_of`) owns every other rule: that the
+keys fit the design, that counts are whole and not negative, sizes above 0,
+and counts within their groups.  Every problem is one line,
 ``<file>: <key.path>: <reason> (got <value>)``.
 """
 
@@ -31,8 +32,10 @@ from decide.errors import DecideError
 from ._messages import ScenarioError, from_core_error
 from .files import read_toml, toml_json_schema, validate_model
 
-Count = Annotated[int, Field(ge=0, description="A count of subjects or cases (a whole number, 0 or more).")]
-Size = Annotated[float, Field(gt=0, description="A number of subjects or person-years, above 0.")]
+# Ranges are the core's to check (one owner for every rule); the descriptions say them.
+Count = Annotated[int, Field(description="A count of subjects or cases (a whole number, 0 or more).")]
+Size = Annotated[float, Field(description="A number of subjects or person-years, above 0.")]
+Group = Annotated[int, Field(description="A number of subjects (a whole number, above 0).")]
 
 
 def _config(title: str) -> ConfigDict:
@@ -45,9 +48,9 @@ class ObservedModel(BaseModel):
     model_config = _config("[observed]")
 
     cases_exposed: Count | None = Field(None, description="Cases among the exposed (cohort-risk, cohort-rate).")
-    n_exposed: Annotated[int, Field(gt=0)] | None = Field(None, description="Exposed subjects (cohort-risk).")
+    n_exposed: Group | None = Field(None, description="Exposed subjects (cohort-risk).")
     cases_unexposed: Count | None = Field(None, description="Cases among the unexposed (cohort-risk, cohort-rate).")
-    n_unexposed: Annotated[int, Field(gt=0)] | None = Field(None, description="Unexposed subjects (cohort-risk).")
+    n_unexposed: Group | None = Field(None, description="Unexposed subjects (cohort-risk).")
     person_years_exposed: Size | None = Field(None, description="Person-years of the exposed (cohort-rate).")
     person_years_unexposed: Size | None = Field(None, description="Person-years of the unexposed (cohort-rate).")
     cases: Count | None = Field(None, description="Cases observed (reference-rate); cases enrolled (case-control).")
@@ -58,7 +61,7 @@ class ObservedModel(BaseModel):
         None, description="Person-years of the exposed cohort, at the scenario's reference rate (reference-rate)."
     )
     exposed_cases: Count | None = Field(None, description="Exposed among the cases (case-control).")
-    controls: Annotated[int, Field(gt=0)] | None = Field(None, description="Controls enrolled (case-control).")
+    controls: Group | None = Field(None, description="Controls enrolled (case-control).")
     exposed_controls: Count | None = Field(None, description="Exposed among the controls (case-control).")
 
     def given(self) -> dict[str, float]:
