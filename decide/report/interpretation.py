@@ -101,7 +101,7 @@ def alpha_text(pv: PolicyVerdict) -> str:
 
 def verdict_text(pv: PolicyVerdict) -> str:
     """A policy's verdict in words: flag, clear or no test, and 'policy unmet' where its study was not allowed."""
-    verdict = pv.verdict or "no test"
+    verdict: str = pv.verdict or "no test"
     if not pv.available and pv.verdict is not None:
         verdict += " (policy unmet)"
     return verdict
