@@ -340,3 +340,22 @@ def test_a_design_the_simulation_cannot_draw_still_gets_its_report() -> None:
 
     text = "".join(parse(render_html(replace(r, quick=False))).find(".//section[@id='simulation']").itertext())
     assert "cannot draw this study design" in text
+
+
+@pytest.mark.parametrize("stem", ["trade-case-control", "quillmere-matched"])
+def test_markdown_keeps_the_spaces_around_numbers(stem: str, tmp_path: Path) -> None:
+    """Sentences and cells built from pieces read as the screen does: "cost 0.934 times", "2.27" (not
+    "cost0.934times", nor "2.27 to 2.27" for a range whose ends round alike)."""
+    from decide.report.document import gather
+    from decide.report.html import render_markdown
+    from decide.report.numbers import ratio_range
+
+    results = gather(load_scenario(REPO / "scenarios" / f"{stem}.toml"), list(load_policies(()).values()), quick=True)
+    text, _ = render_markdown(results, tmp_path / "board.md")
+    prose = [re.sub(r"`[0-9a-f]{64}`", "", line) for line in text.splitlines() if "](" not in line]  # less digests
+    glued = [m.group(0) for line in prose for m in re.finditer(r"[A-Za-z]{2,}\d[\d.,]*|\d[\d.,]*[a-z]{2,}", line)]
+    assert not glued, glued
+    implied = [ratio_range(d.implied_cost_ratio, d.implied_cost_ratio_range) for d in results.comparison if d.feasible]
+    cells = [[c.strip() for c in line.strip().strip("|").split("|")] for line in prose if line.startswith("| ")]
+    rows = [c for c in cells if len(c) == 12 and c[1] == "run the study"]  # the policies side by side
+    assert [row[-1] for row in rows] == implied

@@ -11,6 +11,7 @@ pieces, text and numbers; they are composed in :mod:`.justify`.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -211,15 +212,21 @@ def rule_rows(rule: Any) -> dict[str, Any] | None:
 
 
 def _implied(i: int, d: Any) -> Any:
+    """The implied cost ratio in pieces that read as :func:`~.numbers.ratio_range` does on screen."""
     key = f"comparison.decisions[{i}]"
-    if d.implied_cost_ratio_range is not None:
-        lo, hi = d.implied_cost_ratio_range
-        return [
-            num(f"{key}.implied_cost_ratio_range[0]", lo, "number"),
-            " to ",
-            num(f"{key}.implied_cost_ratio_range[1]", hi, "number"),
-        ]
-    return [num(f"{key}.implied_cost_ratio", d.implied_cost_ratio, "number")]
+    bounds = d.implied_cost_ratio_range
+    if not nb.is_range(bounds):
+        return [num(f"{key}.implied_cost_ratio", d.implied_cost_ratio, "number")]
+    lo, hi = bounds
+    low, high = (
+        num(f"{key}.implied_cost_ratio_range[0]", lo, "number"),
+        num(f"{key}.implied_cost_ratio_range[1]", hi, "number"),
+    )
+    if math.isinf(hi):
+        return [low, " or more"]
+    if lo <= 0:
+        return [high, " or less"]
+    return [low, " to ", high]
 
 
 def policy_rows(r: ReportResults) -> list[dict[str, Any]]:
