@@ -305,3 +305,16 @@ def test_the_api_refuses_bad_counts_with_the_files_reason(scenario: str, counts:
 
     with pytest.raises(DecideError, match=re.escape(reason)):
         read_counts(load_scenario(scenario).problem, counts)
+
+
+def test_markdown_escapes_a_currency_label_in_every_sentence(tmp_path: Path) -> None:
+    """The currency is the user's text: in Markdown it is escaped in the tables and in the sentences alike."""
+    data = REPO / "scenarios" / "observed" / "solvent-cohort.toml"
+    text = scenario_of(data).read_text(encoding="utf-8")
+    assert 'currency = "EUR"' in text
+    scen = tmp_path / "scenario.toml"
+    scen.write_text(text.replace('currency = "EUR"', 'currency = "*EUR*"'), encoding="utf-8")
+    res = run("interpret", str(scen), "--data", str(data), "--policy", "loss-optimal", "--markdown")
+    assert res.exit_code == 0, res.output
+    assert "*EUR*" not in res.stdout.replace("\\*EUR\\*", "")
+    assert res.stdout.count("\\*EUR\\*") >= 3  # two table rows and the sentence on the losses

@@ -200,7 +200,7 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
             f"{probability(pv.attained_alpha)} | {verdict_text(pv)} |"
         )
     lines += [
-        *(part for sentence in reading_sentences(r, unit).values() for part in ("", sentence)),
+        *(part for sentence in reading_sentences(r, unit).values() for part in ("", markdown_literal(sentence))),
         "",
         f"Method: {r.method}.",
         "",
