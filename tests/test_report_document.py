@@ -325,13 +325,13 @@ def test_the_matched_design_gets_its_simulation(monkeypatch: pytest.MonkeyPatch)
     """The matched design: its design settings are shown as inputs and its simulation is drawn and checked."""
     from dataclasses import replace
 
-    from decide.decision.simulate import SIMULATED, simulate
+    from decide.decision.simulate import SIMULATED, design_name, simulate
     from decide.report.document import SIMULATED_STUDIES, gather
     from decide.report.html import render_html
 
     matched = REPO / "scenarios" / "quillmere-matched.toml"
     loaded = load_scenario(matched)
-    assert loaded.problem.study.design.name in SIMULATED
+    assert design_name(loaded.problem) == "matched-case-control" and "matched-case-control" in SIMULATED
     r = gather(loaded, list(load_policies(()).values()), quick=True)
     root = parse(render_html(r))
     assert _check_numbers(render_html(r), r) > 20
