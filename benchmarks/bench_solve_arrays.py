@@ -36,7 +36,7 @@ def _seconds(run: Callable[[], Any]) -> float:
 
 def _loop(inputs: dict[str, np.ndarray]) -> None:
     for i in range(inputs["baseline"].size):
-        solve("cohort-risk", **{k: float(v[i]) for k, v in inputs.items()})  # type: ignore[arg-type]
+        solve("cohort-risk", **{k: float(v[i]) for k, v in inputs.items()})  # type: ignore[call-overload]
 
 
 def main() -> None:
@@ -69,7 +69,7 @@ def main() -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ApproximationWarning)
         for name, inputs in workloads:
-            array = _seconds(partial(solve, "cohort-risk", **inputs))  # type: ignore[arg-type]
+            array = _seconds(partial(solve, "cohort-risk", **inputs))
             loop = _seconds(partial(_loop, inputs))
             print(f"{name:<40} {array:>10.3f} {loop:>10.3f} {loop / array:>8.1f}")
 

@@ -24,7 +24,7 @@ from .decision.prior import EffectPrior
 from .decision.problem import Consequences, Constraints, Problem, Study
 from .designs import DESIGNS, StudyDesign, get_design
 from .engine.power import PowerResult, power
-from .engine.solve import Solution, solve
+from .engine.solve import Solution, SolutionArray, solve
 from .errors import ApproximationWarning, DecideError, InfeasibleError
 
 try:
@@ -50,6 +50,7 @@ __all__ = [
     "PowerResult",
     "Problem",
     "Solution",
+    "SolutionArray",
     "StudyDesign",
     "Study",
     "audit",

@@ -935,7 +935,7 @@ API_CASES: list[tuple[str, Callable[[], Any], str]] = [
     ),
     (
         "solve: sides 1.0",
-        lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, power=0.8, effect=3.0, sides=1.0),  # type: ignore[arg-type]
+        lambda: solve("cohort-risk", baseline=0.01, alpha=0.05, power=0.8, effect=3.0, sides=1.0),  # type: ignore[call-overload]
         r"^sides must be 1 or 2",
     ),
     (

@@ -19,7 +19,9 @@ GOOD = {"baseline": 0.01, "effect": 3.0, "alpha": 0.05, "power": 0.8}
 
 def _solve(design: str = "cohort-risk", **changes: Any) -> Solution:
     kwargs = {**GOOD, **changes}
-    return solve(design, **{k: v for k, v in kwargs.items() if v is not None})
+    sol = solve(design, **{k: v for k, v in kwargs.items() if v is not None})
+    assert isinstance(sol, Solution)  # scalar inputs
+    return sol
 
 
 # --------------------------------------------------------------------------

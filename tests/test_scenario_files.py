@@ -572,3 +572,19 @@ def test_write_text_atomic_reports_an_unwritable_path(tmp_path: Path) -> None:
 def test_written_template_round_trips(tmp_path: Path) -> None:
     path = write_text_atomic(tmp_path / "mine.toml", scenario_template())
     assert load_scenario(path).problem == parse_scenario(scenario_template()).problem
+
+
+def test_a_design_setting_may_carry_a_source_in_either_form() -> None:
+    """``[sources.study.design_settings]`` names each setting, as the report's input rows do."""
+
+    matched = (REPO / "scenarios" / "quillmere-matched.toml").read_text(encoding="utf-8")
+    dotted = matched + '\n[sources]\n"study.design_settings.correlation" = "pilot survey (invented)"\n'
+    nested = matched + '\n[sources.study.design_settings]\ncorrelation = "pilot survey (invented)"\n'
+    for text in (dotted, nested):
+        loaded = parse_scenario(text, "s.toml")
+        assert loaded.model.sources == {"study.design_settings.correlation": "pilot survey (invented)"}
+    with pytest.raises(ScenarioError, match=r"sources\.study\.design_settings\.corelation: names no input"):
+        parse_scenario(matched + '\n[sources.study.design_settings]\ncorelation = "x"\n', "s.toml")
+    solvent = (REPO / "scenarios" / "solvent-cohort.toml").read_text(encoding="utf-8")
+    with pytest.raises(ScenarioError, match=r"sources\.study\.design_settings\.correlation: names no input"):
+        parse_scenario(solvent + '\n[sources.study.design_settings]\ncorrelation = "x"\n', "s.toml")

@@ -133,7 +133,7 @@ def test_array_solve_equals_a_loop_of_scalar_solves(design: str, unknown: str, i
         for key in TEXT:
             assert getattr(many, key)[index] == getattr(one, key), key
         for key, value in one.expected_cases.items():
-            _same(many.expected_cases[key][index], value)  # type: ignore[index]
+            _same(many.expected_cases[key][index], value)
         assert set(one.warnings) <= set(many.warnings)
         seen_exact |= one.test == "exact"
         seen_normal |= one.test != "exact"
@@ -195,3 +195,14 @@ def test_bad_array_input_names_the_element() -> None:
         solve("cohort-risk", baseline=8e-4, effect=np.array([2.0, 0.5]), alpha=0.05, power=0.8)
     with pytest.raises(DecideError, match=r"power must be above alpha"):
         solve("cohort-risk", baseline=8e-4, effect=2.0, alpha=np.array([0.05, 0.9]), power=0.8)
+
+
+def test_arrays_give_a_solution_array_and_scalars_a_solution() -> None:
+    """The result's type says which it is: scalar fields (Solution) or arrays (SolutionArray)."""
+    from decide import Solution, SolutionArray
+
+    one = solve("case-control", baseline=0.3, effect=2.0, alpha=0.05, power=0.9, sides=2, test="normal")
+    many = solve("case-control", baseline=0.3, effect=[1.5, 2.0], alpha=0.05, power=0.9, sides=2, test="normal")
+    assert isinstance(one, Solution) and isinstance(one.n_per_group, int)
+    assert isinstance(many, SolutionArray) and many.n_per_group.shape == (2,)
+    assert many.n_per_group[1] == one.n_per_group

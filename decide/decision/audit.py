@@ -403,7 +403,7 @@ def _exact_slope(model: Any, alpha: float, n: float) -> float:
     return float(np.polyfit(sizes, res.power, 1)[0])
 
 
-def _detect(design: StudyDesign, sol: Any, level: float) -> float | None:
+def _detect(design: StudyDesign, sol: Solution, level: float) -> float | None:
     if level <= sol.alpha:
         return None
     allocation, years = design.applicable(sol.allocation, sol.years)

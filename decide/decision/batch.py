@@ -36,7 +36,7 @@ from numpy.typing import NDArray
 
 from ..designs._base import FloatArray, NormalMoments
 from ..engine import normal as _normal
-from .loss import MISSED, Z_RANGE, LossModel, bisect_decreasing, normal_at
+from .loss import MISSED, Z_RANGE, LossModel, normal_at, root_decreasing
 
 #: Sizes and critical values in the first table.
 SIZE_POINTS, Z_POINTS = 81, 129
@@ -104,7 +104,7 @@ def _z_bounds(model: LossModel, n: FloatArray) -> tuple[FloatArray, FloatArray]:
     lo = np.full(n.shape, zlo)
     hi = np.full(n.shape, Z_RANGE[1])
     if cons.min_power > 0:
-        hi = bisect_decreasing(lambda z: normal_at(model, n, z).design_power - cons.min_power, lo, hi)
+        hi = root_decreasing(lambda z: normal_at(model, n, z).design_power - cons.min_power, lo, hi)
         hi = np.where(normal_at(model, n, lo).design_power >= cons.min_power - 1e-9, hi, np.nan)
     return lo, hi
 

@@ -35,7 +35,7 @@ from numpy.typing import NDArray
 from ..designs._base import FloatArray
 from ..engine import exact as _exact
 from ..engine import normal as _normal
-from .loss import Z_RANGE, Characteristics, ExactOptions, LossModel, bisect_decreasing, minimise_on, normal_at
+from .loss import Z_RANGE, Characteristics, ExactOptions, LossModel, minimise_on, normal_at, root_decreasing
 
 if TYPE_CHECKING:  # policies read this registry to check a policy's rule
     from .policies import Policy
@@ -102,7 +102,7 @@ class NormalSearch:
 
     def power_root(self, target: float) -> FloatArray:
         """The critical value giving ``target`` power at the design effect."""
-        return bisect_decreasing(lambda z: self.at(z).design_power - target, self.z_low, self.z_high)
+        return root_decreasing(lambda z: self.at(z).design_power - target, self.z_low, self.z_high)
 
     @cached_property
     def equal_root(self) -> FloatArray:
@@ -112,7 +112,7 @@ class NormalSearch:
             c = self.at(z)
             return np.asarray(c.attained - (1 - c.power))
 
-        return bisect_decreasing(gap, self.z_low, self.z_high)
+        return root_decreasing(gap, self.z_low, self.z_high)
 
     def allowed(self) -> tuple[FloatArray, FloatArray]:
         """The critical values the alpha cap, the power floor and beta <= alpha allow."""

@@ -7,6 +7,6 @@ errors); the decision layer builds on it.
 from __future__ import annotations
 
 from .power import PowerResult, power
-from .solve import Solution, solve
+from .solve import Solution, SolutionArray, solve
 
-__all__ = ["PowerResult", "Solution", "power", "solve"]
+__all__ = ["PowerResult", "Solution", "SolutionArray", "power", "solve"]

@@ -23,10 +23,10 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
-from typing import Any, NamedTuple
+from typing import Any, NamedTuple, overload
 
 import numpy as np
-from numpy.typing import ArrayLike
+from numpy.typing import ArrayLike, NDArray
 from scipy import special
 
 from .. import _checks
@@ -65,14 +65,7 @@ class Solution(PlainData):
     an exact test ``n_stable`` is the size beyond which power stays at or
     above the target (checked up to ``n_checked``).
 
-    For array inputs (see :func:`solve`) every field but ``design``,
-    ``solved_for``, ``sides`` and ``warnings`` is an ndarray of the inputs'
-    broadcast shape: numbers as float64 (sizes too, whole-valued), with
-    ``nan`` where an element has no answer within the caps or a value does
-    not apply (``n_stable`` of a normal-test element); ``test``,
-    ``test_reason`` and ``method`` as arrays of strings, one per element;
-    ``expected_cases`` as a dict of arrays; ``warnings`` gathers every
-    element's notes once.  Scalar inputs give Python scalars, as typed.
+    Scalar inputs give this; array inputs give a :class:`SolutionArray`.
     """
 
     design: str
@@ -100,6 +93,44 @@ class Solution(PlainData):
     #: probability of a flag when harmless under the exact law of the counts
     #: (the normal test's real false-alarm probability); None where not computed
     false_alarm: float | None = None
+
+
+@dataclass(frozen=True)
+class SolutionArray(PlainData):
+    """Many solved studies at once: the fields of :class:`Solution`, one element per study.
+
+    Every field but ``design``, ``solved_for``, ``sides`` and ``warnings`` is
+    an ndarray of the inputs' broadcast shape: numbers as float64 (sizes too,
+    whole-valued), with ``nan`` where an element has no answer within the
+    caps or a value does not apply (``n_stable`` of a normal-test element);
+    ``test``, ``test_reason`` and ``method`` are arrays of strings;
+    ``expected_cases`` is a dict of arrays; ``warnings`` gathers every
+    element's notes once.  Each element equals the scalar solve of its inputs.
+    """
+
+    design: str
+    solved_for: str
+    test: NDArray[np.str_]
+    test_reason: NDArray[np.str_]
+    method: NDArray[np.str_]
+    sides: int
+    baseline: FloatArray
+    allocation: FloatArray
+    years: FloatArray
+    alpha: FloatArray
+    attained_alpha: FloatArray
+    power: FloatArray
+    beta: FloatArray
+    effect: FloatArray
+    n_per_group: FloatArray
+    n_total: FloatArray
+    expected_cases: dict[str, FloatArray]
+    smallest_expected_count: FloatArray
+    target_power: FloatArray | None = None
+    n_stable: FloatArray | None = None
+    n_checked: FloatArray | None = None
+    warnings: tuple[str, ...] = field(default=())
+    false_alarm: FloatArray | None = None
 
 
 # --------------------------------------------------------------------------
@@ -377,6 +408,25 @@ def _only_unknown(values: dict[str, Any]) -> str:
     return missing[0]
 
 
+@overload
+def solve(
+    design: str | StudyDesign,
+    *,
+    baseline: float,
+    alpha: float | None = None,
+    power: float | None = None,
+    n_per_group: float | None = None,
+    effect: float | None = None,
+    allocation: float | None = None,
+    years: float | None = None,
+    sides: int = 1,
+    test: str = "auto",
+    continuity: bool = False,
+    max_n_per_group: int = MAX_N_PER_GROUP,
+) -> Solution: ...
+
+
+@overload
 def solve(
     design: str | StudyDesign,
     *,
@@ -391,7 +441,24 @@ def solve(
     test: str = "auto",
     continuity: bool = False,
     max_n_per_group: int = MAX_N_PER_GROUP,
-) -> Solution:
+) -> Solution | SolutionArray: ...
+
+
+def solve(
+    design: str | StudyDesign,
+    *,
+    baseline: ArrayLike,
+    alpha: ArrayLike | None = None,
+    power: ArrayLike | None = None,
+    n_per_group: ArrayLike | None = None,
+    effect: ArrayLike | None = None,
+    allocation: ArrayLike | None = None,
+    years: ArrayLike | None = None,
+    sides: int = 1,
+    test: str = "auto",
+    continuity: bool = False,
+    max_n_per_group: int = MAX_N_PER_GROUP,
+) -> Solution | SolutionArray:
     """Solve for the one of alpha, power, n_per_group, effect left out.
 
     Parameters
@@ -406,10 +473,11 @@ def solve(
 
     Returns
     -------
-    Solution
-        Python scalars for scalar inputs; arrays of the broadcast shape for array inputs (see :class:`Solution`),
-        each element equal to the scalar solve of its inputs: the normal-test elements are answered at once from
-        the closed forms, the exact-test ones searched once per distinct design point (:mod:`~.solve_many`).
+    Solution or SolutionArray
+        A :class:`Solution` of Python scalars for scalar inputs; for array inputs a :class:`SolutionArray` of
+        the broadcast shape, each element equal to the scalar solve of its inputs: the normal-test elements are
+        answered at once from the closed forms, the exact-test ones searched once per distinct design point
+        (:mod:`~.solve_many`).
 
     Raises
     ------
@@ -458,11 +526,11 @@ class _Question(NamedTuple):
         return {k: v for k, v in zip(UNKNOWNS, values, strict=True) if v is not None}
 
 
-def _answer(q: _Question) -> Solution:
+def _answer(q: _Question) -> Solution | SolutionArray:
     """Solve a checked question: elementwise for arrays (:mod:`~.solve_many`), else by the unknown's solver."""
     if q.arrays:
         fields = solve_many(solve, q.setting, q.unknown, q.given(), q.cap)
-        return Solution(design=q.setting.design.name, solved_for=q.unknown, sides=q.setting.sides, **fields)
+        return SolutionArray(design=q.setting.design.name, solved_for=q.unknown, sides=q.setting.sides, **fields)
     return _SOLVERS[q.unknown](q.setting, q.alpha, q.power, q.n_per_group, q.effect, q.cap)
 
 

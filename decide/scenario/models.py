@@ -399,7 +399,8 @@ class ScenarioModel(BaseModel):
             "consequences": ConsequencesModel,
             "constraints": ConstraintsModel,
         }
-        bad = unknown_source_key(self.sources, input_key_paths(tables))
+        settings = tuple(f"study.design_settings.{k}" for k in get_design(self.study.design).settings)
+        bad = unknown_source_key(self.sources, input_key_paths(tables) + settings)
         if bad is not None:
             raise rule_error(f"sources.{bad}", "names no input of a scenario file (e.g. prior.p_harm)")
         return self
