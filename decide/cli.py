@@ -949,18 +949,27 @@ def report_command(
     ] = False,
     seed: Annotated[int | None, typer.Option(help="Seed of the simulation (printed; default: a fresh one).")] = None,
     force: Annotated[bool, typer.Option("--force", help="Overwrite an existing report.")] = False,
+    data: Annotated[
+        Path | None,
+        typer.Option("--data", help="A finished study's observed data (TOML): adds their reading, as 'interpret'."),
+    ] = None,
 ) -> None:
     """Write a report a board can read: question, inputs and sources, recommendation, figures, cautions."""
     if output.suffix.lower() not in (".html", ".htm", ".md"):
         _fail(f"decide report: --output must end in .html or .md, but got {str(output)!r}", 2)
     _check_output("report", output, force)
     loaded = run_api("report", lambda: load_scenario(scenario))
+    counts = None
+    if data is not None:  # bad data are refused before any computing, so nothing is written
+        from .scenario.observed_file import load_observed
+
+        counts = run_api("report", lambda: load_observed(data, loaded.problem))
     chosen = _chosen_policies("report", policy, policy_dir)
     used = _seed(seed)
     from .report.document import gather
     from .report.html import write_report
 
-    steps = 2 if quick else 6
+    steps = (2 if quick else 6) + (counts is not None)
     with _progress(True, "report") as bar:
         done = [0]
 
@@ -969,7 +978,9 @@ def report_command(
             if bar is not None:
                 bar(done[0], steps)
 
-        results = run_api("report", lambda: gather(loaded, chosen, quick, used, step))
+        results = run_api(
+            "report", lambda: gather(loaded, chosen, quick, used, step, observed=counts, observed_path=data)
+        )
         written = run_api("report", lambda: write_report(results, output, overwrite=force))
     for path in written:
         sys.stderr.write(f"wrote {path}\n")

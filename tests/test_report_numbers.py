@@ -125,6 +125,23 @@ def test_count(value: float | None, text: str) -> None:
     assert nb.count(value) == text
 
 
+@pytest.mark.parametrize(
+    ("value", "text"),
+    [
+        (0.95, "95%"),
+        (0.975, "97.5%"),  # not "98%": a stated level keeps its digits
+        (0.8, "80%"),
+        (0.9995, "99.95%"),
+        (0.99999, "> 99.99%"),  # never "100%" for a level below 1
+        (0.001, "0.1%"),
+        (1e-9, "< 0.000001%"),
+        (None, "-"),
+    ],
+)
+def test_percent(value: float | None, text: str) -> None:
+    assert nb.percent(value) == text
+
+
 def test_range() -> None:
     assert nb.number_range(3.868, 8.686) == "3.87 to 8.69"
     assert nb.number_range(6.43, math.inf) == "6.43 to infinity"

@@ -483,11 +483,37 @@ def interpret(
     (0.0, 2.459, 1.0, 0.0873, 'flag')
     """
     c = _checked_counts(problem, observed, confidence)
-    ev = evidence(c)
     asked = list(policies)
     decisions = list(compare(problem, asked + ([] if LOSS_OPTIMAL in asked else [LOSS_OPTIMAL])))
-    verdicts = _policy_verdicts(decisions[: len(asked)], ev)
-    best = next(d for d in decisions if d.policy == LOSS_OPTIMAL.name)
+    return interpret_planned(problem, c, decisions, len(asked), confidence)
+
+
+def interpret_planned(
+    problem: Problem,
+    observed: Mapping[str, float] | Counts,
+    decisions: Sequence[Decision],
+    shown: int,
+    confidence: float = 0.95,
+) -> Interpretation:
+    """Read a finished study's counts against decisions already made, as :func:`interpret` does.
+
+    ``decisions`` are the policies' decisions on ``problem`` as
+    :func:`~decide.decision.optimize.compare` returns them, the loss-optimal
+    policy's among them; the first ``shown`` get a verdict.  A report that
+    has compared the policies reads the data with this, so that the policies
+    are not compared twice; :func:`interpret` is this after the comparison.
+
+    Raises
+    ------
+    DecideError
+        As :func:`interpret`; also if no decision is the loss-optimal policy's.
+    """
+    c = _checked_counts(problem, observed, confidence)
+    best = next((d for d in decisions if d.policy == LOSS_OPTIMAL.name), None)
+    if best is None:
+        raise DecideError("decisions: the loss-optimal policy's decision is needed", ("decisions",))
+    ev = evidence(c)
+    verdicts = _policy_verdicts(list(decisions)[:shown], ev)
     return _reading(problem, c, confidence, ev, verdicts, best)
 
 

@@ -2,7 +2,8 @@
 
 :func:`gather` runs every computation a report needs (the comparison, the
 one-way and two-way sensitivity, the draws, the simulation, the figures'
-curves) and returns a frozen :class:`ReportResults`.  :func:`page` turns it
+curves; with a finished study's counts, their reading against the plan) and
+returns a frozen :class:`ReportResults`.  :func:`page` turns it
 into plain data for the templates: every number is a :class:`Num` holding
 the engine's value, its shown text (from :mod:`decide.report.numbers`) and
 the result field it comes from (``decision.alpha``,
@@ -15,10 +16,13 @@ import datetime as _dt
 import hashlib
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 from .. import __version__
 from ..decision import inputs as _inputs
+from ..decision.interpret import Interpretation, interpret_planned
+from ..decision.observed import Counts
 from ..decision.optimize import Comparison, Decision, compare
 from ..decision.policies import LOSS_OPTIMAL, Policy
 from ..decision.sensitivity import Tornado, TwoWay, fast_available, tornado, two_way
@@ -40,6 +44,15 @@ Progress = Callable[[str], None]
 
 
 @dataclass(frozen=True)
+class AfterStudy:
+    """A finished study's counts read against the report's plan, and the data file they came from."""
+
+    reading: Interpretation
+    file_name: str
+    sha256: str
+
+
+@dataclass(frozen=True)
 class ReportResults:
     """Everything a report shows, computed once (``None`` where a part was skipped)."""
 
@@ -58,6 +71,7 @@ class ReportResults:
     sha256: str
     version: str
     date: str
+    after: AfterStudy | None = None
 
 
 def file_sha256(path: Any) -> str:
@@ -77,13 +91,25 @@ def gather(
     seed: int = 0,
     progress: Progress | None = None,
     today: _dt.date | None = None,
+    observed: Counts | None = None,
+    observed_path: Any = None,
 ) -> ReportResults:
-    """Run every computation of a report (``quick`` skips the sensitivity, draws and simulation)."""
+    """Run every computation of a report (``quick`` skips the sensitivity, draws and simulation).
+
+    ``observed`` (read from the data file ``observed_path``) adds the reading
+    of a finished study's counts against the policies compared, as
+    ``decide interpret`` gives it.
+    """
     step = progress or (lambda what: None)
     problem = loaded.problem
     step("comparing policies")
     comparison = compare(problem, _with_optimum(policies))
     decision = next(d for d in comparison if d.policy == LOSS_OPTIMAL.name)
+    after = None
+    if observed is not None:
+        step("reading the observed counts")
+        reading = interpret_planned(problem, observed, list(comparison), len(policies))
+        after = AfterStudy(reading, Path(observed_path).name, file_sha256(observed_path))
     fast = fast_available(problem)
     step("drawing the figures' curves")
     loss = cv.loss_curve(problem, decision.n_per_group) if decision.n_per_group is not None else None
@@ -121,4 +147,5 @@ def gather(
         sha256=file_sha256(loaded.path),
         version=__version__,
         date=(today or _dt.datetime.now(_dt.UTC).date()).isoformat(),
+        after=after,
     )

@@ -18,6 +18,7 @@ from typing import Any
 
 from ..decision.simulate import SIMULATED, design_name
 from ..scenario import write_text_atomic
+from .after_study import after_study
 from .document import SIMULATED_STUDIES, ReportResults
 from .figures import Figure, draw_all
 from .justify import justification
@@ -35,6 +36,12 @@ def _md(text: Any) -> str:
     return markdown_literal(text)
 
 
+def _md_piece(text: Any) -> str:
+    """A piece of a Markdown sentence or cell: as :func:`_md`, keeping one space at either edge it had."""
+    t = str(text)
+    return (" " if t[:1].isspace() else "") + markdown_literal(t) + (" " if t[-1:].isspace() else "")
+
+
 def _environment(autoescape: bool) -> Any:
     import jinja2
 
@@ -47,6 +54,7 @@ def _environment(autoescape: bool) -> Any:
     env.tests["num"] = lambda x: isinstance(x, Num)
     env.filters["exact"] = _exact
     env.filters["md"] = _md
+    env.filters["md_piece"] = _md_piece
     return env
 
 
@@ -72,6 +80,7 @@ def context(r: ReportResults, figures: list[Figure], figure_dir: str = "") -> di
         "seed": r.seed,
         "justification": justification(r),
         "cautions": cautions(r),
+        "after": after_study(r),
         "version": r.version,
         "date": r.date,
         "sha256": r.sha256,

@@ -10,8 +10,8 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from ..decision.interpret import Interpretation
-from .numbers import count, for_json, money, number, probability
+from ..decision.interpret import Interpretation, PolicyVerdict
+from .numbers import count, for_json, money, number, percent, probability
 from .text import CAUTION, literal, markdown_literal
 
 _ACTION = {"flag": "flag the exposure", "clear": "clear the exposure"}
@@ -33,7 +33,7 @@ def _observed(value: float) -> str:
 
 def rules_out(r: Interpretation) -> str:
     """What the data rule out and what they cannot, in plain words."""
-    level = f"{r.confidence:.0%}"
+    level = percent(r.confidence)
     name = r.effect_name
     if not math.isfinite(r.excludes_above):
         return (
@@ -51,11 +51,12 @@ def power_note(r: Interpretation) -> str:
     """What the study could detect, and the warning against reading 'not significant' as 'safe'."""
     if r.detectable is None:
         could = (
-            f"the study had less than {r.detect_power:.0%} power against every {r.effect_name} in the design's range"
+            f"the study had less than {percent(r.detect_power)} power against every {r.effect_name} "
+            "in the design's range"
         )
     else:
         could = (
-            f"the study had {r.detect_power:.0%} power only against {_a(r.effect_name)} of "
+            f"the study had {percent(r.detect_power)} power only against {_a(r.effect_name)} of "
             f"{number(r.detectable)} or more (alpha {r.detect_alpha_shown or probability(r.detect_alpha)})"
         )
     if r.p_value > r.detect_alpha:
@@ -88,21 +89,51 @@ def estimate_sentence(r: Interpretation) -> str:
     """The estimate, its interval and the one-sided p-value."""
     est = "not estimable (no case in the comparison group)" if r.estimate is None else number(r.estimate)
     return (
-        f"{r.effect_name.capitalize()} {est}; {r.confidence:.0%} interval {number(r.ci_low)} to "
+        f"{r.effect_name.capitalize()} {est}; {percent(r.confidence)} interval {number(r.ci_low)} to "
         f"{_limit(r.ci_high)}; exact one-sided p-value {probability(r.p_value)}."
     )
+
+
+def alpha_text(pv: PolicyVerdict) -> str:
+    """A policy's nominal alpha as its plan shows it (rounded into its cut-off interval)."""
+    return pv.alpha_shown or probability(pv.alpha)
+
+
+def verdict_text(pv: PolicyVerdict) -> str:
+    """A policy's verdict in words: flag, clear or no test, and 'policy unmet' where its study was not allowed."""
+    verdict: str = pv.verdict or "no test"
+    if not pv.available and pv.verdict is not None:
+        verdict += " (policy unmet)"
+    return verdict
+
+
+#: How verdicts are read, said once beneath their table.
+VERDICT_NOTE = (
+    "Verdicts apply each policy's test and nominal alpha to these data; 'policy unmet' marks a policy "
+    "whose study the limits did not allow."
+)
+
+
+def reading_sentences(r: Interpretation, unit: str = "") -> dict[str, str]:
+    """The reading in plain words, in the order every format shows it.
+
+    The estimate, what the data rule out, what the study could detect, and
+    the posterior with the action of least expected loss; the console, the
+    Markdown, the JSON and the board's report all take them from here.
+    """
+    return {
+        "estimate": estimate_sentence(r),
+        "rules_out": rules_out(r),
+        "power": power_note(r),
+        "posterior": bayes_sentence(r, unit),
+    }
 
 
 def interpretation_record(r: Interpretation, title: str = "", unit: str = "") -> dict[str, Any]:
     """Plain data for JSON: every field, the sentences, and the caution."""
     record = {"scenario": title, **r.to_dict()}
     record["verdicts"] = [v.to_dict() for v in r.verdicts]
-    record["sentences"] = {
-        "estimate": estimate_sentence(r),
-        "rules_out": rules_out(r),
-        "power": power_note(r),
-        "posterior": bayes_sentence(r, unit),
-    }
+    record["sentences"] = reading_sentences(r, unit)
     record["caution"] = CAUTION
     return dict(for_json(record))
 
@@ -121,32 +152,24 @@ def interpretation_table(r: Interpretation, title: str, unit: str = "") -> Any:
     for key, value in r.observed.items():
         t.add_row(key.replace("_", " "), _observed(value))
     t.add_row(r.effect_name, "not estimable" if r.estimate is None else number(r.estimate))
-    t.add_row(f"{r.confidence:.0%} interval (exact)", f"{number(r.ci_low)} to {_limit(r.ci_high)}")
+    t.add_row(f"{percent(r.confidence)} interval (exact)", f"{number(r.ci_low)} to {_limit(r.ci_high)}")
     t.add_row("exact p-value, one-sided (harm)", probability(r.p_value))
     t.add_row("mid-p-value, one-sided", probability(r.p_value_mid))
     t.add_row("posterior probability of harm", f"{probability(r.posterior_harm)} (prior {probability(r.prior_harm)})")
     t.add_row("expected loss of flagging" + money_unit, money(r.loss_flag))
     t.add_row("expected loss of clearing" + money_unit, money(r.loss_clear))
     t.add_row("loss-minimising action", Text(r.recommendation, style="bold"))
-    t.add_row(f"ratio detectable with {r.detect_power:.0%} power", number(r.detectable))
+    t.add_row(f"ratio detectable with {percent(r.detect_power)} power", number(r.detectable))
     v = Table(title="Verdict of each policy's test on these data")
     v.add_column("policy", no_wrap=True)  # a name is never cut: it is what the reader looks up
     for col in ("test", "alpha (nominal)", "attained alpha (planned size)", "verdict"):
         v.add_column(col)
     for pv in r.verdicts:
-        verdict: str = pv.verdict or "no test"
-        if not pv.available and pv.verdict is not None:
-            verdict += " (policy unmet)"
-        alpha = pv.alpha_shown or probability(pv.alpha)
-        v.add_row(Text(literal(pv.policy)), pv.test or "-", alpha, probability(pv.attained_alpha), verdict)
-    notes = [Text(s) for s in (estimate_sentence(r), rules_out(r), power_note(r), bayes_sentence(r, unit))]
-    notes.append(
-        Text(
-            f"Method: {r.method}. Verdicts apply each policy's test and nominal alpha to these "
-            "data; 'policy unmet' marks a policy whose study the limits did not allow.",
-            style="dim",
+        v.add_row(
+            Text(literal(pv.policy)), pv.test or "-", alpha_text(pv), probability(pv.attained_alpha), verdict_text(pv)
         )
-    )
+    notes = [Text(s) for s in reading_sentences(r, unit).values()]
+    notes.append(Text(f"Method: {r.method}. {VERDICT_NOTE}", style="dim"))
     notes += [Text(f"Note: {w}", style="yellow") for w in r.warnings]
     notes.append(Text(CAUTION, style="dim italic"))
     return Group(t, v, Panel(Group(*notes), border_style="dim"))
@@ -160,7 +183,7 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
         lines.append(f"| {key.replace('_', ' ')} | {_observed(value)} |")
     lines += [
         f"| {r.effect_name} | {'not estimable' if r.estimate is None else number(r.estimate)} |",
-        f"| {r.confidence:.0%} interval (exact) | {number(r.ci_low)} to {_limit(r.ci_high)} |",
+        f"| {percent(r.confidence)} interval (exact) | {number(r.ci_low)} to {_limit(r.ci_high)} |",
         f"| exact p-value, one-sided | {probability(r.p_value)} |",
         f"| mid-p-value, one-sided | {probability(r.p_value_mid)} |",
         f"| posterior probability of harm | {probability(r.posterior_harm)} |",
@@ -173,18 +196,11 @@ def to_markdown(r: Interpretation, title: str, unit: str = "") -> str:
     ]
     for pv in r.verdicts:
         lines.append(
-            f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {pv.alpha_shown or probability(pv.alpha)} | "
-            f"{probability(pv.attained_alpha)} | {pv.verdict or 'no test'} |"
+            f"| {markdown_literal(pv.policy)} | {pv.test or '-'} | {alpha_text(pv)} | "
+            f"{probability(pv.attained_alpha)} | {verdict_text(pv)} |"
         )
     lines += [
-        "",
-        estimate_sentence(r),
-        "",
-        rules_out(r),
-        "",
-        power_note(r),
-        "",
-        bayes_sentence(r, unit),
+        *(part for sentence in reading_sentences(r, unit).values() for part in ("", sentence)),
         "",
         f"Method: {r.method}.",
         "",

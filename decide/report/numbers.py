@@ -30,6 +30,8 @@ from typing import Any
 
 #: Significant digits of every human number format.
 DIGITS = 3
+#: Significant digits of a stated level shown as a percentage (:func:`percent`).
+PERCENT_DIGITS = 4
 #: Below this a positive probability or quantity is written as a bound.
 SMALLEST_SHOWN = 1e-6
 #: What a missing or undefined value looks like to people.
@@ -123,6 +125,26 @@ def number(value: Any, digits: int = DIGITS) -> str:
     if abs(rounded) >= 10 ** (digits - 1):
         return _trim(f"{rounded:,.0f}")
     return _trim(f"{rounded:,.{_decimals_for(rounded, digits)}f}")
+
+
+def percent(value: Any) -> str:
+    """A stated level (confidence, power target) as a percentage: up to four significant digits.
+
+    Levels are stated, not estimated, so they keep the digits they were given
+    (``97.5%``, ``99.95%``); a level below 1 is never shown as ``100%``.
+
+    Examples
+    --------
+    >>> percent(0.95), percent(0.975), percent(0.8), percent(0.9995), percent(0.999999), percent(None)
+    ('95%', '97.5%', '80%', '99.95%', '> 99.99%', '-')
+    """
+    if _missing(value):
+        return MISSING
+    p = float(value)
+    shown = number(100 * p, PERCENT_DIGITS)
+    if 0 < p < 1 and shown == "100":
+        return "> 99." + "9" * (PERCENT_DIGITS - 2) + "%"
+    return shown + "%"
 
 
 def money(value: Any, currency: str = "", compact: bool = False) -> str:
