@@ -15,7 +15,9 @@ Workloads, on the bundled invented normal-test scenario
 3. 10,000 probabilistic draws from the scenario's [uncertainty] table, with
    the eight bundled policies (target under 10 s);
 4. 1,000,000 simulated studies under each hypothesis with the normal test
-   (target under 5 s).
+   (target under 5 s), and, on the invented matched-pairs scenario
+   ``scenarios/quillmere-matched.toml``, with the exact McNemar test (same
+   target).
 
 Then, for the contributor guide only, a tornado on the exact-test scenario
 ``solvent-cohort.toml`` (loss-optimal only), which runs the optimiser at each
@@ -60,6 +62,8 @@ def main() -> None:
     dists = loaded.model.uncertainty.to_inputs()
     decision = optimize(mill)
     solvent = load_scenario(REPO / "scenarios" / "solvent-cohort.toml").problem
+    matched = load_scenario(REPO / "scenarios" / "quillmere-matched.toml").problem
+    matched_decision = optimize(matched)
     rows: list[tuple[str, float, float, float | None]] = []
 
     def add(name: str, work: Callable[[], object], repeats: int, target: float | None) -> None:
@@ -73,6 +77,12 @@ def main() -> None:
     add("two-way grid 25 x 25", lambda: two_way(mill, x, y, 25), 3, 5.0)
     add("10,000 probabilistic draws, 8 policies", lambda: probabilistic(mill, dists, 10_000, 1, policies), 1, 10.0)
     add("simulate 1,000,000 studies (normal test)", lambda: simulate(mill, decision, 1_000_000, 1), 3, 5.0)
+    add(
+        "simulate 1,000,000 matched-pair studies (exact McNemar)",
+        lambda: simulate(matched, matched_decision, 1_000_000, 1),
+        3,
+        5.0,
+    )
     add("tornado on solvent-cohort (exact test, for the guide)", lambda: tornado(solvent), 1, None)
 
     width = max(len(r[0]) for r in rows)

@@ -321,23 +321,31 @@ def test_help_does_not_import_matplotlib_or_jinja2() -> None:
     assert out.stdout.strip().splitlines()[-1] == "False False"
 
 
-def test_a_design_the_simulation_cannot_draw_still_gets_its_report() -> None:
-    """The matched design: its design settings are shown as inputs and the simulation says it is absent."""
-    from decide.decision.simulate import SIMULATED
-    from decide.report.document import gather
+def test_the_matched_design_gets_its_simulation(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The matched design: its design settings are shown as inputs and its simulation is drawn and checked."""
+    from dataclasses import replace
+
+    from decide.decision.simulate import SIMULATED, design_name, simulate
+    from decide.report.document import SIMULATED_STUDIES, gather
     from decide.report.html import render_html
 
     matched = REPO / "scenarios" / "quillmere-matched.toml"
     loaded = load_scenario(matched)
-    assert loaded.problem.study.design not in SIMULATED
+    assert design_name(loaded.problem) == "matched-case-control" and "matched-case-control" in SIMULATED
     r = gather(loaded, list(load_policies(()).values()), quick=True)
     root = parse(render_html(r))
     assert _check_numbers(render_html(r), r) > 20
     keys = {e.get("data-key") for e in root.iter() if e.get("data-key")}
     assert "inputs.study.design_settings.correlation" in keys
-    # the full report's simulation branch, rendered from the same results with the draft flag off
-    from dataclasses import replace
-
+    # the full report's simulation, drawn as gather draws it (the rest of the full report is not needed here)
+    sim = simulate(loaded.problem, r.decision, SIMULATED_STUDIES, 11)
+    full = replace(r, quick=False, seed=11, simulation=sim)
+    html = render_html(full)
+    text = "".join(parse(html).find(".//section[@id='simulation']").itertext())
+    assert "McNemar" in text and "no simulation" not in text
+    assert 'data-key="simulation.power.simulated"' in html and _check_numbers(html, full) > 25
+    # a design the simulation could not draw would still get its report, with a sentence instead
+    monkeypatch.setattr("decide.report.html.SIMULATED", ())
     text = "".join(parse(render_html(replace(r, quick=False))).find(".//section[@id='simulation']").itertext())
     assert "cannot draw this study design" in text
 

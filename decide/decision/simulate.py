@@ -3,11 +3,26 @@
 :func:`simulate` draws the counts of many studies of the chosen size, under
 no harm (effect 1) and under harm (the effect drawn from its prior), applies
 the test as an analyst would with scipy's functions (Fisher's exact test,
-the exact binomial test, the Poisson tail, or the normal statistic), and
+the exact binomial test, the Poisson tail, McNemar's exact test, or the
+normal statistic), and
 sets the share of significant results beside the analytic false-alarm
 probability and power, and the mean realised loss beside the expected loss.
 It shares no code with the power engine: the counts come from numpy's
-binomial and Poisson generators, the tests from :mod:`scipy.stats`.
+binomial, Poisson and multinomial generators, the tests from
+:mod:`scipy.stats`.
+
+Matched sets (1:M) are drawn from the model Dupont (1988) states: each set
+holds ``k`` exposed subjects with probability
+``t_k = p1*P(Bin(M, p0+) = k-1) + q1*P(Bin(M, p0-) = k)`` (case exposed,
+or not, and the M controls independent given the case, with the
+within-set correlation ``phi`` moving ``p0+`` and ``p0-`` apart), and
+given ``k`` its case is the exposed one with probability
+``k*psi / (k*psi + M + 1 - k)``.  The sets of a study are independent, so
+the number of sets with each ``k`` is multinomial over the ``n`` sets and
+the exposed cases among them binomial.  A 1:1 study is tested with the
+exact McNemar test (``scipy.stats.binomtest`` on the discordant pairs), or
+McNemar's normal statistic; a 1:M study with the Mantel-Haenszel statistic
+for matched sets, the conditional score test at no effect.
 
 A difference of more than 4 standard errors (of the analytic value under
 binomial sampling) is flagged: the design's stated numbers and the test as
@@ -24,6 +39,14 @@ References
 .. [3] Clopper, C. J. and Pearson, E. S. (1934). The use of confidence or
    fiducial limits illustrated in the case of the binomial. *Biometrika* 26,
    404-413.
+.. [4] Dupont, W. D. (1988). Power calculations for matched case-control
+   studies. *Biometrics* 44, 1157-1168 (the model of matched sets).
+.. [5] Breslow, N. E. and Day, N. E. (1980). *Statistical Methods in Cancer
+   Research, vol. I*. IARC Scientific Publications 32, ch. 5 (the
+   Mantel-Haenszel test for 1:M matched sets; section from memory).
+.. [6] McNemar, Q. (1947). Note on the sampling error of the difference
+   between correlated proportions or percentages. *Psychometrika* 12,
+   153-157.
 """
 
 from __future__ import annotations
@@ -94,7 +117,8 @@ class Simulation(PlainData):
         return self.false_alarm.flagged or self.power.flagged or self.loss.flagged
 
 
-SIMULATED = ("cohort-risk", "case-control", "cohort-rate", "reference-rate")
+SIMULATED = ("cohort-risk", "case-control", "cohort-rate", "reference-rate", "matched-case-control")
+MATCHED = "matched-case-control"
 
 
 def design_name(problem: Problem) -> str:
@@ -120,13 +144,111 @@ def _effects(problem: Problem, rng: np.random.Generator, size: int) -> FloatArra
     theta = e.median * np.exp(e.log_sd * u)
     if design_name(problem) == "cohort-risk":  # the exposed risk stays below 1 (prior mass beyond < 1e-6)
         theta = np.minimum(theta, (1 - 1e-12) / problem.study.baseline)
+    phi = _within_set_correlation(problem)
+    if design_name(problem) == MATCHED and phi > 0:  # Dupont's model needs psi < 1/phi**2 (mass beyond < 1e-6)
+        theta = np.minimum(theta, (1 - 1e-9) / phi**2)
     return np.asarray(theta)
 
 
+def _within_set_correlation(problem: Problem) -> float:
+    """The correlation of exposure within matched sets (the design setting; 0 for a design named by text)."""
+    d = problem.study.design
+    return 0.0 if isinstance(d, str) else float(getattr(d, "correlation", 0.0))
+
+
+def matched_set_law(p0: float, psi: FloatArray, controls: int, phi: float) -> tuple[FloatArray, FloatArray]:
+    """How many subjects of a matched set are exposed, and whether its case is one of them (Dupont 1988).
+
+    Parameters
+    ----------
+    p0 : float
+        Exposure prevalence among controls.
+    psi : array of float
+        Odds ratio of each study.
+    controls : int
+        Controls matched to each case, ``M``.
+    phi : float
+        Correlation of exposure between a case and a matched control.
+
+    Returns
+    -------
+    t : array of float, shape (len(psi), M + 2)
+        ``t[:, k]``: probability that a set holds k = 0..M+1 exposed subjects.
+    e : array of float, shape (len(psi), M)
+        ``e[:, k-1]``: probability that the case is exposed, given k = 1..M exposed in its set.
+
+    Notes
+    -----
+    The case is exposed with probability ``p1 = psi*p0 / (1 + p0*(psi - 1))``;
+    given the case, the controls are independent, exposed with probability
+    ``p0+ = p0 + phi*sqrt(p0*q0*q1/p1)`` (case exposed) or
+    ``p0- = p0 - phi*sqrt(p0*q0*p1/q1)`` (case unexposed), clipped to
+    [0, 1].  Given k exposed, the case is exposed with the conditional
+    probability ``k*psi / (k*psi + M + 1 - k)``.
+
+    References
+    ----------
+    .. [1] Dupont, W. D. (1988). Power calculations for matched
+       case-control studies. *Biometrics* 44, 1157-1168.
+    """
+    psi = np.asarray(psi, dtype=np.float64)[:, None]
+    p1 = psi * p0 / (1 + p0 * (psi - 1))
+    q0, q1 = 1 - p0, 1 - p1
+    plus = np.clip(p0 + phi * np.sqrt(p0 * q0 * q1 / p1), 0.0, 1.0)
+    minus = np.clip(p0 - phi * np.sqrt(p0 * q0 * p1 / q1), 0.0, 1.0)
+    k = np.arange(controls + 2)
+    t = p1 * stats.binom.pmf(k - 1, controls, plus) + q1 * stats.binom.pmf(k, controls, minus)
+    exposed = k[1:-1]
+    e = exposed * psi / (exposed * psi + controls + 1 - exposed)
+    return np.asarray(t / t.sum(axis=1, keepdims=True)), np.asarray(e)
+
+
+def _draw_matched(problem: Problem, n: int, theta: FloatArray, rng: np.random.Generator) -> tuple[FloatArray, ...]:
+    """Exposed cases and sets of each study by the sets' exposed count k = 1..M (columns; others carry nothing)."""
+    controls = int(round(problem.study.allocation))
+    t, e = matched_set_law(problem.study.baseline, theta, controls, _within_set_correlation(problem))
+    sets = rng.multinomial(n, t)[:, 1:-1]
+    return rng.binomial(sets, e).astype(float), sets.astype(float)
+
+
+def matched_statistic(cases: FloatArray, sets: FloatArray) -> FloatArray:
+    """The Mantel-Haenszel statistic of each study of 1:M matched sets (harm: positive).
+
+    Parameters
+    ----------
+    cases, sets : array of float, shape (studies, M)
+        ``sets[:, k-1]`` sets with k exposed subjects, ``cases[:, k-1]``
+        how many of them have their case exposed.
+
+    Returns
+    -------
+    array of float
+        The exposed cases minus their expectation given every set's
+        exposed count, ``sum_k (cases_k - sets_k*k/(M+1))``, over its null
+        standard error ``sqrt(sum_k sets_k*k*(M+1-k)/(M+1)**2)``; for 1:1
+        McNemar's ``(b - c)/sqrt(b + c)``.  ``nan`` with no informative set.
+
+    References
+    ----------
+    .. [1] Breslow, N. E. and Day, N. E. (1980). *Statistical Methods in
+       Cancer Research, vol. I*. IARC Scientific Publications 32, ch. 5
+       (the summary test for 1:M matching; section from memory).
+    """
+    controls = sets.shape[-1]
+    share = np.arange(1, controls + 1) / (controls + 1)
+    score = np.sum(cases - sets * share, axis=-1)
+    variance = np.sum(sets * share * (1 - share), axis=-1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.asarray(score / np.sqrt(variance))
+
+
 def _draw(problem: Problem, n: int, m: int, theta: FloatArray, rng: np.random.Generator) -> tuple[FloatArray, ...]:
-    """Counts of each study: (exposed count, comparison count) or (observed, expected) for one group."""
+    """Counts of each study: (exposed count, comparison count), (observed, expected) for one group,
+    or (exposed cases, sets) by exposed count for matched sets."""
     s = problem.study
     b = s.baseline
+    if design_name(problem) == MATCHED:
+        return _draw_matched(problem, n, theta, rng)
     if design_name(problem) == "cohort-risk":
         return rng.binomial(n, b * theta).astype(float), rng.binomial(m, b, theta.size).astype(float)
     if design_name(problem) == "case-control":
@@ -145,7 +267,9 @@ def _normal_p(problem: Problem, x: FloatArray, y: FloatArray, n: int, m: int, si
     """p-values of the normal statistic of each study (harm: the upper tail)."""
     s = problem.study
     with np.errstate(divide="ignore", invalid="ignore"):
-        if design_name(problem) in ("cohort-risk", "case-control"):
+        if design_name(problem) == MATCHED:
+            stat = matched_statistic(x, y)
+        elif design_name(problem) in ("cohort-risk", "case-control"):
             p1, p0 = x / n, y / m
             pooled = (x + y) / (n + m)
             se = np.sqrt(pooled * (1 - pooled) * (1 / n + 1 / m))
@@ -177,6 +301,15 @@ def _exact_p(problem: Problem, x: FloatArray, y: FloatArray, n: int, m: int, sid
     def central(upper: float, lower: float) -> float:
         return upper if sides == 1 else min(1.0, 2 * min(upper, lower))
 
+    if design_name(problem) == MATCHED:  # exact only for 1:1: only the m = 1 column, the discordant pairs
+
+        def mcnemar(case_only: float, pairs: float) -> float:
+            if pairs == 0:
+                return 1.0
+            side = "greater" if sides == 1 else "two-sided"  # two-sided, at 1/2: twice the smaller tail
+            return float(stats.binomtest(int(case_only), int(pairs), 0.5, alternative=side).pvalue)
+
+        return _unique_p(np.column_stack([x[:, 0], y[:, 0]]), mcnemar)
     if design_name(problem) in ("cohort-risk", "case-control"):
 
         def fisher(a: float, c: float) -> float:
@@ -294,6 +427,12 @@ def simulate(
         if exact
         else "normal statistic (scipy.stats.norm)"
     )
+    if design_name(problem) == MATCHED:
+        method = (
+            "exact McNemar test (scipy.stats.binomtest on the discordant pairs)"
+            if exact
+            else "Mantel-Haenszel statistic of the matched sets (scipy.stats.norm)"
+        )
     return Simulation(
         problem.title,
         decision.policy,
