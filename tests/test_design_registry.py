@@ -95,3 +95,12 @@ def test_no_code_outside_the_designs_tests_a_design_by_name() -> None:
     offences = [o for p in files for o in _offences(p)]
     offences = [o for o in offences if not (o.split(":")[0] in KEYED_TABLES and "keys a table" in o)]
     assert offences == []
+
+
+def test_every_design_names_its_groups() -> None:
+    """The words the screens use for a design's groups come from the design (one group: no comparison)."""
+    from decide.designs import DESIGNS
+
+    for d in DESIGNS.values():
+        assert d.size_name
+        assert (d.comparison_name is None) == (d.groups == 1) == (d.allocation_name is None), d.name

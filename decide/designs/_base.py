@@ -118,6 +118,8 @@ class StudyDesign(ABC):
     groups: ClassVar[int]
     #: what ``allocation`` means (two-group designs); ``None`` for one group
     allocation_name: ClassVar[str | None]
+    #: who the second group is (unexposed subjects, controls); ``None`` for one group
+    comparison_name: ClassVar[str | None]
     uses_years: ClassVar[bool]
     #: whether the normal test may be continuity-corrected (two proportions)
     binomial_groups: ClassVar[bool]

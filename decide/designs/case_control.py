@@ -44,6 +44,7 @@ class CaseControl(StudyDesign):
     size_name = "cases"
     groups = 2
     allocation_name = "controls per case"
+    comparison_name = "controls"
     uses_years = False
     binomial_groups = True
     exact_test = "fisher"

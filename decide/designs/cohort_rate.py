@@ -42,6 +42,7 @@ class CohortRate(StudyDesign):
     size_name = "exposed subjects"
     groups = 2
     allocation_name = "unexposed subjects per exposed subject"
+    comparison_name = "unexposed subjects"
     uses_years = True
     binomial_groups = False
     exact_test = "binomial"

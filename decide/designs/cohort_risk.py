@@ -37,6 +37,7 @@ class CohortRisk(StudyDesign):
     size_name = "exposed subjects"
     groups = 2
     allocation_name = "unexposed subjects per exposed subject"
+    comparison_name = "unexposed subjects"
     uses_years = False
     binomial_groups = True
     exact_test = "fisher"

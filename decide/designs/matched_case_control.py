@@ -112,6 +112,7 @@ class MatchedCaseControl(StudyDesign):
     size_name = "matched sets (cases)"
     groups = 2
     allocation_name = "controls matched to each case"
+    comparison_name = "controls"
     uses_years = False
     binomial_groups = False
     exact_test = "binomial"

@@ -39,6 +39,7 @@ class ReferenceRate(StudyDesign):
     size_name = "exposed subjects"
     groups = 1
     allocation_name = None
+    comparison_name = None
     uses_years = True
     binomial_groups = False
     exact_test = "poisson"

@@ -18,6 +18,7 @@ from rich.text import Text
 from ..decision.sensitivity import EndPoint, Tornado, TwoWay
 from ..decision.simulate import Check, Simulation
 from ..decision.uncertainty import Probabilistic
+from ..designs import get_design
 from . import numbers as nb
 from .text import CAUTION, fmt, literal
 
@@ -166,9 +167,10 @@ def simulation_table(s: Simulation, unit: str = "") -> Group:
     for c in (s.false_alarm, s.power, s.loss):
         t.add_row(*_check_row(c))
     sided = "one-sided" if s.sides == 1 else "two-sided"
+    words = get_design(s.design)
     design = Text(
-        f"Design: {s.design}, {fmt(s.n_per_group)} per group"
-        + (f" and {fmt(s.n_comparison)} in the comparison group" if s.n_comparison else "")
+        f"Design: {s.design}, {fmt(s.n_per_group)} {words.size_name}"
+        + (f" and {fmt(s.n_comparison)} {words.comparison_name}" if s.n_comparison else "")
         + f"; {sided} {s.test} test at alpha {fmt(s.alpha, 4)}. Tests applied: {s.method}."
         + (f" Costs in {unit}." if unit else ""),
         style="dim",
