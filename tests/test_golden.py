@@ -35,6 +35,7 @@ from typer.testing import CliRunner
 
 from decide import cli
 from decide.cli import app
+from decide.decision import interpret as interpret_module
 from decide.report import numbers as nb
 from decide.scenario import BUILTIN_ORDER
 
@@ -157,6 +158,7 @@ def case_screens(name: str) -> dict[int, str]:
     with pytest.MonkeyPatch.context() as mp:
         for attr in ("_solve", "_optimize", "_compare", "_audit"):
             mp.setattr(cli, attr, remembered(getattr(cli, attr)))
+        mp.setattr(interpret_module, "interpret", remembered(interpret_module.interpret))
         mp.chdir(REPO)
         return {w: invoke(CASES[name], w).stdout for w in WIDTHS}
 
