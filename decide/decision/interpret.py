@@ -7,11 +7,12 @@ observed counts of its design and returns an :class:`Interpretation`:
   conditional (Clopper-Pearson) for two person-time groups, exact Poisson
   (Garwood) for the reference-rate design, exact conditional (inverting
   Fisher's noncentral hypergeometric law) for two risk groups and for
-  case-control.  The interval is not mid-p: it inverts the very test the
+  case-control, exact conditional binomial on the discordant pairs for 1:1
+  matched pairs (the exact McNemar test).  The interval is not mid-p: it inverts the very test the
   verdicts use.  For the risk ratio of a cohort the odds-ratio interval is
   carried to the risk-ratio scale at the scenario's baseline risk;
 * the exact one-sided p-value (harm), the mid-p-value beside it, and the
-  normal statistic of the design;
+  normal statistic of the design (McNemar's for matched pairs);
 * the verdict (flag or clear) under each policy's test and threshold
   (:func:`policy_verdict`, the one place that applies a policy to data);
 * the posterior probability of harm given the data, under the scenario's
@@ -63,6 +64,7 @@ from .observed import (
     log_likelihood,
     lower_tail,
     point_mass,
+    reader_for,
     reader_of,
     upper_tail,
 )
@@ -85,6 +87,8 @@ _METHODS = {
     "cohort-rate": "exact conditional binomial interval (Clopper-Pearson) for the rate ratio given "
     "the total cases; exact conditional binomial test",
     "reference-rate": "exact Poisson interval (Garwood) for the standardised incidence ratio; exact Poisson test",
+    "matched-case-control": "exact conditional binomial interval (Clopper-Pearson) for the odds ratio given the "
+    "discordant pairs, conditional maximum-likelihood estimate; exact McNemar test",
 }
 
 
@@ -257,9 +261,13 @@ def _normal_statistics(c: Counts) -> tuple[float, float]:
     Two proportions: ``(p1 - p0) / sqrt(pbar qbar (1/n1 + 1/n0))``, the
     correction ``(1/n1 + 1/n0) / 2`` taken off the difference; rates: the log
     rate ratio over its null standard error at the total count; reference
-    rate: ``2 (sqrt(O) - sqrt(E))``.  Where there is no spread (no case at
-    all, or every subject a case) the statistic is 0.
+    rate: ``2 (sqrt(O) - sqrt(E))``; a design whose reader has its own
+    statistic (McNemar's for matched pairs) uses it.  Where there is no
+    spread (no case at all, or every subject a case) the statistic is 0.
     """
+    own = reader_of(c.design).statistic
+    if own is not None:
+        return own(c)
     if c.law == "poisson":
         z = 2 * (np.sqrt(c.x1) - np.sqrt(c.size1))
         return float(z), float(z)
@@ -393,10 +401,14 @@ def _detectable_ratio(problem: Problem, c: Counts, alpha: float) -> float | None
 
     The study's test (normal or exact) is chosen by the scenario's rule at
     the observed size and the design effect.  Person-time is carried as
-    ``10**6`` subjects followed for the matching years.
+    ``10**6`` subjects followed for the matching years; a design whose
+    reader reads the study's size its own way (every matched pair) uses it.
     """
     s = problem.study
-    if c.law == "poisson":
+    own = reader_of(c.design).study
+    if own is not None:
+        n, alloc, years = own(c)
+    elif c.law == "poisson":
         n, alloc, years = _PT_SUBJECTS, None, c.size1 / (s.baseline * _PT_SUBJECTS)
     elif c.law == "binomial":
         assert c.size0 is not None
@@ -432,7 +444,7 @@ def _policy_verdicts(decisions: Sequence[Decision], ev: Evidence) -> tuple[Polic
 
 def read_counts(problem: Problem, observed: Mapping[str, float]) -> Counts:
     """Validate the observed counts against the problem's design."""
-    return reader_of(problem.study.design).read(observed, float(problem.study.baseline))
+    return reader_for(problem.study.design, problem.study.allocation).read(observed, float(problem.study.baseline))
 
 
 def interpret(
@@ -521,6 +533,7 @@ def _checked_counts(problem: Problem, observed: Mapping[str, float] | Counts, co
     """The observed counts, read and checked against the problem's design, once ``confidence`` is checked."""
     if not 0 < confidence < 1:
         raise DecideError(f"confidence must be in (0, 1), but got {confidence:g}", ("confidence",))
+    reader_for(problem.study.design, problem.study.allocation)
     c = observed if isinstance(observed, Counts) else read_counts(problem, observed)
     if c.design != get_design(problem.study.design).name:
         raise DecideError(
@@ -586,5 +599,7 @@ def _effect_interval(c: Counts, confidence: float, baseline: float) -> tuple[flo
 
 def _notes(c: Counts) -> tuple[str, ...]:
     if c.total == 0 and c.law != "poisson":
-        return ("no case at all: the conditional analysis has no information; the posterior equals the prior",)
+        return (
+            f"{reader_of(c.design).no_information}: the conditional analysis has no information; the posterior equals the prior",
+        )
     return ()

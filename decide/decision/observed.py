@@ -12,7 +12,11 @@ where the design has a nuisance baseline:
 * ``cohort-risk`` and ``case-control``: given the total ``t``, ``x1`` follows
   Fisher's noncentral hypergeometric law at odds ratio ``psi`` (for the risk
   ratio ``theta`` of a cohort, ``psi = theta (1 - p0) / (1 - theta p0)`` at the
-  scenario's baseline risk ``p0``).
+  scenario's baseline risk ``p0``);
+* ``matched-case-control`` (1:1 pairs): given the discordant pairs
+  ``t = x1 + x0`` (only the case exposed, only the control exposed), ``x1``
+  is binomial with share ``psi / (1 + psi)``: the binomial law above with
+  ``T1 = T0 = 1``, whose exact test is McNemar's.
 
 A new design is one :class:`Reader` entry in :data:`READERS`.
 
@@ -25,6 +29,12 @@ References
 .. [2] Fisher, R. A. (1935). The logic of inductive inference. *J. R. Stat.
    Soc.* 98, 39-82.
 .. [3] Przyborowski, J. and Wilenski, H. (1940). *Biometrika* 31, 313-323.
+.. [4] McNemar, Q. (1947). Note on the sampling error of the difference
+   between correlated proportions or percentages. *Psychometrika* 12,
+   153-157.
+.. [5] Breslow, N. E. and Day, N. E. (1980). *Statistical Methods in Cancer
+   Research, vol. I*, IARC Scientific Publications 32, Lyon, sec. 5.2 (the
+   conditional binomial law of the discordant pairs of 1:1 matched pairs).
 """
 
 from __future__ import annotations
@@ -50,11 +60,13 @@ class Counts:
     """A finished study's counts, in the form its exact law needs.
 
     ``x1`` is the exposed count (exposed cases; exposed cases among the
-    cases for case-control; all cases for reference-rate), ``x0`` the
-    comparison count (unexposed cases; exposed controls) or ``None``.
-    ``size1`` and ``size0`` are what they come from: subjects (risk groups,
-    cases and controls), person-years, or for reference-rate the expected
-    count ``E`` at the reference rate (``size0`` ``None``).  ``values``
+    cases for case-control; all cases for reference-rate; pairs with only
+    the case exposed for matched pairs), ``x0`` the comparison count
+    (unexposed cases; exposed controls; pairs with only the control exposed)
+    or ``None``.  ``size1`` and ``size0`` are what they come from: subjects
+    (risk groups, cases and controls), person-years, 1 and 1 for matched
+    pairs, or for reference-rate the expected count ``E`` at the reference
+    rate (``size0`` ``None``).  ``values``
     keeps the keys as given, for showing back.
     """
 
@@ -68,7 +80,7 @@ class Counts:
 
     @property
     def total(self) -> int:
-        """Cases (exposed subjects, for case-control) the conditional law is given."""
+        """Cases (exposed subjects for case-control, discordant pairs for matched pairs) the conditional law is given."""
         return self.x1 + (self.x0 or 0)
 
 
@@ -151,6 +163,54 @@ def _read_reference_rate(v: Mapping[str, float], baseline: float) -> Counts:
     return Counts("reference-rate", "poisson", x, None, expected, None, {k: v[k] for k in keys})
 
 
+MATCHED_PAIR_KEYS = ("both_exposed", "case_only_exposed", "control_only_exposed", "neither_exposed")
+
+
+def _read_matched_pairs(v: Mapping[str, float], baseline: float) -> Counts:
+    keys = MATCHED_PAIR_KEYS
+    _keys(v, "matched-case-control", keys)
+    both, x1, x0, neither = (_whole(k, v[k]) for k in keys)
+    if both + x1 + x0 + neither == 0:
+        raise DecideError(
+            f"observed.{keys[0]}: the four counts of pairs hold no pair; at least one matched pair is needed",
+            (f"observed.{keys[0]}",),
+        )
+    return Counts("matched-case-control", "binomial", x1, x0, 1.0, 1.0, {k: v[k] for k in keys})
+
+
+def mcnemar_statistics(c: Counts) -> tuple[float, float]:
+    """McNemar's normal statistic of the discordant pairs, and with the continuity correction.
+
+    ``z = (x1 - x0) / sqrt(x1 + x0)``; corrected,
+    ``sign(x1 - x0) (|x1 - x0| - 1) / sqrt(x1 + x0)`` (0 where the counts
+    differ by less than 1).  0 with no discordant pair.  ``z**2`` is
+    McNemar's chi-squared statistic [1]_.
+
+    References
+    ----------
+    .. [1] McNemar, Q. (1947). *Psychometrika* 12, 153-157.
+    """
+    assert c.x0 is not None
+    if c.total == 0:
+        return 0.0, 0.0
+    diff, root = c.x1 - c.x0, float(np.sqrt(c.total))
+    return diff / root, float(np.sign(diff) * max(abs(diff) - 1, 0) / root)
+
+
+def _pairs_study(c: Counts) -> tuple[int, float | None, float | None]:
+    """The study as done, for matched pairs: every pair (all four counts), one control per case."""
+    return int(sum(c.values.values())), 1.0, None
+
+
+def _one_control_per_case(allocation: float) -> None:
+    if allocation != 1:
+        raise DecideError(
+            "observed: only 1:1 matched pairs (one control per case) can be read so far, but the scenario "
+            f"matches {allocation:g} controls to each case",
+            ("observed",),
+        )
+
+
 @dataclass(frozen=True)
 class Reader:
     """How one design reads its observed counts and maps its ratio to the law's parameter.
@@ -158,7 +218,13 @@ class Reader:
     ``read(values, baseline)`` validates and returns :class:`Counts`;
     ``to_law(theta, baseline)`` maps the design's ratio to the parameter of
     the exact law (the odds ratio for a cohort's risk ratio; else itself) and
-    ``from_law`` back.
+    ``from_law`` back.  The optional fields give what a design does its own
+    way: ``statistic(counts)`` its normal statistic and the continuity-
+    corrected one (else the law's); ``study(counts)`` the size, allocation
+    and years of the study as done, for its detectable ratio (else read
+    from the law's sizes); ``allocation(allocation)`` refuses a scenario's
+    allocation the reader cannot read; ``no_information`` is what having no
+    informative count means.
     """
 
     read: Callable[[Mapping[str, float], float], Counts]
@@ -167,6 +233,10 @@ class Reader:
     keys: tuple[str, ...]
     #: estimate the ratio by conditional maximum likelihood (else the ratio of the observed rates)
     conditional_estimate: bool = False
+    statistic: Callable[[Counts], tuple[float, float]] | None = None
+    study: Callable[[Counts], tuple[int, float | None, float | None]] | None = None
+    allocation: Callable[[float], None] | None = None
+    no_information: str = "no case at all"
 
 
 def _same(x: FloatArray, baseline: float) -> FloatArray:
@@ -206,6 +276,16 @@ READERS: dict[str, Reader] = {
         ("cases", "exposed_cases", "controls", "exposed_controls"),
         conditional_estimate=True,
     ),
+    "matched-case-control": Reader(
+        _read_matched_pairs,
+        _same,
+        _same,
+        MATCHED_PAIR_KEYS,
+        statistic=mcnemar_statistics,
+        study=_pairs_study,
+        allocation=_one_control_per_case,
+        no_information="no discordant pair",
+    ),
 }
 
 
@@ -220,6 +300,14 @@ def reader_of(design: str | StudyDesign) -> Reader:
             f"(available: {', '.join(READERS)})",
             ("observed",),
         ) from None
+
+
+def reader_for(design: str | StudyDesign, allocation: float) -> Reader:
+    """The reader of a design's counts, once it is known to read the scenario's allocation."""
+    reader = reader_of(design)
+    if reader.allocation is not None:
+        reader.allocation(float(allocation))
+    return reader
 
 
 # --------------------------------------------------------------------------

@@ -12,7 +12,7 @@ scenario's design::
     n_unexposed = 2150
 
 The model checks the shape and the types; the decision core
-(:func:`decide.decision.observed.reader_of`) owns every other rule: that the
+(:func:`decide.decision.observed.reader_for`) owns every other rule: that the
 keys fit the design, that counts are whole and not negative, sizes above 0,
 and counts within their groups.  Every problem is one line,
 ``<file>: <key.path>: <reason> (got <value>)``.
@@ -25,7 +25,8 @@ from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from decide.decision.observed import Counts, reader_of
+from decide.decision.observed import Counts, reader_for
+from decide.designs import get_design
 from decide.decision.problem import Problem
 from decide.errors import DecideError
 
@@ -63,6 +64,18 @@ class ObservedModel(BaseModel):
     exposed_cases: Count | None = Field(None, description="Exposed among the cases (case-control).")
     controls: Group | None = Field(None, description="Controls enrolled (case-control).")
     exposed_controls: Count | None = Field(None, description="Exposed among the controls (case-control).")
+    both_exposed: Count | None = Field(
+        None, description="Matched pairs with the case and the control exposed (matched-case-control, 1:1)."
+    )
+    case_only_exposed: Count | None = Field(
+        None, description="Matched pairs with only the case exposed (matched-case-control, 1:1)."
+    )
+    control_only_exposed: Count | None = Field(
+        None, description="Matched pairs with only the control exposed (matched-case-control, 1:1)."
+    )
+    neither_exposed: Count | None = Field(
+        None, description="Matched pairs with neither the case nor the control exposed (matched-case-control, 1:1)."
+    )
 
     def given(self) -> dict[str, float]:
         """The keys written in the file, with their values."""
@@ -83,13 +96,14 @@ class ObservedFileModel(BaseModel):
 def counts_from_data(data: dict[str, object], file: str, problem: Problem) -> Counts:
     """Validate parsed TOML of a data file against the scenario's design."""
     model: ObservedFileModel = validate_model(file, data, ObservedFileModel, ScenarioError)
-    design = problem.study.design
+    design = get_design(problem.study.design).name
     if model.design is not None and model.design != design:
         err = ScenarioError(file, "design", f"the scenario's design is {design} (got {model.design!r})")
         err.params = (file,)  # a key of this file, not the command-line option of the same name
         raise err
+    reader = reader_for(problem.study.design, problem.study.allocation)  # the scenario's to refuse, not the file's
     try:
-        return reader_of(design).read(model.observed.given(), float(problem.study.baseline))
+        return reader.read(model.observed.given(), float(problem.study.baseline))
     except DecideError as e:
         raise from_core_error(file, e) from None
 
