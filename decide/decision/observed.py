@@ -80,7 +80,7 @@ class Counts:
 
     @property
     def total(self) -> int:
-        """Cases (exposed subjects for case-control, discordant pairs for matched pairs) the conditional law is given."""
+        """What the conditional law is given: cases (exposed subjects, case-control; discordant pairs, matched)."""
         return self.x1 + (self.x0 or 0)
 
 

@@ -26,8 +26,8 @@ from typing import Annotated, Any
 from pydantic import BaseModel, ConfigDict, Field
 
 from decide.decision.observed import Counts, reader_for
-from decide.designs import get_design
 from decide.decision.problem import Problem
+from decide.designs import get_design
 from decide.errors import DecideError
 
 from ._messages import ScenarioError, from_core_error
