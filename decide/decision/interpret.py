@@ -599,7 +599,6 @@ def _effect_interval(c: Counts, confidence: float, baseline: float) -> tuple[flo
 
 def _notes(c: Counts) -> tuple[str, ...]:
     if c.total == 0 and c.law != "poisson":
-        return (
-            f"{reader_of(c.design).no_information}: the conditional analysis has no information; the posterior equals the prior",
-        )
+        lost = reader_of(c.design).no_information
+        return (f"{lost}: the conditional analysis has no information; the posterior equals the prior",)
     return ()
