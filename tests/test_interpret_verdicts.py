@@ -86,4 +86,4 @@ def test_every_design_has_a_reader_and_method() -> None:
     from decide.decision.interpret import _METHODS
     from decide.designs import DESIGNS
 
-    assert set(READERS) == set(_METHODS) == set(DESIGNS) - {"matched-case-control"}
+    assert set(READERS) == set(_METHODS) == set(DESIGNS)
