@@ -237,3 +237,11 @@ def test_json_runs_on_the_bundled_file() -> None:
     assert out["estimate"] == pytest.approx(2.0, rel=1e-12)
     assert out["p_value"] == pytest.approx(stats.binomtest(14, 21, 0.5, alternative="greater").pvalue, rel=1e-12)
     assert "INVENTED" in DATA.read_text(encoding="utf-8")
+
+
+def test_no_pair_with_only_the_control_exposed_is_said_in_the_pairs_words(problem: decide.Problem) -> None:
+    from decide.report.interpretation import estimate_sentence
+
+    r = decide.interpret(problem, _pairs((0, 6, 0, 44)))
+    assert r.estimate is None
+    assert estimate_sentence(r).startswith("Odds ratio not estimable (no pair with only the control exposed);")

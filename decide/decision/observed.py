@@ -224,7 +224,8 @@ class Reader:
     and years of the study as done, for its detectable ratio (else read
     from the law's sizes); ``allocation(allocation)`` refuses a scenario's
     allocation the reader cannot read; ``no_information`` is what having no
-    informative count means.
+    informative count means, ``no_estimate`` why the ratio is not estimable
+    when the comparison count is 0.
     """
 
     read: Callable[[Mapping[str, float], float], Counts]
@@ -237,6 +238,7 @@ class Reader:
     study: Callable[[Counts], tuple[int, float | None, float | None]] | None = None
     allocation: Callable[[float], None] | None = None
     no_information: str = "no case at all"
+    no_estimate: str = "no case in the comparison group"
 
 
 def _same(x: FloatArray, baseline: float) -> FloatArray:
@@ -285,6 +287,7 @@ READERS: dict[str, Reader] = {
         study=_pairs_study,
         allocation=_one_control_per_case,
         no_information="no discordant pair",
+        no_estimate="no pair with only the control exposed",
     ),
 }
 

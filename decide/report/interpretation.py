@@ -11,6 +11,7 @@ import math
 from typing import Any
 
 from ..decision.interpret import Interpretation, PolicyVerdict
+from ..decision.observed import reader_of
 from .numbers import count, for_json, money, number, percent, probability
 from .text import CAUTION, literal, markdown_literal
 
@@ -87,7 +88,8 @@ def _disagreement(r: Interpretation) -> str:
 
 def estimate_sentence(r: Interpretation) -> str:
     """The estimate, its interval and the one-sided p-value."""
-    est = "not estimable (no case in the comparison group)" if r.estimate is None else number(r.estimate)
+    why = reader_of(r.design).no_estimate
+    est = f"not estimable ({why})" if r.estimate is None else number(r.estimate)
     return (
         f"{r.effect_name.capitalize()} {est}; {percent(r.confidence)} interval {number(r.ci_low)} to "
         f"{_limit(r.ci_high)}; exact one-sided p-value {probability(r.p_value)}."
