@@ -245,3 +245,18 @@ def test_no_pair_with_only_the_control_exposed_is_said_in_the_pairs_words(proble
     r = decide.interpret(problem, _pairs((0, 6, 0, 44)))
     assert r.estimate is None
     assert estimate_sentence(r).startswith("Odds ratio not estimable (no pair with only the control exposed);")
+
+
+def test_posterior_under_a_point_effect_is_bayes_rule_on_the_binomial_likelihood() -> None:
+    from decide.decision.prior import EffectPrior
+    from decide.decision.problem import Consequences, Problem, Study
+
+    p, psi = 0.2, 3.0
+    costs = Consequences(false_alarm=4e6, per_subject=800.0, missed_hazard=1.5e7)
+    prob = Problem(Study("matched-case-control", 0.06), EffectPrior.point(psi), p, costs)
+    r = decide.interpret(prob, _pairs((3, 14, 7, 126)))
+    # closed form: L(psi) = binom.pmf(b, b + c, psi / (1 + psi)), L(1) = binom.pmf(b, b + c, 1/2)
+    lr = stats.binom.pmf(14, 21, psi / (1 + psi)) / stats.binom.pmf(14, 21, 0.5)
+    assert r.posterior_harm == pytest.approx(p * lr / (p * lr + 1 - p), rel=1e-10)
+    assert r.loss_flag == pytest.approx((1 - r.posterior_harm) * 4e6, rel=1e-12)
+    assert r.loss_clear == pytest.approx(r.posterior_harm * 1.5e7, rel=1e-12)
