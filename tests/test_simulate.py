@@ -265,3 +265,25 @@ def test_matched_scenario_simulates_on_the_command_line() -> None:
     assert not data["power"]["flagged"] and not data["false_alarm"]["flagged"]
     table = CliRunner().invoke(app, ["simulate", path, "--studies", "2000"], env={"COLUMNS": "100"})
     assert table.exit_code == 0 and "McNemar" in table.stdout
+
+
+def test_the_screen_says_what_a_difference_means() -> None:
+    """A flagged check gets one plain sentence for its test; an agreeing one gets none."""
+    import io
+
+    from rich.console import Console
+
+    from decide.report.sweep import difference_note, simulation_table
+
+    prob = EXACT[next(iter(EXACT))]
+    d = optimize(prob)
+
+    def screen(sides: int) -> str:
+        sim = simulate(prob, d, studies=20_000, seed=5, sides=sides)
+        out = io.StringIO()
+        Console(file=out, width=200, color_system=None).print(simulation_table(sim))
+        return " ".join(out.getvalue().split())
+
+    assert difference_note("exact") in screen(2)  # a two-sided rule on a one-sided design
+    assert "beyond 4 standard errors" not in screen(d.sides)
+    assert difference_note("normal") != difference_note("exact")

@@ -175,7 +175,24 @@ def simulation_table(s: Simulation, unit: str = "") -> Group:
         + (f" Costs in {unit}." if unit else ""),
         style="dim",
     )
-    return Group(t, design, _caution())
+    if not s.flagged:
+        return Group(t, design, _caution())
+    return Group(t, design, Text(difference_note(s.test)), _caution())
+
+
+def difference_note(test: str) -> str:
+    """What a difference beyond 4 standard errors means, for the test the design runs."""
+    if test == "exact":
+        return (
+            "A difference beyond 4 standard errors: the exact test's numbers are exact sums, so this points to "
+            "a fault or to a different analysis than the one planned. Do not rely on the design until it is "
+            "explained."
+        )
+    return (
+        "A difference beyond 4 standard errors: the normal test's numbers are approximations, and a large "
+        "simulation can measure their error. Judge whether the gap (simulated minus analytic) matters for "
+        "the decision; if it does, plan with the simulated values or an exact test."
+    )
 
 
 def _csv(rows: list[dict[str, Any]]) -> str:
